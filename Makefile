@@ -1,0 +1,118 @@
+# SPDX-License-Identifier: GPL-3.0-or-later
+# etacal build.  `make` builds build/etacal and build/libetacal.a; `make check`
+# runs every test; `make demo` runs the main job on the bundled demo data.
+# Both install missing Debian packages first when they can (scripts/deps.sh).
+
+CC       ?= cc
+CFLAGS   ?= -std=c11 -O2 -g -Wall -Wextra -Wpedantic -Wshadow -Wstrict-prototypes -Wmissing-prototypes
+WERROR   ?=
+SAN      ?=
+BUILD    ?= build
+PREFIX   ?= /usr/local
+DESTDIR  ?=
+PYTHON   ?= /usr/bin/python3
+
+PKGS      := gsl
+PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
+PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null || echo -lgsl -lgslcblas -lm)
+CMOCKA_CFLAGS := $(shell pkg-config --cflags cmocka 2>/dev/null)
+CMOCKA_LIBS   := $(shell pkg-config --libs cmocka 2>/dev/null || echo -lcmocka)
+
+ALL_CFLAGS = $(CFLAGS) $(WERROR) $(SAN) -D_POSIX_C_SOURCE=200809L -Iinclude -Isrc $(PKG_CFLAGS)
+LDLIBS_ALL = -lcsv $(PKG_LIBS) -lm
+
+LIB_SRC := $(wildcard src/*.c)
+CLI_SRC := $(wildcard src/cli/*.c)
+LIB_OBJ := $(LIB_SRC:src/%.c=$(BUILD)/obj/%.o)
+CLI_OBJ := $(CLI_SRC:src/cli/%.c=$(BUILD)/obj/cli/%.o)
+HDRS    := $(wildcard include/etacal/*.h) src/internal.h src/cli/cli.h
+UNIT_SRC := $(wildcard tests/unit/test_*.c)
+UNIT_BIN := $(UNIT_SRC:tests/unit/%.c=$(BUILD)/tests/%)
+LIB      := $(BUILD)/libetacal.a
+BIN      := $(BUILD)/etacal
+CITYGEN  := $(BUILD)/citygen
+
+.PHONY: all deps demo check unit e2e ref asan install uninstall clean golden bench format
+
+all: $(BIN) $(LIB)
+
+deps:
+	@sh scripts/deps.sh
+
+$(BUILD)/obj/%.o: src/%.c $(HDRS)
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) -c $< -o $@
+
+$(LIB): $(LIB_OBJ)
+	@rm -f $@
+	ar rcs $@ $^
+
+$(BIN): $(CLI_OBJ) $(LIB)
+	$(CC) $(ALL_CFLAGS) -o $@ $(CLI_OBJ) $(LIB) $(LDLIBS_ALL)
+
+$(CITYGEN): examples/citygen.c
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) -o $@ $< -lm
+
+$(BUILD)/tests/%: tests/unit/%.c tests/unit/testutil.h $(LIB)
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) $(CMOCKA_CFLAGS) -Itests/unit -o $@ $< $(LIB) $(CMOCKA_LIBS) $(LDLIBS_ALL)
+
+$(BUILD)/tests/refcalc: tests/ref/refcalc.c $(LIB)
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) -o $@ $< $(LIB) $(LDLIBS_ALL)
+
+# ---- tests ---------------------------------------------------------------
+check:
+	@sh scripts/deps.sh
+	@$(MAKE) --no-print-directory unit e2e ref
+
+unit: $(UNIT_BIN)
+	@fail=0; for t in $(UNIT_BIN); do \
+	  echo "== $$t"; $$t || fail=1; \
+	done; exit $$fail
+
+e2e: $(BIN) $(CITYGEN)
+	@sh tests/e2e/run.sh $(BIN)
+
+ref: $(BIN) $(BUILD)/tests/refcalc $(CITYGEN)
+	@sh tests/ref/run.sh $(BUILD) $(PYTHON)
+
+golden: $(BIN)
+	@ETACAL_GOLDEN=1 sh tests/e2e/run.sh $(BIN)
+
+# The same suite built with AddressSanitizer and UndefinedBehaviorSanitizer.
+asan:
+	@$(MAKE) --no-print-directory BUILD=build-asan \
+	  SAN="-fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all" \
+	  unit e2e ref
+
+# ---- demo ----------------------------------------------------------------
+DEMO := $(BUILD)/demo
+demo:
+	@sh scripts/deps.sh
+	@$(MAKE) --no-print-directory $(BIN) $(CITYGEN)
+	@sh examples/demo.sh $(BUILD)
+
+bench: $(BIN)
+	bash bench/run.sh
+
+# ---- install -------------------------------------------------------------
+install: $(BIN) $(LIB)
+	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/lib $(DESTDIR)$(PREFIX)/include/etacal \
+	  $(DESTDIR)$(PREFIX)/share/man/man1
+	install -m 755 $(BIN) $(DESTDIR)$(PREFIX)/bin/etacal
+	install -m 644 $(LIB) $(DESTDIR)$(PREFIX)/lib/libetacal.a
+	install -m 644 include/etacal/*.h $(DESTDIR)$(PREFIX)/include/etacal/
+	install -m 644 docs/etacal.1 $(DESTDIR)$(PREFIX)/share/man/man1/etacal.1
+
+uninstall:
+	rm -f $(DESTDIR)$(PREFIX)/bin/etacal $(DESTDIR)$(PREFIX)/lib/libetacal.a \
+	  $(DESTDIR)$(PREFIX)/share/man/man1/etacal.1
+	rm -rf $(DESTDIR)$(PREFIX)/include/etacal
+
+format:
+	clang-format -i src/*.c src/cli/*.c src/*.h src/cli/*.h include/etacal/*.h tests/unit/*.c
+
+clean:
+	rm -rf build build-asan

@@ -1,0 +1,64 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* apply.h: promises for a stream of new orders from a quote table. */
+#ifndef ETACAL_APPLY_H
+#define ETACAL_APPLY_H
+
+#include <stddef.h>
+#include <stdio.h>
+
+#include "etacal/error.h"
+#include "etacal/quote.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+#define ETACAL_APPLY_MAX_TARGETS 32
+
+typedef struct etacal_apply_opts {
+    const char *pred_col;   /* the prediction column of the orders (seconds) */
+    const char *actual_col; /* optional: actual durations, to report the
+                               on-time rate the promises reach; NULL if none */
+    const size_t *targets;  /* indices into q->targets; NULL means all */
+    size_t ntargets;
+    double round_s;         /* round each promise up to a multiple of this; 0: to 1 ms */
+    char delim;             /* 0 means ',' */
+    int bad_rows;           /* ETACAL_BAD_ROWS_ERROR or _SKIP (empty promise, counted) */
+} etacal_apply_opts;
+
+typedef struct etacal_apply_stats {
+    size_t rows;          /* data rows written */
+    size_t promised;      /* rows with promises */
+    size_t missing_pred;  /* rows with an empty / NA prediction: empty promise */
+    size_t bad;           /* malformed rows passed through with an empty promise */
+    size_t fallback;      /* promised rows whose own segment had no row (first target) */
+    /* With actual_col: rows with both a promise and an actual value, and how
+     * many arrived by the promise (per selected target, in order) and by the
+     * bare prediction. */
+    size_t with_actual;
+    size_t hits[ETACAL_APPLY_MAX_TARGETS];
+    size_t bare_hits;
+    size_t first_bad_line;
+} etacal_apply_stats;
+
+/* Streams the orders in in_path ("-" for stdin) to out: every record is
+ * copied byte for byte (quoting kept) with the promise columns appended:
+ * "promise_s" for one target, "promise_s_<pct>" (promise_s_90,
+ * promise_s_97.5) for several.  The key columns of q are looked up in the
+ * orders' header by name.  An order takes the most specific row of the table
+ * that matches it: its own segment, then its segment with the last keys
+ * replaced by "*", down to the global row.  Promises are in seconds, rounded
+ * up (never down).  Memory does not grow with the number of orders.  On error
+ * the output is incomplete: write to an etacal_outfile to keep it from
+ * appearing. */
+int etacal_apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,
+                     const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err);
+
+/* Rounds a promise up to a multiple of round_s (> 0), or to the next whole
+ * millisecond when round_s is 0. */
+double etacal_promise_round(double promise, double round_s);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

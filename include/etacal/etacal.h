@@ -1,0 +1,19 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* etacal.h: the whole public API of libetacal.
+ *
+ * Embedders must call gsl_set_error_handler_off() once before using the
+ * library: GSL's default handler aborts the process. */
+#ifndef ETACAL_H
+#define ETACAL_H
+
+#define ETACAL_VERSION "0.1.0"
+
+#include "etacal/error.h"
+#include "etacal/numparse.h"
+#include "etacal/io.h"
+#include "etacal/conformal.h"
+#include "etacal/table.h"
+#include "etacal/quote.h"
+#include "etacal/apply.h"
+
+#endif

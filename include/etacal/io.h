@@ -1,0 +1,38 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* io.h: output files that appear whole or not at all. */
+#ifndef ETACAL_IO_H
+#define ETACAL_IO_H
+
+#include <stdio.h>
+
+#include "etacal/error.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* An output file that appears only when complete: the data goes to a
+ * temporary file in the same directory, which etacal_outfile_commit flushes,
+ * fsyncs and renames over the path.  An existing file at the path is left
+ * untouched until then, and for ever if the writer fails.  "-" means stdout,
+ * written directly (a stream cannot be taken back).  Zero-initialise before
+ * use. */
+typedef struct etacal_outfile {
+    FILE *fp;   /* write here */
+    char *path; /* owned copies */
+    char *tmp;
+    int is_stdout;
+} etacal_outfile;
+
+int etacal_outfile_open(etacal_outfile *o, const char *path, etacal_error *err);
+/* Flushes and checks the stream, then (for a file) fsyncs, renames into
+ * place and fsyncs the directory.  On failure the temporary file is removed. */
+int etacal_outfile_commit(etacal_outfile *o, etacal_error *err);
+/* Abandons the output: closes and removes the temporary file.  Safe on a
+ * zeroed, committed or already aborted outfile. */
+void etacal_outfile_abort(etacal_outfile *o);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

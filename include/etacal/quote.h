@@ -1,0 +1,123 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* quote.h: promise (quote) tables.
+ *
+ * A quote table holds, per segment and on-time target tau, a line
+ *     promise = offset_s + slope * pred      (seconds)
+ * fitted so that at least a share tau of future orders of that segment
+ * arrive by the promise (split conformal; see conformal.h).  A segment is a
+ * combination of values of the key columns; the global segment has "*" in
+ * every key column and is the fallback of segments without a row. */
+#ifndef ETACAL_QUOTE_H
+#define ETACAL_QUOTE_H
+
+#include <stddef.h>
+#include <stdio.h>
+
+#include "etacal/error.h"
+#include "etacal/table.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+enum {
+    ETACAL_METHOD_ADD = 0,  /* score actual - pred; promise = pred + q */
+    ETACAL_METHOD_RATIO = 1 /* score actual / pred (pred > 0); promise = pred * q */
+};
+
+/* "add" / "ratio"; NULL for an unknown method. */
+const char *etacal_method_name(int method);
+/* The method of a name, or -1. */
+int etacal_method_parse(const char *name);
+
+/* Why a segment has no row of its own for a target. */
+enum {
+    ETACAL_OWN_ROW = 0,
+    ETACAL_FALLBACK_FEW_ROWS = 1, /* n < min_rows */
+    ETACAL_FALLBACK_RANK = 2      /* k = ceil((n+1) tau) > n: no finite bound */
+};
+
+/* Point accuracy of the prediction column against the actuals. */
+typedef struct etacal_accuracy {
+    size_t n;
+    double rmse, mae;
+    double mean_error; /* mean of actual - pred: > 0 means orders take longer than predicted */
+    size_t on_time;    /* rows with actual <= pred */
+} etacal_accuracy;
+
+/* One segment of a fitted or read table.  keys[j] is the value of key column
+ * j, "*" for the global segment. */
+typedef struct etacal_segment {
+    char **keys;
+    size_t n;          /* calibration rows (fit), or the table's n (read) */
+    size_t bare_hits;  /* rows with actual <= pred (fit only) */
+    /* Per target (ntargets entries): */
+    size_t *k;         /* conformal rank */
+    double *score_q;   /* the k-th smallest score: seconds (add) or a factor
+                          (ratio); +inf when k > n */
+    int *status;       /* ETACAL_OWN_ROW or a fallback reason */
+} etacal_segment;
+
+/* One row of the quote table. */
+typedef struct etacal_quote {
+    size_t seg;    /* index into segs */
+    size_t target; /* index into targets */
+    int method;
+    size_t n, k;
+    double offset_s, slope;
+} etacal_quote;
+
+/* A quote table.  Read-only for callers; built by etacal_quotes_fit or
+ * etacal_quotes_read_csv and freed by etacal_quotes_destroy.  segs[0] is the
+ * global segment; the other segments are sorted by their key texts. */
+typedef struct etacal_quotes {
+    size_t nkeys;
+    char **key_names;
+    int method;
+    size_t ntargets;
+    double *targets; /* ascending, distinct */
+    size_t nsegs;
+    etacal_segment *segs;
+    size_t nrows;
+    etacal_quote *rows; /* by segment, then target */
+    etacal_accuracy accuracy; /* fit only */
+} etacal_quotes;
+
+typedef struct etacal_fit_opts {
+    int method;             /* ETACAL_METHOD_* */
+    const double *targets;  /* on-time targets in (0,1) */
+    size_t ntargets;
+    size_t min_rows;        /* a segment with fewer rows falls back; 0 means 200 */
+} etacal_fit_opts;
+
+/* Fits a quote table from the rows of t: actual_col and pred_col are
+ * numeric columns of t (no NaN: read them with ETACAL_NUM_SKIP_MISSING),
+ * key_cols[0..nkeys) key columns.  Errors: no rows, a target outside (0,1),
+ * a ratio fit with a prediction <= 0, too few rows for a finite global bound
+ * (the message names the minimum). *out is new; free with
+ * etacal_quotes_destroy. */
+int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
+                      const size_t *key_cols, size_t nkeys, const etacal_fit_opts *opts,
+                      etacal_quotes **out, etacal_error *err);
+
+/* Writes the table as CSV: the key columns, then
+ * target,method,n,k,offset_s,slope; one row per segment with a row of its
+ * own and target, global rows first.  Numbers in shortest round-trip form. */
+int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err);
+
+/* Reads a table written by etacal_quotes_write_csv (or by hand, or by SQL):
+ * the columns before 'target' are the key columns; 'target', 'method', 'n',
+ * 'offset_s' and 'slope' are required, others are ignored.  Checks: numbers
+ * finite, targets in (0,1), one method, no duplicate (segment, target), a
+ * global row for every target.  Errors carry FILE:LINE. */
+int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, etacal_error *err);
+
+void etacal_quotes_destroy(etacal_quotes *q);
+
+/* Index of the target equal to tau, or -1. */
+long etacal_quotes_find_target(const etacal_quotes *q, double tau);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,92 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* table.h: a CSV file read into columns.
+ *
+ * Only the columns named by the caller are kept.  Numeric columns become
+ * arrays of double; key (segment) columns are dictionary-encoded to dense
+ * ids 0..count-1 in order of first appearance.  Storage grows by doubling;
+ * nothing is allocated per row or field. */
+#ifndef ETACAL_TABLE_H
+#define ETACAL_TABLE_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "etacal/error.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+typedef struct etacal_table etacal_table;
+
+enum { ETACAL_COL_NUM = 0, ETACAL_COL_KEY = 1 };
+
+/* Flags of a numeric column. */
+enum {
+    ETACAL_NUM_SKIP_MISSING = 1, /* a missing value leaves the row out (counted) */
+    ETACAL_NUM_NONNEG = 2,       /* a negative value is a data error */
+    ETACAL_NUM_POSITIVE = 4,     /* a value <= 0 is a data error */
+    ETACAL_NUM_FINITE = 8        /* inf is a data error */
+};
+
+typedef struct etacal_colspec {
+    const char *name; /* header name, matched exactly */
+    int type;         /* ETACAL_COL_NUM or ETACAL_COL_KEY */
+    unsigned flags;   /* ETACAL_NUM_* for numeric columns */
+    const char *what; /* how messages call it ("duration"); may be NULL */
+} etacal_colspec;
+
+enum { ETACAL_BAD_ROWS_ERROR = 0, ETACAL_BAD_ROWS_SKIP = 1 };
+
+typedef struct etacal_read_opts {
+    char delim;           /* field delimiter; 0 means ',' */
+    int bad_rows;         /* ETACAL_BAD_ROWS_ERROR (default) or _SKIP */
+    double max_bad_share; /* with _SKIP: more malformed data rows than this
+                             share of all data rows is still an error */
+    /* Called now and then with bytes read so far and the file's size (0 when
+     * unknown, as for a pipe).  May be NULL. */
+    void (*progress)(void *ud, uint64_t done, uint64_t total);
+    void *progress_ud;
+} etacal_read_opts;
+
+/* Counts of what reading saw. */
+typedef struct etacal_read_stats {
+    size_t data_rows;       /* data records in the file (header and blank lines excluded) */
+    size_t kept;            /* rows stored */
+    size_t missing;         /* left out for a missing value in a SKIP_MISSING column */
+    size_t bad;             /* malformed rows skipped under ETACAL_BAD_ROWS_SKIP */
+    size_t first_bad_line;  /* line of the first skipped malformed row, or 0 */
+    char first_bad_msg[160];
+    uint64_t bytes;         /* bytes read */
+} etacal_read_stats;
+
+/* Reads path ("-" for stdin) with a header row, keeping the ncols columns of
+ * cols (in that order: column i of the table is cols[i]).  Quoting follows
+ * RFC 4180; CRLF and a UTF-8 byte-order mark are accepted; numbers are read
+ * in the C locale.  Errors carry "FILE:LINE" in err->where: a named column
+ * missing from the header, a row with the wrong number of fields, a bad or
+ * out-of-range number, an unterminated quote, an empty file.  On success
+ * *out is a new table (free with etacal_table_destroy). */
+int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t ncols,
+                          const etacal_read_opts *opts, etacal_table **out, etacal_error *err);
+
+void etacal_table_destroy(etacal_table *t);
+
+size_t etacal_table_rows(const etacal_table *t);
+size_t etacal_table_cols(const etacal_table *t);
+const char *etacal_table_col_name(const etacal_table *t, size_t col);
+/* The source file's name as given, for messages. */
+const char *etacal_table_source(const etacal_table *t);
+const etacal_read_stats *etacal_table_stats(const etacal_table *t);
+
+/* Column data, borrowed from the table; NULL when col has the other type. */
+const double *etacal_table_num(const etacal_table *t, size_t col);
+const uint32_t *etacal_table_key(const etacal_table *t, size_t col);
+/* Number of distinct values of a key column, and the text of one. */
+size_t etacal_table_key_count(const etacal_table *t, size_t col);
+const char *etacal_table_key_text(const etacal_table *t, size_t col, uint32_t id);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,52 @@
+#!/bin/sh
+# SPDX-License-Identifier: GPL-3.0-or-later
+# deps.sh: make sure the Debian packages etacal builds and tests with are
+# installed.  As root with apt-get it installs what is missing; otherwise it
+# prints the exact command to run and fails.
+#   scripts/deps.sh            build and test libraries (GSL, libcsv, cmocka)
+#   scripts/deps.sh --oracles  also the reference libraries the oracle tests
+#                              compare against (numpy, scipy, scikit-learn,
+#                              statsmodels, R's quantreg); missing ones only
+#                              make those tests skip, so failure is a warning.
+set -u
+
+need=""
+have_pkg() { dpkg-query -W -f='${Status}' "$1" 2>/dev/null | grep -q 'install ok installed'; }
+
+for p in libgsl-dev libcsv-dev libcmocka-dev libjansson-dev pkg-config; do
+    have_pkg "$p" || need="$need $p"
+done
+
+oracles=""
+if [ "${1:-}" = "--oracles" ]; then
+    for p in python3-numpy python3-scipy python3-sklearn python3-statsmodels r-cran-quantreg; do
+        have_pkg "$p" || oracles="$oracles $p"
+    done
+fi
+
+[ -z "$need$oracles" ] && exit 0
+
+if [ "$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then
+    echo "etacal: installing Debian packages:$need$oracles" >&2
+    export DEBIAN_FRONTEND=noninteractive
+    apt-get update -qq >/dev/null 2>&1 || true
+    if [ -n "$need" ]; then
+        apt-get install -y -qq --no-install-recommends $need >/dev/null || {
+            echo "etacal: could not install:$need" >&2
+            exit 1
+        }
+    fi
+    if [ -n "$oracles" ]; then
+        apt-get install -y -qq --no-install-recommends $oracles >/dev/null ||
+            echo "etacal: warning: could not install the oracles:$oracles (their tests will skip)" >&2
+    fi
+    exit 0
+fi
+
+if [ -n "$need" ]; then
+    echo "etacal: missing Debian packages:$need" >&2
+    echo "etacal: install them with:  sudo apt-get install$need" >&2
+    exit 1
+fi
+echo "etacal: note: oracle tests will skip; to run them:  sudo apt-get install$oracles" >&2
+exit 0

@@ -1,0 +1,379 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* apply.c: streaming a file of orders through a quote table.
+ *
+ * Records are copied through byte for byte (csvstream's raw mode), so the
+ * output differs from the input only by the appended promise columns.  Only
+ * one record is held at a time: memory is flat in the number of orders. */
+#include "internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+double ceil_scaled(double x, double scale)
+{
+    /* A value within 1e-9 units of a whole unit is taken as that unit (the
+     * noise of decimal data in binary); otherwise round up.  Dividing the
+     * whole number by the scale gives the double nearest to the decimal, so
+     * it prints short. */
+    double u = x * scale;
+    double r = nearbyint(u);
+    if (fabs(u - r) <= 1e-9 * (fabs(u) > 1 ? fabs(u) : 1))
+        return r / scale;
+    return ceil(u) / scale;
+}
+
+double etacal_promise_round(double promise, double round_s)
+{
+    if (!isfinite(promise))
+        return promise;
+    if (round_s > 0)
+        return ceil(promise / round_s) * round_s;
+    return ceil_scaled(promise, 1000);
+}
+
+typedef struct applier {
+    const etacal_quotes *q;
+    const etacal_apply_opts *o;
+    etacal_apply_stats *st;
+    FILE *out;
+    const char *path;
+    etacal_error *err;
+    char delim;
+    rowbuf rb;
+    int header_done;
+    size_t nfields;
+    long c_pred, c_actual;
+    long *c_keys;         /* order column of each table key */
+    strdict segs;         /* joined key texts -> table segment */
+    long *segrow;         /* [seg * ntargets + ti] -> row index or -1 */
+    size_t nsel;
+    size_t sel[ETACAL_APPLY_MAX_TARGETS];
+    char *joined;
+    size_t jcap;
+} applier;
+
+static void on_field(void *ud, size_t col, const char *s, size_t len)
+{
+    (void)col;
+    rowbuf_add(&((applier *)ud)->rb, s, len);
+}
+
+static int fail(applier *a, size_t line, int code, const char *fmt, const char *arg)
+{
+    char where[128];
+    format_where(where, sizeof where, a->path, line);
+    etacal_error_set(a->err, code, where, fmt, arg);
+    return 1;
+}
+
+/* Writes the record without its line terminator, and returns the terminator. */
+static const char *put_record(applier *a, const char *raw, size_t len)
+{
+    const char *term = "\n";
+    if (len && raw[len - 1] == '\n') {
+        len--;
+        if (len && raw[len - 1] == '\r') {
+            len--;
+            term = "\r\n";
+        }
+    }
+    fwrite(raw, 1, len, a->out);
+    return term;
+}
+
+static int header(applier *a, size_t line, const char *raw, size_t rawlen)
+{
+    rowbuf *b = &a->rb;
+    a->c_pred = a->c_actual = -1;
+    const etacal_quotes *q = a->q;
+    a->c_keys = malloc((q->nkeys ? q->nkeys : 1) * sizeof *a->c_keys);
+    if (!a->c_keys)
+        return fail(a, line, ETACAL_ENOMEM, "out of memory%s", "");
+    for (size_t j = 0; j < q->nkeys; j++)
+        a->c_keys[j] = -1;
+    char name[ETACAL_NUM_BUFSZ + 16];
+    for (size_t i = 0; i < b->nf; i++) {
+        const char *h = rowbuf_get(b, i);
+        if (strcmp(h, a->o->pred_col) == 0)
+            a->c_pred = (long)i;
+        if (a->o->actual_col && strcmp(h, a->o->actual_col) == 0)
+            a->c_actual = (long)i;
+        for (size_t j = 0; j < q->nkeys; j++)
+            if (strcmp(h, q->key_names[j]) == 0)
+                a->c_keys[j] = (long)i;
+        for (size_t t = 0; t < a->nsel; t++) {
+            if (a->nsel == 1) {
+                snprintf(name, sizeof name, "promise_s");
+            } else {
+                char pct[ETACAL_NUM_BUFSZ];
+                etacal_percent_label(q->targets[a->sel[t]], pct);
+                snprintf(name, sizeof name, "promise_s_%s", pct);
+            }
+            if (strcmp(h, name) == 0)
+                return fail(a, line, ETACAL_EINVAL, "the orders already have a column '%s'", name);
+        }
+    }
+    if (a->c_pred < 0)
+        return fail(a, line, ETACAL_EINVAL, "no column '%s' in the header", a->o->pred_col);
+    if (a->o->actual_col && a->c_actual < 0)
+        return fail(a, line, ETACAL_EINVAL, "no column '%s' in the header", a->o->actual_col);
+    for (size_t j = 0; j < q->nkeys; j++)
+        if (a->c_keys[j] < 0)
+            return fail(a, line, ETACAL_EINVAL,
+                        "no column '%s' in the header (a key column of the quote table)",
+                        q->key_names[j]);
+    a->nfields = b->nf;
+    const char *term = put_record(a, raw, rawlen);
+    for (size_t t = 0; t < a->nsel; t++) {
+        putc(a->delim, a->out);
+        if (a->nsel == 1) {
+            fputs("promise_s", a->out);
+        } else {
+            char pct[ETACAL_NUM_BUFSZ];
+            etacal_percent_label(q->targets[a->sel[t]], pct);
+            fprintf(a->out, "promise_s_%s", pct);
+        }
+    }
+    fputs(term, a->out);
+    return 0;
+}
+
+/* The most specific table row for target ti of the current record, or -1;
+ * *level_out is the number of keys matched by value. */
+static long lookup(applier *a, size_t ti, size_t *level_out)
+{
+    const etacal_quotes *q = a->q;
+    rowbuf *b = &a->rb;
+    size_t need = 0;
+    for (size_t j = 0; j < q->nkeys; j++)
+        need += rowbuf_len(b, (size_t)a->c_keys[j]) + 2;
+    if (grow_array((void **)&a->joined, &a->jcap, need + 1, 1) != 0)
+        return -2;
+    for (size_t level = q->nkeys + 1; level-- > 0;) {
+        size_t w = 0;
+        for (size_t j = 0; j < q->nkeys; j++) {
+            if (j < level) {
+                size_t len = rowbuf_len(b, (size_t)a->c_keys[j]);
+                memcpy(a->joined + w, rowbuf_get(b, (size_t)a->c_keys[j]), len);
+                w += len;
+            } else {
+                a->joined[w++] = '*';
+            }
+            a->joined[w++] = '\x1f';
+        }
+        uint32_t seg;
+        if (strdict_find(&a->segs, a->joined, w, &seg)) {
+            long r = a->segrow[(size_t)seg * q->ntargets + ti];
+            if (r >= 0) {
+                *level_out = level;
+                return r;
+            }
+        }
+    }
+    return -1;
+}
+
+static void put_promise(applier *a, double v)
+{
+    char buf[64];
+    if (a->o->round_s > 0) {
+        etacal_num_format(v, buf);
+    } else {
+        int n = snprintf(buf, sizeof buf, "%.3f", v);
+        while (n > 0 && buf[n - 1] == '0')
+            buf[--n] = '\0';
+        if (n > 0 && buf[n - 1] == '.')
+            buf[--n] = '\0';
+    }
+    fputs(buf, a->out);
+}
+
+static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t rawlen)
+{
+    applier *a = ud;
+    rowbuf *b = &a->rb;
+    int stop = 0;
+    if (b->oom) {
+        stop = fail(a, line, ETACAL_ENOMEM, "out of memory%s", "");
+        goto out;
+    }
+    if (!a->header_done) {
+        a->header_done = 1;
+        stop = header(a, line, raw, rawlen);
+        goto out;
+    }
+    etacal_apply_stats *st = a->st;
+    const char *problem = NULL;
+    char msg[160];
+    double pred = NAN, actual = NAN;
+    int missing = 0;
+    if (nfields != a->nfields) {
+        snprintf(msg, sizeof msg, "%zu fields, but the header has %zu", nfields, a->nfields);
+        problem = msg;
+    } else {
+        int k = etacal_num_parse(rowbuf_get(b, (size_t)a->c_pred), rowbuf_len(b, (size_t)a->c_pred), &pred);
+        if (k == ETACAL_NUM_BAD) {
+            snprintf(msg, sizeof msg, "column '%s' is not numeric: '%.40s'", a->o->pred_col,
+                     rowbuf_get(b, (size_t)a->c_pred));
+            problem = msg;
+        } else if (k == ETACAL_NUM_MISSING) {
+            missing = 1;
+        } else if (!isfinite(pred) || pred < 0) {
+            snprintf(msg, sizeof msg, "column '%s': prediction is %s", a->o->pred_col,
+                     isfinite(pred) ? "negative" : "not finite");
+            problem = msg;
+        } else if (a->q->method == ETACAL_METHOD_RATIO && !(pred > 0)) {
+            snprintf(msg, sizeof msg, "column '%s': method ratio needs a prediction > 0", a->o->pred_col);
+            problem = msg;
+        }
+        if (!problem && a->c_actual >= 0) {
+            k = etacal_num_parse(rowbuf_get(b, (size_t)a->c_actual), rowbuf_len(b, (size_t)a->c_actual),
+                                 &actual);
+            if (k == ETACAL_NUM_BAD) {
+                snprintf(msg, sizeof msg, "column '%s' is not numeric: '%.40s'", a->o->actual_col,
+                         rowbuf_get(b, (size_t)a->c_actual));
+                problem = msg;
+            }
+        }
+    }
+    if (problem) {
+        if (a->o->bad_rows != ETACAL_BAD_ROWS_SKIP) {
+            stop = fail(a, line, ETACAL_EPARSE, "%s", problem);
+            goto out;
+        }
+        if (st->bad++ == 0)
+            st->first_bad_line = line;
+        missing = 1;
+    } else if (missing) {
+        st->missing_pred++;
+    }
+    st->rows++;
+    const char *term = put_record(a, raw, rawlen);
+    int have_actual = !missing && isfinite(actual);
+    if (!missing)
+        st->promised++;
+    if (have_actual) {
+        st->with_actual++;
+        st->bare_hits += actual <= pred;
+    }
+    for (size_t t = 0; t < a->nsel; t++) {
+        putc(a->delim, a->out);
+        if (missing)
+            continue;
+        size_t level = 0;
+        long r = lookup(a, a->sel[t], &level);
+        if (r == -2) {
+            stop = fail(a, line, ETACAL_ENOMEM, "out of memory%s", "");
+            goto out;
+        }
+        const etacal_quote *row = &a->q->rows[r];
+        double v = etacal_promise_round(row->offset_s + row->slope * pred, a->o->round_s);
+        if (t == 0 && level < a->q->nkeys)
+            st->fallback++;
+        put_promise(a, v);
+        if (have_actual)
+            st->hits[t] += actual <= v;
+    }
+    fputs(term, a->out);
+    if (ferror(a->out))
+        stop = fail(a, line, ETACAL_EIO, "write failed%s", "");
+out:
+    rowbuf_reset(b);
+    return stop;
+}
+
+int etacal_apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,
+                     const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err)
+{
+    int rc = ETACAL_OK;
+    applier a;
+    memset(&a, 0, sizeof a);
+    memset(stats, 0, sizeof *stats);
+    a.q = q;
+    a.o = opts;
+    a.st = stats;
+    a.out = out;
+    a.path = in_path;
+    a.err = err;
+    a.delim = opts->delim ? opts->delim : ',';
+    strdict_init(&a.segs);
+    if (!opts->pred_col)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "no prediction column given");
+    if (opts->targets) {
+        if (opts->ntargets == 0 || opts->ntargets > ETACAL_APPLY_MAX_TARGETS)
+            return etacal_error_set(err, ETACAL_EINVAL, NULL, "between 1 and %d targets",
+                                    ETACAL_APPLY_MAX_TARGETS);
+        for (size_t t = 0; t < opts->ntargets; t++) {
+            if (opts->targets[t] >= q->ntargets)
+                return etacal_error_set(err, ETACAL_EINVAL, NULL, "target index out of range");
+            a.sel[t] = opts->targets[t];
+        }
+        a.nsel = opts->ntargets;
+    } else {
+        if (q->ntargets > ETACAL_APPLY_MAX_TARGETS)
+            return etacal_error_set(err, ETACAL_EINVAL, NULL, "the table has more than %d targets",
+                                    ETACAL_APPLY_MAX_TARGETS);
+        for (size_t t = 0; t < q->ntargets; t++)
+            a.sel[t] = t;
+        a.nsel = q->ntargets;
+    }
+    if (!(opts->round_s >= 0) || !isfinite(opts->round_s))
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "rounding must be a finite number of seconds >= 0");
+    /* lookup structures */
+    size_t ncell = q->nsegs * q->ntargets;
+    a.segrow = malloc((ncell ? ncell : 1) * sizeof *a.segrow);
+    if (!a.segrow) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+        goto done;
+    }
+    for (size_t i = 0; i < q->nsegs * q->ntargets; i++)
+        a.segrow[i] = -1;
+    for (size_t s = 0; s < q->nsegs; s++) {
+        size_t w = 0;
+        for (size_t j = 0; j < q->nkeys; j++)
+            w += strlen(q->segs[s].keys[j]) + 1;
+        if (grow_array((void **)&a.joined, &a.jcap, w + 1, 1) != 0) {
+            rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+            goto done;
+        }
+        w = 0;
+        for (size_t j = 0; j < q->nkeys; j++) {
+            size_t len = strlen(q->segs[s].keys[j]);
+            memcpy(a.joined + w, q->segs[s].keys[j], len);
+            w += len;
+            a.joined[w++] = '\x1f';
+        }
+        uint32_t id;
+        if (strdict_intern(&a.segs, a.joined, w, &id) != 0) {
+            rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+            goto done;
+        }
+        if (id != s) {
+            rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "the quote table has a duplicate segment");
+            goto done;
+        }
+    }
+    for (size_t r = 0; r < q->nrows; r++)
+        a.segrow[q->rows[r].seg * q->ntargets + q->rows[r].target] = (long)r;
+    for (size_t t = 0; t < a.nsel; t++)
+        if (a.segrow[0 * q->ntargets + a.sel[t]] < 0) {
+            rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "the quote table has no global row for target %g",
+                                  q->targets[a.sel[t]]);
+            goto done;
+        }
+    csvstream_cb cb = {on_field, on_row, &a, NULL, NULL};
+    rc = csvstream_run(in_path, a.delim, 1, &cb, NULL, err);
+    if (rc)
+        goto done;
+    if (!a.header_done)
+        rc = etacal_error_set(err, ETACAL_EPARSE, in_path, "empty file: expected a header row");
+
+done:
+    rowbuf_free(&a.rb);
+    strdict_free(&a.segs);
+    free(a.segrow);
+    free(a.c_keys);
+    free(a.joined);
+    return rc;
+}

@@ -1,0 +1,59 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* cli.h: what the command-line front end's files share.  The CLI parses
+ * options, calls the library and prints; it computes no statistics. */
+#ifndef ETACAL_CLI_H
+#define ETACAL_CLI_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+
+#include "etacal/etacal.h"
+
+enum { EXIT_DATA = 1, EXIT_USAGE = 2 };
+
+int cmd_fit(int argc, char **argv);
+int cmd_apply(int argc, char **argv);
+
+/* "etacal: CMD: msg" and a hint to --help on stderr; returns EXIT_USAGE. */
+int usage_error(const char *cmd, const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 2, 3)))
+#endif
+    ;
+/* Prints "etacal: WHERE: MSG" for a library error; returns EXIT_DATA. */
+int report_error(const etacal_error *err);
+
+/* Option values shared by the commands. */
+int parse_delim(const char *s, char *out);
+int parse_bad_rows(const char *s, int *out);
+int parse_share(const char *s, double *out);
+int parse_size(const char *s, size_t *out);
+int parse_seconds(const char *s, double *out);
+/* Appends the comma-separated levels of s to targets (capacity max). */
+int parse_targets(const char *s, double *targets, size_t *n, size_t max);
+/* Splits a comma-separated list of column names; the strings point into
+ * the modified s. */
+int parse_names(char *s, char **names, size_t *n, size_t max);
+
+/* Progress on stderr while reading a big file, when stderr is a terminal. */
+typedef struct progress {
+    const char *name;
+    int active;
+    int last_pct;
+} progress;
+void progress_cb(void *ud, uint64_t done, uint64_t total);
+void progress_end(progress *p);
+
+/* An aligned text table. */
+typedef struct text_table {
+    size_t ncols, nrows, cap;
+    char **cells; /* row-major, owned */
+    int *right;   /* per column: right-align */
+} text_table;
+int tt_init(text_table *t, size_t ncols);
+int tt_add(text_table *t, const char *const *cells);
+void tt_print(const text_table *t, FILE *fp);
+void tt_free(text_table *t);
+
+#endif

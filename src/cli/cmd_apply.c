@@ -1,0 +1,159 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* cmd_apply.c: `etacal apply`: stream new orders through a quote table,
+ * appending the promise to each. */
+#include "cli.h"
+
+#include <getopt.h>
+#include <string.h>
+
+static const char help[] =
+    "Usage: etacal apply QUOTES.csv ORDERS.csv --pred COL [OPTION]...\n"
+    "Copy every order of ORDERS.csv unchanged and append its promise in seconds:\n"
+    "'promise_s' for one target, 'promise_s_<pct>' (promise_s_90, promise_s_97.5)\n"
+    "for several.  Each order takes the most specific row of the quote table that\n"
+    "matches its key columns, else the global row.\n"
+    "\n"
+    "  --pred COL            column of predicted durations, seconds (required)\n"
+    "  --target T[,T...]     targets of the table to apply (default: all of them)\n"
+    "  --round SECONDS       round each promise up to a multiple of SECONDS (60: whole\n"
+    "                        minutes); by default promises are rounded up to the millisecond\n"
+    "  --actual COL          also report the on-time rate the promises reach on these\n"
+    "                        orders (their actual durations, where known)\n"
+    "  -o, --output FILE     write to FILE, which appears only when complete (default stdout)\n"
+    "  --delim D             comma (default), semicolon, tab or pipe; used for the\n"
+    "                        orders and for the appended columns\n"
+    "  --table-delim D       delimiter of QUOTES.csv (default comma)\n"
+    "  --bad-rows error|skip a malformed order is an error (default), or written with an\n"
+    "                        empty promise and counted\n"
+    "  -q, --quiet           no summary\n"
+    "  -h, --help            show this help and exit\n"
+    "\n"
+    "An order with an empty or NA prediction gets an empty promise and is counted.\n"
+    "The summary goes to stderr (to stdout with -o).  ORDERS.csv may be -.\n";
+
+static void pct(FILE *fp, size_t hits, size_t n)
+{
+    if (n)
+        fprintf(fp, "%.2f%% (%zu/%zu)", 100.0 * (double)hits / (double)n, hits, n);
+    else
+        fprintf(fp, "- (0/0)");
+}
+
+int cmd_apply(int argc, char **argv)
+{
+    enum { O_PRED = 256, O_TARGET, O_ROUND, O_ACTUAL, O_DELIM, O_TDELIM, O_BAD };
+    static const struct option longopts[] = {
+        {"pred", required_argument, 0, O_PRED},     {"target", required_argument, 0, O_TARGET},
+        {"round", required_argument, 0, O_ROUND},   {"actual", required_argument, 0, O_ACTUAL},
+        {"output", required_argument, 0, 'o'},      {"delim", required_argument, 0, O_DELIM},
+        {"table-delim", required_argument, 0, O_TDELIM}, {"bad-rows", required_argument, 0, O_BAD},
+        {"quiet", no_argument, 0, 'q'},             {"help", no_argument, 0, 'h'},
+        {0, 0, 0, 0}};
+    etacal_apply_opts ao = {0};
+    ao.delim = ',';
+    char tdelim = ',';
+    const char *output = NULL;
+    double targets[ETACAL_APPLY_MAX_TARGETS];
+    size_t ntargets = 0;
+    int quiet = 0, c;
+    optind = 1;
+    opterr = 0;
+    while ((c = getopt_long(argc, argv, ":o:qh", longopts, NULL)) != -1) {
+        switch (c) {
+        case O_PRED: ao.pred_col = optarg; break;
+        case O_ACTUAL: ao.actual_col = optarg; break;
+        case O_TARGET:
+            if (parse_targets(optarg, targets, &ntargets, ETACAL_APPLY_MAX_TARGETS) != 0)
+                return usage_error("apply", "--target takes on-time rates in (0,1), such as 0.9,0.95");
+            break;
+        case O_ROUND:
+            if (parse_seconds(optarg, &ao.round_s) != 0)
+                return usage_error("apply", "--round takes a number of seconds >= 0");
+            break;
+        case 'o': output = optarg; break;
+        case O_DELIM:
+            if (parse_delim(optarg, &ao.delim) != 0)
+                return usage_error("apply", "--delim must be comma, semicolon, tab or pipe");
+            break;
+        case O_TDELIM:
+            if (parse_delim(optarg, &tdelim) != 0)
+                return usage_error("apply", "--table-delim must be comma, semicolon, tab or pipe");
+            break;
+        case O_BAD:
+            if (parse_bad_rows(optarg, &ao.bad_rows) != 0)
+                return usage_error("apply", "--bad-rows must be error or skip");
+            break;
+        case 'q': quiet = 1; break;
+        case 'h': fputs(help, stdout); return 0;
+        case ':': return usage_error("apply", "option '%s' needs a value", argv[optind - 1]);
+        default: return usage_error("apply", "unknown option '%s'", argv[optind - 1]);
+        }
+    }
+    if (argc - optind != 2)
+        return usage_error("apply", "expected a quote table and an orders file");
+    if (!ao.pred_col)
+        return usage_error("apply", "--pred is required");
+    const char *table = argv[optind], *orders = argv[optind + 1];
+
+    etacal_error err;
+    etacal_error_clear(&err);
+    etacal_quotes *q = NULL;
+    etacal_outfile of = {0};
+    etacal_apply_stats st;
+    size_t sel[ETACAL_APPLY_MAX_TARGETS];
+    int rc = etacal_quotes_read_csv(table, tdelim, &q, &err);
+    if (rc)
+        return report_error(&err);
+    for (size_t i = 0; i < ntargets; i++) {
+        long ti = etacal_quotes_find_target(q, targets[i]);
+        if (ti < 0) {
+            char buf[ETACAL_NUM_BUFSZ];
+            etacal_num_format(targets[i], buf);
+            etacal_error_set(&err, ETACAL_EINVAL, table, "the quote table has no rows for target %s", buf);
+            goto fail;
+        }
+        sel[i] = (size_t)ti;
+    }
+    if (ntargets) {
+        ao.targets = sel;
+        ao.ntargets = ntargets;
+    }
+    rc = etacal_outfile_open(&of, output ? output : "-", &err);
+    if (rc)
+        goto fail;
+    rc = etacal_apply_csv(q, orders, of.fp, &ao, &st, &err);
+    if (rc == 0)
+        rc = etacal_outfile_commit(&of, &err);
+    if (rc) {
+        etacal_outfile_abort(&of);
+        goto fail;
+    }
+    if (!quiet) {
+        FILE *fp = output ? stdout : stderr;
+        fprintf(fp, "etacal apply: %s: %zu orders, %zu promised, %zu without a prediction, %zu malformed",
+                orders, st.rows, st.promised, st.missing_pred, st.bad);
+        if (q->nkeys)
+            fprintf(fp, "; %zu took a less specific row than their own segment", st.fallback);
+        putc('\n', fp);
+        if (ao.actual_col) {
+            size_t nsel = ntargets ? ntargets : q->ntargets;
+            fprintf(fp, "on time (actual <= promise) on the %zu promised orders with an actual duration:\n",
+                    st.with_actual);
+            for (size_t t = 0; t < nsel; t++) {
+                char p[ETACAL_NUM_BUFSZ];
+                etacal_percent_label(q->targets[ntargets ? sel[t] : t], p);
+                fprintf(fp, "  promise for target %s%%: ", p);
+                pct(fp, st.hits[t], st.with_actual);
+                putc('\n', fp);
+            }
+            fprintf(fp, "  bare prediction:          ");
+            pct(fp, st.bare_hits, st.with_actual);
+            putc('\n', fp);
+        }
+    }
+    etacal_quotes_destroy(q);
+    return 0;
+fail:
+    etacal_quotes_destroy(q);
+    return report_error(&err);
+}

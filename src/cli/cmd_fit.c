@@ -1,0 +1,294 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* cmd_fit.c: `etacal fit`: read calibration rows, fit the quote table,
+ * write it, and print a summary people can read. */
+#include "cli.h"
+
+#include <getopt.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define MAX_KEYS 16
+#define MAX_TARGETS ETACAL_APPLY_MAX_TARGETS
+
+static const char help[] =
+    "Usage: etacal fit CAL.csv --actual COL --pred COL [OPTION]...\n"
+    "Fit a quote table: per segment and on-time target, the buffer to add to the\n"
+    "prediction so that at least that share of orders arrives by the promise\n"
+    "(one-sided split-conformal bound).\n"
+    "\n"
+    "  --actual COL          column of actual durations, seconds (required)\n"
+    "  --pred COL            column of predicted durations, seconds (required)\n"
+    "  --by COL[,COL...]     key columns that define segments (default: one global segment)\n"
+    "  --target T[,T...]     on-time targets in (0,1) (default 0.9); repeatable\n"
+    "  --method add|ratio    add: promise = pred + buffer (default);\n"
+    "                        ratio: promise = pred * factor (predictions must be > 0)\n"
+    "  --min-rows N          a segment with fewer rows uses the global row (default 200)\n"
+    "  -o, --output FILE     write the table to FILE (atomically) and the summary to\n"
+    "                        stdout; without -o the table goes to stdout, the summary to stderr\n"
+    "  --delim D             comma (default), semicolon, tab or pipe\n"
+    "  --bad-rows error|skip malformed data rows are an error (default) or skipped and counted\n"
+    "  --max-bad-share F     with --bad-rows skip: fail if more than this share is bad (default 0.01)\n"
+    "  -q, --quiet           no summary\n"
+    "  -h, --help            show this help and exit\n"
+    "\n"
+    "Rows with a missing actual or prediction (empty, NA, NaN, null) are left out and\n"
+    "counted.  CAL.csv may be - for standard input.\n";
+
+static void fmt_pct(char *buf, size_t n, size_t hits, size_t total)
+{
+    if (total == 0)
+        snprintf(buf, n, "-");
+    else
+        snprintf(buf, n, "%.2f%%", 100.0 * (double)hits / (double)total);
+}
+
+static void print_summary(FILE *fp, const char *path, const char *pred, const etacal_table *t,
+                          const etacal_quotes *q, size_t min_rows)
+{
+    const etacal_read_stats *st = etacal_table_stats(t);
+    const etacal_accuracy *a = &q->accuracy;
+    char pct[32];
+    fprintf(fp, "etacal fit: %s\n", path);
+    fprintf(fp, "rows: %zu read, %zu used, %zu left out (missing actual or prediction), %zu malformed skipped\n",
+            st->data_rows, st->kept, st->missing, st->bad);
+    fprintf(fp, "method: %s (%s)\n", etacal_method_name(q->method),
+            q->method == ETACAL_METHOD_ADD ? "promise = prediction + buffer"
+                                           : "promise = prediction x factor");
+    fmt_pct(pct, sizeof pct, a->on_time, a->n);
+    fprintf(fp,
+            "point accuracy of '%s': RMSE %.1f s, MAE %.1f s, mean error (actual - pred) %+.1f s, "
+            "on time with no buffer %s (%zu/%zu)\n",
+            pred, a->rmse, a->mae, a->mean_error, pct, a->on_time, a->n);
+    putc('\n', fp);
+
+    size_t nk = q->nkeys, nt = q->ntargets;
+    int add = q->method == ETACAL_METHOD_ADD;
+    size_t ncols = (nk ? nk : 1) + 2 + nt * (add ? 2 : 1) + 1;
+    text_table tt;
+    if (tt_init(&tt, ncols) != 0)
+        return;
+    const char **cells = calloc(ncols, sizeof *cells);
+    char (*buf)[64] = calloc(ncols, sizeof *buf);
+    if (!cells || !buf)
+        goto out;
+    size_t c = 0;
+    for (size_t j = 0; j < nk; j++)
+        cells[c++] = q->key_names[j];
+    if (nk == 0)
+        cells[c++] = "segment";
+    cells[c++] = "n";
+    cells[c++] = "bare on-time";
+    for (size_t ti = 0; ti < nt; ti++) {
+        char p[ETACAL_NUM_BUFSZ];
+        etacal_percent_label(q->targets[ti], p);
+        snprintf(buf[c], sizeof buf[c], add ? "buffer@%s%% s" : "factor@%s%%", p);
+        cells[c] = buf[c];
+        c++;
+        if (add) {
+            snprintf(buf[c], sizeof buf[c], "min");
+            cells[c] = buf[c];
+            c++;
+        }
+    }
+    cells[c++] = "row";
+    for (size_t j = nk ? nk : 1; j < c - 1; j++)
+        tt.right[j] = 1;
+    tt_add(&tt, cells);
+    for (size_t s = 0; s < q->nsegs; s++) {
+        const etacal_segment *g = &q->segs[s];
+        c = 0;
+        for (size_t j = 0; j < nk; j++)
+            cells[c++] = g->keys[j];
+        if (nk == 0)
+            cells[c++] = "*";
+        snprintf(buf[c], sizeof buf[c], "%zu", g->n);
+        cells[c] = buf[c];
+        c++;
+        fmt_pct(buf[c], sizeof buf[c], g->bare_hits, g->n);
+        cells[c] = buf[c];
+        c++;
+        int few = 0, rank = 0;
+        for (size_t ti = 0; ti < nt; ti++) {
+            double v = g->score_q[ti];
+            few |= g->status[ti] == ETACAL_FALLBACK_FEW_ROWS;
+            rank |= g->status[ti] == ETACAL_FALLBACK_RANK;
+            if (isinf(v))
+                snprintf(buf[c], sizeof buf[c], "unbounded");
+            else
+                snprintf(buf[c], sizeof buf[c], add ? "%.1f" : "%.4f", v);
+            cells[c] = buf[c];
+            c++;
+            if (add) {
+                if (isinf(v))
+                    snprintf(buf[c], sizeof buf[c], "-");
+                else
+                    snprintf(buf[c], sizeof buf[c], "%.2f", v / 60);
+                cells[c] = buf[c];
+                c++;
+            }
+        }
+        if (s == 0)
+            snprintf(buf[c], sizeof buf[c], "global");
+        else if (few)
+            snprintf(buf[c], sizeof buf[c], "uses global (n < %zu)", min_rows);
+        else if (rank)
+            snprintf(buf[c], sizeof buf[c], "uses global for some targets (too few rows for a finite bound)");
+        else
+            snprintf(buf[c], sizeof buf[c], "own");
+        cells[c] = buf[c];
+        c++;
+        tt_add(&tt, cells);
+    }
+    tt_print(&tt, fp);
+    size_t fell = 0;
+    for (size_t s = 1; s < q->nsegs; s++)
+        for (size_t ti = 0; ti < nt; ti++)
+            if (q->segs[s].status[ti] != ETACAL_OWN_ROW) {
+                fell++;
+                break;
+            }
+    if (nk)
+        fprintf(fp, "\n%zu segments, %zu with rows of their own, %zu using the global row; table rows: %zu\n",
+                q->nsegs - 1, q->nsegs - 1 - fell, fell, q->nrows);
+out:
+    free(cells);
+    free(buf);
+    tt_free(&tt);
+}
+
+int cmd_fit(int argc, char **argv)
+{
+    enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_DELIM, O_BAD, O_MAXBAD };
+    static const struct option longopts[] = {
+        {"actual", required_argument, 0, O_ACTUAL}, {"pred", required_argument, 0, O_PRED},
+        {"by", required_argument, 0, O_BY},         {"target", required_argument, 0, O_TARGET},
+        {"method", required_argument, 0, O_METHOD}, {"min-rows", required_argument, 0, O_MINROWS},
+        {"output", required_argument, 0, 'o'},      {"delim", required_argument, 0, O_DELIM},
+        {"bad-rows", required_argument, 0, O_BAD},  {"max-bad-share", required_argument, 0, O_MAXBAD},
+        {"quiet", no_argument, 0, 'q'},             {"help", no_argument, 0, 'h'},
+        {0, 0, 0, 0}};
+    const char *actual = NULL, *pred = NULL, *output = NULL;
+    char *by = NULL;
+    char *keys[MAX_KEYS];
+    size_t nkeys = 0, ntargets = 0, min_rows = 200;
+    double targets[MAX_TARGETS];
+    int method = ETACAL_METHOD_ADD, quiet = 0;
+    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
+    int c;
+    optind = 1;
+    opterr = 0;
+    while ((c = getopt_long(argc, argv, ":o:qh", longopts, NULL)) != -1) {
+        switch (c) {
+        case O_ACTUAL: actual = optarg; break;
+        case O_PRED: pred = optarg; break;
+        case O_BY:
+            by = optarg;
+            nkeys = 0;
+            if (parse_names(by, keys, &nkeys, MAX_KEYS) != 0)
+                return usage_error("fit", "--by takes up to %d comma-separated column names", MAX_KEYS);
+            break;
+        case O_TARGET:
+            if (parse_targets(optarg, targets, &ntargets, MAX_TARGETS) != 0)
+                return usage_error("fit", "--target takes on-time rates in (0,1), such as 0.9,0.95 (at most %d)",
+                                   MAX_TARGETS);
+            break;
+        case O_METHOD:
+            method = etacal_method_parse(optarg);
+            if (method < 0)
+                return usage_error("fit", "--method must be add or ratio, not '%s'", optarg);
+            break;
+        case O_MINROWS:
+            if (parse_size(optarg, &min_rows) != 0 || min_rows == 0)
+                return usage_error("fit", "--min-rows takes a whole number >= 1");
+            break;
+        case 'o': output = optarg; break;
+        case O_DELIM:
+            if (parse_delim(optarg, &ro.delim) != 0)
+                return usage_error("fit", "--delim must be comma, semicolon, tab or pipe");
+            break;
+        case O_BAD:
+            if (parse_bad_rows(optarg, &ro.bad_rows) != 0)
+                return usage_error("fit", "--bad-rows must be error or skip");
+            break;
+        case O_MAXBAD:
+            if (parse_share(optarg, &ro.max_bad_share) != 0)
+                return usage_error("fit", "--max-bad-share takes a share in [0,1]");
+            break;
+        case 'q': quiet = 1; break;
+        case 'h': fputs(help, stdout); return 0;
+        case ':': return usage_error("fit", "option '%s' needs a value", argv[optind - 1]);
+        default: return usage_error("fit", "unknown option '%s'", argv[optind - 1]);
+        }
+    }
+    if (optind >= argc)
+        return usage_error("fit", "no calibration file given");
+    if (optind + 1 < argc)
+        return usage_error("fit", "one calibration file only ('%s' is extra)", argv[optind + 1]);
+    if (!actual || !pred)
+        return usage_error("fit", "--actual and --pred are required");
+    if (strcmp(actual, pred) == 0)
+        return usage_error("fit", "--actual and --pred name the same column");
+    static const char *reserved[] = {"target", "method", "n", "k", "offset_s", "slope"};
+    for (size_t j = 0; j < nkeys; j++) {
+        if (strcmp(keys[j], actual) == 0 || strcmp(keys[j], pred) == 0)
+            return usage_error("fit", "'%s' cannot be both a key and a duration column", keys[j]);
+        for (size_t i = 0; i < sizeof reserved / sizeof *reserved; i++)
+            if (strcmp(keys[j], reserved[i]) == 0)
+                return usage_error("fit", "a key column cannot be called '%s' (a quote-table column)", keys[j]);
+        for (size_t i = 0; i < j; i++)
+            if (strcmp(keys[i], keys[j]) == 0)
+                return usage_error("fit", "--by names '%s' twice", keys[j]);
+    }
+    if (ntargets == 0)
+        targets[ntargets++] = 0.9;
+    const char *path = argv[optind];
+
+    etacal_colspec cols[2 + MAX_KEYS];
+    unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
+    cols[0] = (etacal_colspec){actual, ETACAL_COL_NUM, flags, "duration"};
+    cols[1] = (etacal_colspec){pred, ETACAL_COL_NUM,
+                               flags | (method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u),
+                               "prediction"};
+    size_t key_cols[MAX_KEYS];
+    for (size_t j = 0; j < nkeys; j++) {
+        cols[2 + j] = (etacal_colspec){keys[j], ETACAL_COL_KEY, 0, NULL};
+        key_cols[j] = 2 + j;
+    }
+    progress pg = {path, 0, -1};
+    ro.progress = progress_cb;
+    ro.progress_ud = &pg;
+
+    etacal_error err;
+    etacal_error_clear(&err);
+    etacal_table *t = NULL;
+    etacal_quotes *q = NULL;
+    etacal_outfile of = {0};
+    int rc = etacal_table_read_csv(path, cols, 2 + nkeys, &ro, &t, &err);
+    progress_end(&pg);
+    if (rc)
+        return report_error(&err);
+    etacal_fit_opts fo = {method, targets, ntargets, min_rows};
+    rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err);
+    if (rc)
+        goto fail;
+    rc = etacal_outfile_open(&of, output ? output : "-", &err);
+    if (rc)
+        goto fail;
+    rc = etacal_quotes_write_csv(q, of.fp, &err);
+    if (rc == 0)
+        rc = etacal_outfile_commit(&of, &err);
+    if (rc) {
+        etacal_outfile_abort(&of);
+        goto fail;
+    }
+    if (!quiet)
+        print_summary(output ? stdout : stderr, path, pred, t, q, min_rows);
+    etacal_quotes_destroy(q);
+    etacal_table_destroy(t);
+    return 0;
+fail:
+    etacal_quotes_destroy(q);
+    etacal_table_destroy(t);
+    return report_error(&err);
+}

@@ -1,0 +1,49 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* main.c: the etacal command: dispatches to one function per command. */
+#include "cli.h"
+
+#include <gsl/gsl_errno.h>
+#include <string.h>
+
+static const char usage[] =
+    "Usage: etacal COMMAND [OPTION]... [FILE]...\n"
+    "Turn a delivery-time model's point predictions into promise times that\n"
+    "keep a target on-time rate.\n"
+    "\n"
+    "Commands:\n"
+    "  fit     fit a promise (quote) table from predictions and actual durations\n"
+    "  apply   add promise times to a file of new orders using a quote table\n"
+    "\n"
+    "Run 'etacal COMMAND --help' for a command's options.\n"
+    "  -h, --help     show this help and exit\n"
+    "  -V, --version  show the version and exit\n"
+    "\n"
+    "Exit status: 0 success, 1 data or runtime error, 2 usage error.\n";
+
+int main(int argc, char **argv)
+{
+    /* GSL's default error handler aborts; the library reports errors itself. */
+    gsl_set_error_handler_off();
+    if (argc < 2)
+        return usage_error(NULL, "no command given");
+    const char *cmd = argv[1];
+    int rc;
+    if (strcmp(cmd, "-h") == 0 || strcmp(cmd, "--help") == 0 || strcmp(cmd, "help") == 0) {
+        fputs(usage, stdout);
+        rc = 0;
+    } else if (strcmp(cmd, "-V") == 0 || strcmp(cmd, "--version") == 0) {
+        puts("etacal " ETACAL_VERSION);
+        rc = 0;
+    } else if (strcmp(cmd, "fit") == 0) {
+        rc = cmd_fit(argc - 1, argv + 1);
+    } else if (strcmp(cmd, "apply") == 0) {
+        rc = cmd_apply(argc - 1, argv + 1);
+    } else {
+        return usage_error(NULL, "unknown command '%s'", cmd);
+    }
+    if (fflush(stdout) != 0 || ferror(stdout)) {
+        fprintf(stderr, "etacal: write error on standard output\n");
+        return EXIT_DATA;
+    }
+    return rc;
+}

@@ -1,0 +1,215 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* opts.c: parsing the option values every command shares, error and
+ * progress reporting, and the aligned text table used by text output. */
+#include "cli.h"
+
+#include <math.h>
+#include <stdarg.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+int usage_error(const char *cmd, const char *fmt, ...)
+{
+    va_list ap;
+    fprintf(stderr, "etacal: %s%s", cmd ? cmd : "", cmd ? ": " : "");
+    va_start(ap, fmt);
+    vfprintf(stderr, fmt, ap);
+    va_end(ap);
+    fprintf(stderr, "\nTry 'etacal %s%s--help'.\n", cmd ? cmd : "", cmd ? " " : "");
+    return EXIT_USAGE;
+}
+
+int report_error(const etacal_error *err)
+{
+    if (err->where[0])
+        fprintf(stderr, "etacal: %s: %s\n", err->where, err->msg);
+    else
+        fprintf(stderr, "etacal: %s\n", err->msg);
+    return EXIT_DATA;
+}
+
+int parse_delim(const char *s, char *out)
+{
+    if (strcmp(s, "comma") == 0 || strcmp(s, ",") == 0)
+        *out = ',';
+    else if (strcmp(s, "semicolon") == 0 || strcmp(s, ";") == 0)
+        *out = ';';
+    else if (strcmp(s, "tab") == 0 || strcmp(s, "\t") == 0 || strcmp(s, "\\t") == 0)
+        *out = '\t';
+    else if (strcmp(s, "pipe") == 0 || strcmp(s, "|") == 0)
+        *out = '|';
+    else
+        return -1;
+    return 0;
+}
+
+int parse_bad_rows(const char *s, int *out)
+{
+    if (strcmp(s, "error") == 0)
+        *out = ETACAL_BAD_ROWS_ERROR;
+    else if (strcmp(s, "skip") == 0)
+        *out = ETACAL_BAD_ROWS_SKIP;
+    else
+        return -1;
+    return 0;
+}
+
+static int parse_double(const char *s, double *out)
+{
+    return etacal_num_parse(s, strlen(s), out) == ETACAL_NUM_VALUE && isfinite(*out) ? 0 : -1;
+}
+
+int parse_share(const char *s, double *out)
+{
+    return parse_double(s, out) == 0 && *out >= 0 && *out <= 1 ? 0 : -1;
+}
+
+int parse_seconds(const char *s, double *out)
+{
+    return parse_double(s, out) == 0 && *out >= 0 ? 0 : -1;
+}
+
+int parse_size(const char *s, size_t *out)
+{
+    if (!*s)
+        return -1;
+    size_t v = 0;
+    for (const char *p = s; *p; p++) {
+        if (*p < '0' || *p > '9' || v > (SIZE_MAX - 9) / 10)
+            return -1;
+        v = v * 10 + (size_t)(*p - '0');
+    }
+    *out = v;
+    return 0;
+}
+
+int parse_targets(const char *s, double *targets, size_t *n, size_t max)
+{
+    const char *p = s;
+    for (;;) {
+        const char *e = strchr(p, ',');
+        size_t len = e ? (size_t)(e - p) : strlen(p);
+        double v;
+        if (*n >= max || etacal_num_parse(p, len, &v) != ETACAL_NUM_VALUE || !(v > 0 && v < 1))
+            return -1;
+        targets[(*n)++] = v;
+        if (!e)
+            return 0;
+        p = e + 1;
+    }
+}
+
+int parse_names(char *s, char **names, size_t *n, size_t max)
+{
+    char *p = s;
+    for (;;) {
+        char *e = strchr(p, ',');
+        if (e)
+            *e = '\0';
+        if (!*p || *n >= max)
+            return -1;
+        names[(*n)++] = p;
+        if (!e)
+            return 0;
+        p = e + 1;
+    }
+}
+
+void progress_cb(void *ud, uint64_t done, uint64_t total)
+{
+    progress *p = ud;
+    if (total < (64u << 20) || !isatty(2))
+        return;
+    int pct = (int)(100.0 * (double)done / (double)total);
+    if (pct == p->last_pct)
+        return;
+    p->last_pct = pct;
+    p->active = 1;
+    fprintf(stderr, "\retacal: reading %s: %llu of %llu MB (%d%%)", p->name, (unsigned long long)(done >> 20), (unsigned long long)(total >> 20), pct);
+    fflush(stderr);
+}
+
+void progress_end(progress *p)
+{
+    if (p->active)
+        fputs("\r\033[K", stderr);
+    p->active = 0;
+}
+
+int tt_init(text_table *t, size_t ncols)
+{
+    memset(t, 0, sizeof *t);
+    t->ncols = ncols;
+    t->right = calloc(ncols, sizeof *t->right);
+    return t->right ? 0 : -1;
+}
+
+int tt_add(text_table *t, const char *const *cells)
+{
+    if (t->nrows == t->cap) {
+        size_t ncap = t->cap ? t->cap * 2 : 16;
+        char **c = realloc(t->cells, ncap * t->ncols * sizeof *c);
+        if (!c)
+            return -1;
+        t->cells = c;
+        t->cap = ncap;
+    }
+    for (size_t j = 0; j < t->ncols; j++) {
+        const char *s = cells[j] ? cells[j] : "";
+        size_t len = strlen(s);
+        char *d = malloc(len + 1);
+        if (!d)
+            return -1;
+        memcpy(d, s, len + 1);
+        t->cells[t->nrows * t->ncols + j] = d;
+    }
+    t->nrows++;
+    return 0;
+}
+
+/* Display width of UTF-8 text: code points, not bytes. */
+static size_t width(const char *s)
+{
+    size_t w = 0;
+    for (; *s; s++)
+        w += ((unsigned char)*s & 0xC0) != 0x80;
+    return w;
+}
+
+void tt_print(const text_table *t, FILE *fp)
+{
+    size_t *w = calloc(t->ncols, sizeof *w);
+    if (!w)
+        return;
+    for (size_t i = 0; i < t->nrows; i++)
+        for (size_t j = 0; j < t->ncols; j++) {
+            size_t l = width(t->cells[i * t->ncols + j]);
+            if (l > w[j])
+                w[j] = l;
+        }
+    for (size_t i = 0; i < t->nrows; i++) {
+        for (size_t j = 0; j < t->ncols; j++) {
+            const char *c = t->cells[i * t->ncols + j];
+            size_t pad = w[j] - width(c);
+            int last = j + 1 == t->ncols;
+            if (t->right[j])
+                fprintf(fp, "%*s%s", (int)pad, "", c);
+            else
+                fprintf(fp, "%s%*s", c, last ? 0 : (int)pad, "");
+            if (!last)
+                fputs("  ", fp);
+        }
+        putc('\n', fp);
+    }
+    free(w);
+}
+
+void tt_free(text_table *t)
+{
+    for (size_t i = 0; i < t->nrows * t->ncols; i++)
+        free(t->cells[i]);
+    free(t->cells);
+    free(t->right);
+    memset(t, 0, sizeof *t);
+}

@@ -1,0 +1,384 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* csv_read.c: a CSV file into typed columns (numbers as double arrays, keys
+ * dictionary-encoded), with a FILE:LINE message for every bad input.
+ *
+ * Each field is handled as libcsv delivers it: a numeric field is parsed
+ * into a one-row staging area, a key field interned in its dictionary.  Only
+ * when the record ends with the right number of fields and every value is
+ * acceptable is the staged row appended, so a bad or skipped row leaves no
+ * trace in the columns. */
+#include "internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+typedef struct column {
+    char *name;
+    int type;
+    unsigned flags;
+    const char *what;
+    double *num;
+    uint32_t *key;
+    strdict dict;
+} column;
+
+struct etacal_table {
+    char *source;
+    size_t ncols;
+    column *cols;
+    size_t rows, cap;
+    etacal_read_stats stats;
+};
+
+typedef struct reader {
+    etacal_table *t;
+    const etacal_colspec *spec;
+    const etacal_read_opts *opts;
+    const char *path;
+    etacal_error *err;
+    int header_done;
+    size_t nheader;
+    int *role;           /* file column -> table column or -1 */
+    size_t role_cap;
+    double *stage_num;   /* per table column */
+    uint32_t *stage_key;
+    unsigned char *seen; /* per table column: header matched */
+    int row_bad;         /* 0 ok, 1 missing (skip), 2 malformed */
+    char bad_msg[160];
+    int fatal;           /* an error that --bad-rows skip does not cover */
+    size_t first_col_bad;
+} reader;
+
+static void set_bad(reader *r, int severity, const char *fmt, const char *a, const char *b)
+{
+    if (r->row_bad >= severity)
+        return;
+    r->row_bad = severity;
+    snprintf(r->bad_msg, sizeof r->bad_msg, fmt, a, b);
+}
+
+static void header_field(reader *r, size_t col, const char *s, size_t len)
+{
+    if (grow_array((void **)&r->role, &r->role_cap, col + 1, sizeof *r->role) != 0) {
+        r->fatal = ETACAL_ENOMEM;
+        return;
+    }
+    r->role[col] = -1;
+    r->nheader = col + 1;
+    for (size_t i = 0; i < r->t->ncols; i++) {
+        const char *name = r->spec[i].name;
+        if (strlen(name) == len && memcmp(name, s, len) == 0) {
+            if (r->seen[i]) {
+                r->fatal = ETACAL_EPARSE;
+                snprintf(r->bad_msg, sizeof r->bad_msg, "column '%s' appears twice in the header",
+                         name);
+                return;
+            }
+            r->seen[i] = 1;
+            r->role[col] = (int)i;
+        }
+    }
+}
+
+static void data_field(reader *r, size_t col, const char *s, size_t len)
+{
+    if (col >= r->nheader)
+        return; /* counted at the end of the row */
+    int ti = r->role[col];
+    if (ti < 0)
+        return;
+    column *c = &r->t->cols[ti];
+    if (c->type == ETACAL_COL_KEY) {
+        if (len == 1 && s[0] == '*') {
+            set_bad(r, 2, "'*' is reserved for \"all values\" and cannot be a value of '%s'%s",
+                    c->name, "");
+            return;
+        }
+        if (strdict_intern(&c->dict, s, len, &r->stage_key[ti]) != 0)
+            r->fatal = ETACAL_ENOMEM;
+        return;
+    }
+    double v;
+    int k = etacal_num_parse(s, len, &v);
+    if (k == ETACAL_NUM_BAD) {
+        char shown[48];
+        snprintf(shown, sizeof shown, "%.*s%s", len > 40 ? 40 : (int)len, s, len > 40 ? "..." : "");
+        set_bad(r, 2, "column '%s' is not numeric: '%s'", c->name, shown);
+        return;
+    }
+    if (k == ETACAL_NUM_MISSING) {
+        if (c->flags & ETACAL_NUM_SKIP_MISSING)
+            set_bad(r, 1, "missing value in '%s'%s", c->name, "");
+        r->stage_num[ti] = NAN;
+        return;
+    }
+    const char *what = c->what ? c->what : "value";
+    if ((c->flags & ETACAL_NUM_FINITE) && !isfinite(v)) {
+        set_bad(r, 2, "column '%s': %s is not finite", c->name, what);
+        return;
+    }
+    if ((c->flags & ETACAL_NUM_POSITIVE) && !(v > 0)) {
+        set_bad(r, 2, "column '%s': %s must be positive", c->name, what);
+        return;
+    }
+    if ((c->flags & ETACAL_NUM_NONNEG) && v < 0) {
+        set_bad(r, 2, "column '%s': %s is negative", c->name, what);
+        return;
+    }
+    r->stage_num[ti] = v;
+}
+
+static void on_field(void *ud, size_t col, const char *s, size_t len)
+{
+    reader *r = ud;
+    if (r->fatal)
+        return;
+    if (!r->header_done)
+        header_field(r, col, s, len);
+    else
+        data_field(r, col, s, len);
+}
+
+static int append_row(reader *r)
+{
+    etacal_table *t = r->t;
+    if (t->rows == t->cap) {
+        size_t ncap = t->cap ? t->cap * 2 : 4096;
+        for (size_t i = 0; i < t->ncols; i++) {
+            column *c = &t->cols[i];
+            if (c->type == ETACAL_COL_NUM) {
+                double *p = realloc(c->num, ncap * sizeof *p);
+                if (!p)
+                    return -1;
+                c->num = p;
+            } else {
+                uint32_t *p = realloc(c->key, ncap * sizeof *p);
+                if (!p)
+                    return -1;
+                c->key = p;
+            }
+        }
+        t->cap = ncap;
+    }
+    for (size_t i = 0; i < t->ncols; i++) {
+        column *c = &t->cols[i];
+        if (c->type == ETACAL_COL_NUM)
+            c->num[t->rows] = r->stage_num[i];
+        else
+            c->key[t->rows] = r->stage_key[i];
+    }
+    t->rows++;
+    return 0;
+}
+
+static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t rawlen)
+{
+    (void)raw;
+    (void)rawlen;
+    reader *r = ud;
+    char where[128];
+    if (r->fatal) {
+        format_where(where, sizeof where, r->path, line);
+        if (r->fatal == ETACAL_ENOMEM)
+            etacal_error_set(r->err, ETACAL_ENOMEM, where, "out of memory");
+        else
+            etacal_error_set(r->err, r->fatal, where, "%s", r->bad_msg);
+        return 1;
+    }
+    if (!r->header_done) {
+        r->header_done = 1;
+        for (size_t i = 0; i < r->t->ncols; i++) {
+            if (!r->seen[i]) {
+                format_where(where, sizeof where, r->path, line);
+                etacal_error_set(r->err, ETACAL_EINVAL, where, "no column '%s' in the header",
+                                 r->spec[i].name);
+                return 1;
+            }
+        }
+        return 0;
+    }
+    etacal_read_stats *st = &r->t->stats;
+    st->data_rows++;
+    if (nfields != r->nheader) {
+        char a[32], b[64];
+        snprintf(a, sizeof a, "%zu", nfields);
+        snprintf(b, sizeof b, "%zu", r->nheader);
+        r->row_bad = 0;
+        set_bad(r, 2, "%s fields, but the header has %s", a, b);
+    }
+    int bad = r->row_bad;
+    r->row_bad = 0;
+    if (bad == 2) {
+        format_where(where, sizeof where, r->path, line);
+        if (r->opts->bad_rows != ETACAL_BAD_ROWS_SKIP) {
+            etacal_error_set(r->err, ETACAL_EPARSE, where, "%s", r->bad_msg);
+            return 1;
+        }
+        if (st->bad++ == 0) {
+            st->first_bad_line = line;
+            snprintf(st->first_bad_msg, sizeof st->first_bad_msg, "%s", r->bad_msg);
+        }
+        return 0;
+    }
+    if (bad == 1) {
+        st->missing++;
+        return 0;
+    }
+    if (append_row(r) != 0) {
+        format_where(where, sizeof where, r->path, line);
+        etacal_error_set(r->err, ETACAL_ENOMEM, where, "out of memory");
+        return 1;
+    }
+    st->kept++;
+    return 0;
+}
+
+void etacal_table_destroy(etacal_table *t)
+{
+    if (!t)
+        return;
+    for (size_t i = 0; i < t->ncols; i++) {
+        free(t->cols[i].name);
+        free(t->cols[i].num);
+        free(t->cols[i].key);
+        strdict_free(&t->cols[i].dict);
+    }
+    free(t->cols);
+    free(t->source);
+    free(t);
+}
+
+static char *dupstr(const char *s)
+{
+    size_t n = strlen(s) + 1;
+    char *d = malloc(n);
+    if (d)
+        memcpy(d, s, n);
+    return d;
+}
+
+int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t ncols,
+                          const etacal_read_opts *opts, etacal_table **out, etacal_error *err)
+{
+    static const etacal_read_opts defaults = {0};
+    int rc = ETACAL_OK;
+    reader r;
+    memset(&r, 0, sizeof r);
+    *out = NULL;
+    if (!opts)
+        opts = &defaults;
+    char delim = opts->delim ? opts->delim : ',';
+    if (delim == '"' || delim == '\n' || delim == '\r' || delim == ' ')
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "the delimiter cannot be a quote, space or newline");
+    for (size_t i = 0; i < ncols; i++)
+        for (size_t j = 0; j < i; j++)
+            if (strcmp(cols[i].name, cols[j].name) == 0)
+                return etacal_error_set(err, ETACAL_EINVAL, NULL, "column '%s' is named twice",
+                                        cols[i].name);
+
+    etacal_table *t = calloc(1, sizeof *t);
+    if (!t)
+        return etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+    t->ncols = ncols;
+    t->cols = calloc(ncols ? ncols : 1, sizeof *t->cols);
+    t->source = dupstr(path);
+    r.stage_num = calloc(ncols ? ncols : 1, sizeof *r.stage_num);
+    r.stage_key = calloc(ncols ? ncols : 1, sizeof *r.stage_key);
+    r.seen = calloc(ncols ? ncols : 1, 1);
+    if (!t->cols || !t->source || !r.stage_num || !r.stage_key || !r.seen) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+        goto done;
+    }
+    for (size_t i = 0; i < ncols; i++) {
+        column *c = &t->cols[i];
+        c->name = dupstr(cols[i].name);
+        if (!c->name) {
+            rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+            goto done;
+        }
+        c->type = cols[i].type;
+        c->flags = cols[i].flags;
+        c->what = cols[i].what;
+        strdict_init(&c->dict);
+    }
+    r.t = t;
+    r.spec = cols;
+    r.opts = opts;
+    r.path = path;
+    r.err = err;
+    csvstream_cb cb = {on_field, on_row, &r, opts->progress, opts->progress_ud};
+    rc = csvstream_run(path, delim, 0, &cb, &t->stats.bytes, err);
+    if (rc)
+        goto done;
+    if (!r.header_done) {
+        rc = etacal_error_set(err, ETACAL_EPARSE, path, "empty file: expected a header row");
+        goto done;
+    }
+    etacal_read_stats *st = &t->stats;
+    if (st->bad && (double)st->bad > opts->max_bad_share * (double)st->data_rows) {
+        char where[128];
+        format_where(where, sizeof where, path, st->first_bad_line);
+        rc = etacal_error_set(err, ETACAL_EPARSE, where,
+                              "%s (%zu of %zu data rows are malformed, more than the allowed "
+                              "share %g)",
+                              st->first_bad_msg, st->bad, st->data_rows, opts->max_bad_share);
+        goto done;
+    }
+    /* Give back the unused tail of the geometric growth. */
+    if (t->rows && t->rows < t->cap) {
+        for (size_t i = 0; i < ncols; i++) {
+            column *c = &t->cols[i];
+            if (c->type == ETACAL_COL_NUM) {
+                double *p = realloc(c->num, t->rows * sizeof *p);
+                if (p)
+                    c->num = p;
+            } else {
+                uint32_t *p = realloc(c->key, t->rows * sizeof *p);
+                if (p)
+                    c->key = p;
+            }
+        }
+        t->cap = t->rows;
+    }
+
+done:
+    free(r.role);
+    free(r.stage_num);
+    free(r.stage_key);
+    free(r.seen);
+    if (rc) {
+        etacal_table_destroy(t);
+        return rc;
+    }
+    *out = t;
+    return ETACAL_OK;
+}
+
+size_t etacal_table_rows(const etacal_table *t) { return t->rows; }
+size_t etacal_table_cols(const etacal_table *t) { return t->ncols; }
+const char *etacal_table_col_name(const etacal_table *t, size_t col) { return t->cols[col].name; }
+const char *etacal_table_source(const etacal_table *t) { return t->source; }
+const etacal_read_stats *etacal_table_stats(const etacal_table *t) { return &t->stats; }
+
+const double *etacal_table_num(const etacal_table *t, size_t col)
+{
+    return col < t->ncols && t->cols[col].type == ETACAL_COL_NUM ? t->cols[col].num : NULL;
+}
+
+const uint32_t *etacal_table_key(const etacal_table *t, size_t col)
+{
+    return col < t->ncols && t->cols[col].type == ETACAL_COL_KEY ? t->cols[col].key : NULL;
+}
+
+size_t etacal_table_key_count(const etacal_table *t, size_t col)
+{
+    return col < t->ncols && t->cols[col].type == ETACAL_COL_KEY ? t->cols[col].dict.count : 0;
+}
+
+const char *etacal_table_key_text(const etacal_table *t, size_t col, uint32_t id)
+{
+    if (col >= t->ncols || t->cols[col].type != ETACAL_COL_KEY || id >= t->cols[col].dict.count)
+        return NULL;
+    return strdict_str(&t->cols[col].dict, id);
+}

@@ -1,0 +1,287 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* csv_stream.c: libcsv over a file in chunks, with physical line numbers
+ * for messages and, for commands that copy records through, each record's
+ * exact bytes.
+ *
+ * libcsv is run in strict mode with CSV_REPALL_NL, so that every unquoted
+ * line terminator reaches the row callback: a record that ends in CRLF is
+ * reported at its CR and followed by an empty row at the LF, and a blank
+ * line is an empty row.  Counting the LFs of empty rows and of record ends,
+ * plus the LFs inside quoted fields, gives the physical line of each record. */
+#include "internal.h"
+
+#include <csv.h>
+#include <errno.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#define CHUNK (1u << 20)
+
+typedef struct {
+    const csvstream_cb *cb;
+    size_t col;        /* fields seen in the current record */
+    size_t line;       /* physical line where the current record starts */
+    size_t pending_nl; /* LFs inside quoted fields of the current record */
+    const char *raw;   /* raw mode: the current record's bytes */
+    size_t rawlen;
+    size_t rows_in_raw; /* records libcsv found in the current raw slice */
+    int stopped;
+} ctx;
+
+void format_where(char *buf, size_t size, const char *path, size_t line)
+{
+    if (line)
+        snprintf(buf, size, "%s:%zu", path, line);
+    else
+        snprintf(buf, size, "%s", path);
+}
+
+static void on_field(void *s, size_t len, void *ud)
+{
+    ctx *c = ud;
+    if (c->stopped)
+        return;
+    if (len && memchr(s, '\n', len)) {
+        const char *p = s, *e = p + len;
+        while ((p = memchr(p, '\n', (size_t)(e - p))) != NULL) {
+            c->pending_nl++;
+            p++;
+        }
+    }
+    c->cb->field(c->cb->ud, c->col++, s, len);
+}
+
+static void on_row(int term, void *ud)
+{
+    ctx *c = ud;
+    if (c->col == 0) { /* a blank line, or the LF after a CR */
+        if (term == '\n')
+            c->line++;
+        return;
+    }
+    size_t nf = c->col;
+    c->col = 0;
+    if (!c->stopped) {
+        c->rows_in_raw++;
+        if (c->cb->row(c->cb->ud, nf, c->line, c->raw, c->rawlen))
+            c->stopped = 1;
+    }
+    c->line += c->pending_nl + (term == '\n');
+    c->pending_nl = 0;
+}
+
+static int is_space(unsigned char ch) { return ch == ' '; }
+
+static int quote_error(struct csv_parser *p, const char *path, size_t line, etacal_error *err)
+{
+    char where[128];
+    format_where(where, sizeof where, path, line);
+    if (csv_error(p) == CSV_ENOMEM)
+        return etacal_error_set(err, ETACAL_ENOMEM, where, "out of memory");
+    return etacal_error_set(err, ETACAL_EPARSE, where,
+                            "malformed quoting: a quoted field must be quoted as a whole, with "
+                            "inner quotes doubled");
+}
+
+/* Feeds one whole record (raw mode) to libcsv. */
+static int feed_record(struct csv_parser *p, ctx *c, const char *rec, size_t len, const char *path,
+                       etacal_error *err)
+{
+    c->raw = rec;
+    c->rawlen = len;
+    c->rows_in_raw = 0;
+    size_t startline = c->line;
+    if (csv_parse(p, rec, len, on_field, on_row, c) != len)
+        return quote_error(p, path, startline, err);
+    if (c->rows_in_raw > 1 && !c->stopped) {
+        char where[128];
+        format_where(where, sizeof where, path, startline);
+        return etacal_error_set(err, ETACAL_EPARSE, where,
+                                "a bare carriage return ends a line; use LF or CRLF line endings");
+    }
+    return ETACAL_OK;
+}
+
+int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb, uint64_t *bytes_out,
+                  etacal_error *err)
+{
+    int rc = ETACAL_OK;
+    FILE *fp = NULL;
+    char *buf = NULL, *rec = NULL;
+    size_t reclen = 0, reccap = 0;
+    int in_quote = 0;
+    struct csv_parser p;
+    int parser_ok = 0;
+    uint64_t total = 0, done = 0;
+    ctx c = {.cb = cb, .line = 1};
+    int is_stdin = strcmp(path, "-") == 0;
+
+    if (is_stdin) {
+        fp = stdin;
+    } else {
+        fp = fopen(path, "rb");
+        if (!fp) {
+            rc = etacal_error_set(err, ETACAL_EIO, path, "cannot open: %s", strerror(errno));
+            goto done;
+        }
+    }
+    struct stat st;
+    if (fstat(fileno(fp), &st) == 0) {
+        if (S_ISDIR(st.st_mode)) {
+            rc = etacal_error_set(err, ETACAL_EIO, path, "is a directory");
+            goto done;
+        }
+        if (S_ISREG(st.st_mode))
+            total = (uint64_t)st.st_size;
+    }
+    buf = malloc(CHUNK);
+    if (!buf) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+        goto done;
+    }
+    if (csv_init(&p, CSV_STRICT | CSV_REPALL_NL | CSV_STRICT_FINI) != 0) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+        goto done;
+    }
+    parser_ok = 1;
+    csv_set_delim(&p, (unsigned char)(delim ? delim : ','));
+    csv_set_space_func(&p, is_space);
+
+    int first = 1;
+    for (;;) {
+        size_t got = fread(buf, 1, CHUNK, fp);
+        if (got == 0) {
+            if (ferror(fp)) {
+                rc = etacal_error_set(err, ETACAL_EIO, path, "read failed: %s", strerror(errno));
+                goto done;
+            }
+            break;
+        }
+        const char *data = buf;
+        size_t len = got;
+        done += got;
+        if (first) {
+            first = 0;
+            if (len >= 3 && (unsigned char)data[0] == 0xEF && (unsigned char)data[1] == 0xBB &&
+                (unsigned char)data[2] == 0xBF) {
+                data += 3;
+                len -= 3;
+            }
+        }
+        if (!raw) {
+            size_t startline = c.line;
+            if (csv_parse(&p, data, len, on_field, on_row, &c) != len) {
+                rc = quote_error(&p, path, c.line ? c.line : startline, err);
+                goto done;
+            }
+        } else {
+            size_t start = 0;
+            for (size_t i = 0; i < len && !c.stopped; i++) {
+                char ch = data[i];
+                if (ch == '"') {
+                    in_quote = !in_quote;
+                } else if (ch == '\n' && !in_quote) {
+                    const char *r = data + start;
+                    size_t rl = i + 1 - start;
+                    if (reclen) {
+                        if (grow_array((void **)&rec, &reccap, reclen + rl, 1) != 0) {
+                            rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+                            goto done;
+                        }
+                        memcpy(rec + reclen, r, rl);
+                        reclen += rl;
+                        r = rec;
+                        rl = reclen;
+                    }
+                    rc = feed_record(&p, &c, r, rl, path, err);
+                    reclen = 0;
+                    if (rc)
+                        goto done;
+                    start = i + 1;
+                }
+            }
+            if (!c.stopped && start < len) {
+                size_t rl = len - start;
+                if (grow_array((void **)&rec, &reccap, reclen + rl, 1) != 0) {
+                    rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+                    goto done;
+                }
+                memcpy(rec + reclen, data + start, rl);
+                reclen += rl;
+            }
+        }
+        if (c.stopped)
+            break;
+        if (cb->progress)
+            cb->progress(cb->progress_ud, done, total);
+    }
+    if (!c.stopped && raw && reclen) {
+        /* The last record has no line terminator; csv_fini ends it. */
+        c.raw = rec;
+        c.rawlen = reclen;
+        c.rows_in_raw = 0;
+        size_t startline = c.line;
+        if (csv_parse(&p, rec, reclen, on_field, on_row, &c) != reclen) {
+            rc = quote_error(&p, path, startline, err);
+            goto done;
+        }
+    }
+    if (!c.stopped) {
+        size_t startline = c.line;
+        if (csv_fini(&p, on_field, on_row, &c) != 0) {
+            char where[128];
+            format_where(where, sizeof where, path, startline);
+            rc = etacal_error_set(err, ETACAL_EPARSE, where, "unterminated quoted field");
+            goto done;
+        }
+    }
+    if (c.stopped)
+        rc = err && err->code ? err->code : ETACAL_EPARSE;
+
+done:
+    if (bytes_out)
+        *bytes_out = done;
+    if (parser_ok)
+        csv_free(&p);
+    free(rec);
+    free(buf);
+    if (fp && !is_stdin)
+        fclose(fp);
+    return rc;
+}
+
+void rowbuf_add(rowbuf *r, const char *s, size_t len)
+{
+    if (r->oom)
+        return;
+    if (grow_array((void **)&r->buf, &r->cap, r->len + len + 1, 1) != 0) {
+        r->oom = 1;
+        return;
+    }
+    size_t fc = r->fcap;
+    if (grow_array((void **)&r->off, &fc, r->nf + 1, sizeof *r->off) != 0) {
+        r->oom = 1;
+        return;
+    }
+    fc = r->fcap;
+    if (grow_array((void **)&r->flen, &fc, r->nf + 1, sizeof *r->flen) != 0) {
+        r->oom = 1;
+        return;
+    }
+    r->fcap = fc;
+    memcpy(r->buf + r->len, s, len);
+    r->buf[r->len + len] = '\0';
+    r->off[r->nf] = r->len;
+    r->flen[r->nf] = len;
+    r->nf++;
+    r->len += len + 1;
+}
+
+void rowbuf_free(rowbuf *r)
+{
+    free(r->buf);
+    free(r->off);
+    free(r->flen);
+    memset(r, 0, sizeof *r);
+}

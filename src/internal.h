@@ -1,0 +1,119 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* internal.h: declarations shared inside the library, not part of the API. */
+#ifndef ETACAL_INTERNAL_H
+#define ETACAL_INTERNAL_H
+
+#include "etacal/etacal.h"
+
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+
+/* Kahan-Neumaier compensated sum: long sums of durations stay exact to a
+ * few ulps whatever their order. */
+typedef struct {
+    double s, c;
+} ksum;
+
+static inline void ksum_add(ksum *k, double x)
+{
+    double t = k->s + x;
+    if ((k->s >= 0 ? k->s : -k->s) >= (x >= 0 ? x : -x))
+        k->c += (k->s - t) + x;
+    else
+        k->c += (x - t) + k->s;
+    k->s = t;
+}
+
+static inline double ksum_value(const ksum *k) { return k->s + k->c; }
+
+/* Grows *p (an array of elements of size elem with capacity *cap) so that it
+ * holds at least need elements, doubling.  Returns 0, or -1 when out of
+ * memory (then *p is unchanged). */
+int grow_array(void **p, size_t *cap, size_t need, size_t elem);
+
+/* A string dictionary: strings to dense ids 0,1,2,... in order of first
+ * appearance.  Strings live in one growing arena. */
+typedef struct strdict {
+    char *arena;
+    size_t arena_len, arena_cap;
+    size_t *offs;   /* offset of string id in arena */
+    uint32_t *lens; /* length of string id */
+    size_t count, offs_cap;
+    uint32_t *slots; /* open addressing: id + 1, 0 = empty */
+    size_t nslots;   /* power of two */
+} strdict;
+
+void strdict_init(strdict *d);
+void strdict_free(strdict *d);
+/* Returns the id of s (adding it when new) in *id; 0 or -1 out of memory. */
+int strdict_intern(strdict *d, const char *s, size_t len, uint32_t *id);
+/* Looks s up without adding it: 1 found (id in *id), 0 absent. */
+int strdict_find(const strdict *d, const char *s, size_t len, uint32_t *id);
+static inline const char *strdict_str(const strdict *d, uint32_t id) { return d->arena + d->offs[id]; }
+static inline size_t strdict_len(const strdict *d, uint32_t id) { return d->lens[id]; }
+
+/* The exact value of ceil(m * tau) for the decimal tau as the user wrote it
+ * (its shortest round-trip decimal form), so that 0.3 means 3/10 and not
+ * 0.299999999999999988898.  Returns 0, or -1 when tau has too many digits
+ * for exact arithmetic; then a long double result with a small fuzz is used
+ * and still stored. */
+int exact_ceil_mul(uint64_t m, double tau, uint64_t *out);
+
+
+/* csvstream: libcsv driven over a file in chunks, with physical line
+ * numbers, a UTF-8 byte-order mark dropped, blank lines skipped and, in raw
+ * mode, each record's exact bytes handed to the row callback.
+ *
+ * field(ud, col, s, len) is called for every field of a record (col counts
+ * from 0), then row(ud, nfields, line, raw, rawlen) once per non-blank record,
+ * line being the physical line where the record starts (1 = first line).
+ * raw/rawlen are the record's bytes including its line terminator (raw mode
+ * only, else NULL/0).  row returns 0 to go on, nonzero to stop reading (after
+ * filling the caller's error). */
+typedef struct csvstream_cb {
+    void (*field)(void *ud, size_t col, const char *s, size_t len);
+    int (*row)(void *ud, size_t nfields, size_t line, const char *raw, size_t rawlen);
+    void *ud;
+    void (*progress)(void *ud, uint64_t done, uint64_t total);
+    void *progress_ud;
+} csvstream_cb;
+
+/* Returns ETACAL_OK, the row callback's stop (ETACAL_EPARSE etc. as the
+ * callback set in err, returned as err->code), or an error of its own:
+ * I/O, an unterminated quote or malformed quoting (with FILE:LINE).  An
+ * empty input is not an error here: *bytes_out is 0 and row is never called. */
+int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb, uint64_t *bytes_out,
+                  etacal_error *err);
+
+/* "FILE:LINE" into buf. */
+void format_where(char *buf, size_t size, const char *path, size_t line);
+
+/* rowbuf: the fields of one record, copied out of libcsv's buffer, each
+ * NUL-terminated.  For readers that need a whole record at a time. */
+typedef struct rowbuf {
+    char *buf;
+    size_t len, cap;
+    size_t *off, *flen;
+    size_t nf, fcap;
+    int oom;
+} rowbuf;
+
+void rowbuf_add(rowbuf *r, const char *s, size_t len);
+static inline void rowbuf_reset(rowbuf *r) { r->len = 0; r->nf = 0; }
+static inline const char *rowbuf_get(const rowbuf *r, size_t i) { return r->buf + r->off[i]; }
+static inline size_t rowbuf_len(const rowbuf *r, size_t i) { return r->flen[i]; }
+void rowbuf_free(rowbuf *r);
+
+/* Writes one CSV field, quoted only when it must be. */
+void csv_put_field(FILE *fp, const char *s, size_t len, char delim);
+
+/* Shared by the table fitter and reader. */
+int quotes_set_targets(etacal_quotes *q, const double *targets, size_t n, etacal_error *err);
+int segment_alloc(etacal_segment *s, size_t nkeys, size_t ntargets);
+
+/* x rounded up to a multiple of 1/scale (1e3: milliseconds), allowing for
+ * decimal noise of 1e-9 units. */
+double ceil_scaled(double x, double scale);
+
+#endif

@@ -1,0 +1,192 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* numparse.c: locale-free, correctly rounded decimal parsing and shortest
+ * round-trip formatting.
+ *
+ * Most CSV numbers have few digits, and for those Clinger's fast path is
+ * exact: a mantissa below 2^53 and a power of ten up to 1e22 are both exact
+ * doubles, so one IEEE multiplication or division rounds correctly (Clinger,
+ * "How to read floating point numbers accurately", PLDI 1990).  Anything
+ * longer goes to strtod_l in the C locale, which glibc rounds correctly. */
+#define _GNU_SOURCE
+#include "internal.h"
+
+#include <locale.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <threads.h>
+
+static const double pow10_exact[23] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
+                                       1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
+                                       1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
+
+static locale_t c_locale;
+static once_flag c_locale_once = ONCE_FLAG_INIT;
+
+static void make_c_locale(void) { c_locale = newlocale(LC_ALL_MASK, "C", (locale_t)0); }
+
+static int lower_eq(const char *s, size_t len, const char *word)
+{
+    size_t n = strlen(word);
+    if (len != n)
+        return 0;
+    for (size_t i = 0; i < n; i++) {
+        char c = s[i];
+        if (c >= 'A' && c <= 'Z')
+            c = (char)(c - 'A' + 'a');
+        if (c != word[i])
+            return 0;
+    }
+    return 1;
+}
+
+static double slow_parse(const char *s, size_t len, int *ok)
+{
+    char buf[512];
+    if (len >= sizeof buf) {
+        *ok = 0;
+        return 0;
+    }
+    memcpy(buf, s, len);
+    buf[len] = '\0';
+    call_once(&c_locale_once, make_c_locale);
+    if (c_locale == (locale_t)0) {
+        *ok = 0;
+        return 0;
+    }
+    char *end;
+    double v = strtod_l(buf, &end, c_locale);
+    *ok = (end == buf + len);
+    return v;
+}
+
+int etacal_num_parse(const char *s, size_t len, double *out)
+{
+    while (len > 0 && (*s == ' ' || *s == '\t')) {
+        s++;
+        len--;
+    }
+    while (len > 0 && (s[len - 1] == ' ' || s[len - 1] == '\t'))
+        len--;
+    if (len == 0 || lower_eq(s, len, "na") || lower_eq(s, len, "nan") ||
+        lower_eq(s, len, "null")) {
+        *out = NAN;
+        return ETACAL_NUM_MISSING;
+    }
+    const char *p = s, *end = s + len;
+    int neg = 0;
+    if (*p == '+' || *p == '-') {
+        neg = (*p == '-');
+        p++;
+    }
+    if (lower_eq(p, (size_t)(end - p), "inf") || lower_eq(p, (size_t)(end - p), "infinity")) {
+        *out = neg ? -INFINITY : INFINITY;
+        return ETACAL_NUM_VALUE;
+    }
+    uint64_t mant = 0;
+    int ndig = 0;       /* significant digits kept in mant */
+    int dropped = 0;    /* nonzero digits beyond 19 */
+    int dexp = 0;       /* decimal exponent adjustment */
+    int any = 0;
+    while (p < end && *p >= '0' && *p <= '9') {
+        any = 1;
+        if (ndig < 19) {
+            if (mant || *p != '0') {
+                mant = mant * 10 + (uint64_t)(*p - '0');
+                ndig += (mant != 0);
+            }
+        } else {
+            dexp++;
+            dropped = 1;
+        }
+        p++;
+    }
+    if (p < end && *p == '.') {
+        p++;
+        while (p < end && *p >= '0' && *p <= '9') {
+            any = 1;
+            if (ndig < 19) {
+                if (mant || *p != '0') {
+                    mant = mant * 10 + (uint64_t)(*p - '0');
+                    ndig += (mant != 0);
+                }
+                dexp--;
+            } else {
+                dropped = 1;
+            }
+            p++;
+        }
+    }
+    if (!any)
+        return ETACAL_NUM_BAD;
+    if (p < end && (*p == 'e' || *p == 'E')) {
+        p++;
+        int eneg = 0;
+        if (p < end && (*p == '+' || *p == '-')) {
+            eneg = (*p == '-');
+            p++;
+        }
+        if (p == end || *p < '0' || *p > '9')
+            return ETACAL_NUM_BAD;
+        int e = 0;
+        while (p < end && *p >= '0' && *p <= '9') {
+            if (e < 100000)
+                e = e * 10 + (*p - '0');
+            p++;
+        }
+        dexp += eneg ? -e : e;
+    }
+    if (p != end)
+        return ETACAL_NUM_BAD;
+    double v;
+    if (!dropped && mant < (UINT64_C(1) << 53) && dexp >= -22 && dexp <= 22) {
+        v = (double)mant;
+        v = dexp >= 0 ? v * pow10_exact[dexp] : v / pow10_exact[-dexp];
+    } else if (mant == 0 && !dropped) {
+        v = 0.0;
+    } else {
+        int ok;
+        v = slow_parse(s, len, &ok);
+        if (!ok)
+            return ETACAL_NUM_BAD;
+        *out = v;
+        return ETACAL_NUM_VALUE;
+    }
+    *out = neg ? -v : v;
+    return ETACAL_NUM_VALUE;
+}
+
+size_t etacal_num_format(double x, char *buf)
+{
+    if (isnan(x))
+        return (size_t)snprintf(buf, ETACAL_NUM_BUFSZ, "nan");
+    if (isinf(x))
+        return (size_t)snprintf(buf, ETACAL_NUM_BUFSZ, x > 0 ? "inf" : "-inf");
+    if (x == 0)
+        return (size_t)snprintf(buf, ETACAL_NUM_BUFSZ, signbit(x) ? "-0" : "0");
+    int len = 0, prec;
+    double back;
+    for (prec = 1; prec <= 17; prec++) {
+        len = snprintf(buf, ETACAL_NUM_BUFSZ, "%.*e", prec - 1, x);
+        /* An embedder may have set a locale with a decimal comma. */
+        for (int i = 0; i < len; i++)
+            if (buf[i] == ',')
+                buf[i] = '.';
+        if (etacal_num_parse(buf, (size_t)len, &back) == ETACAL_NUM_VALUE && back == x)
+            break;
+    }
+    const char *e = strchr(buf, 'e');
+    int e10 = e ? atoi(e + 1) : 0;
+    if (e10 >= -5 && e10 < 17) {
+        /* Positional notation with just the digits needed. */
+        int decimals = prec - 1 - e10;
+        if (decimals < 0)
+            decimals = 0;
+        len = snprintf(buf, ETACAL_NUM_BUFSZ, "%.*f", decimals, x);
+        for (int i = 0; i < len; i++)
+            if (buf[i] == ',')
+                buf[i] = '.';
+    }
+    return (size_t)len;
+}

@@ -1,0 +1,534 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* quote.c: fitting a quote table by per-segment split conformal
+ * prediction, and writing it as CSV.
+ *
+ * For each segment g (a combination of key values, plus the global one) and
+ * target tau, the scores s_i of its n_g rows give the bound s_(k), k =
+ * ceil((n_g+1) tau) (Vovk et al. 2005, Mondrian conformal: the guarantee
+ * holds within each segment; Lei et al. 2018).  Scores are laid out by
+ * segment with one counting sort, so each bound is a selection inside one
+ * contiguous slice: O(n) per segment and target, no full sort. */
+#include "internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+const char *etacal_method_name(int method)
+{
+    switch (method) {
+    case ETACAL_METHOD_ADD: return "add";
+    case ETACAL_METHOD_RATIO: return "ratio";
+    default: return NULL;
+    }
+}
+
+int etacal_method_parse(const char *name)
+{
+    if (strcmp(name, "add") == 0)
+        return ETACAL_METHOD_ADD;
+    if (strcmp(name, "ratio") == 0)
+        return ETACAL_METHOD_RATIO;
+    return -1;
+}
+
+static void segment_free(etacal_segment *s, size_t nkeys)
+{
+    if (s->keys)
+        for (size_t j = 0; j < nkeys; j++)
+            free(s->keys[j]);
+    free(s->keys);
+    free(s->k);
+    free(s->score_q);
+    free(s->status);
+}
+
+void etacal_quotes_destroy(etacal_quotes *q)
+{
+    if (!q)
+        return;
+    for (size_t i = 0; i < q->nsegs; i++)
+        segment_free(&q->segs[i], q->nkeys);
+    free(q->segs);
+    if (q->key_names)
+        for (size_t j = 0; j < q->nkeys; j++)
+            free(q->key_names[j]);
+    free(q->key_names);
+    free(q->targets);
+    free(q->rows);
+    free(q);
+}
+
+long etacal_quotes_find_target(const etacal_quotes *q, double tau)
+{
+    for (size_t i = 0; i < q->ntargets; i++)
+        if (q->targets[i] == tau)
+            return (long)i;
+    return -1;
+}
+
+static char *dupn(const char *s, size_t n)
+{
+    char *d = malloc(n + 1);
+    if (d) {
+        memcpy(d, s, n);
+        d[n] = '\0';
+    }
+    return d;
+}
+
+static int cmp_dbl(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+/* Sorted distinct copy of the targets, each checked to lie in (0,1). */
+
+int quotes_set_targets(etacal_quotes *q, const double *targets, size_t n, etacal_error *err)
+{
+    if (n == 0)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "no target given");
+    q->targets = malloc(n * sizeof *q->targets);
+    if (!q->targets)
+        return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+    for (size_t i = 0; i < n; i++) {
+        if (!(targets[i] > 0 && targets[i] < 1))
+            return etacal_error_set(err, ETACAL_EINVAL, NULL,
+                                    "target must be an on-time rate in (0,1), got %g", targets[i]);
+        q->targets[i] = targets[i];
+    }
+    qsort(q->targets, n, sizeof *q->targets, cmp_dbl);
+    size_t w = 0;
+    for (size_t i = 0; i < n; i++)
+        if (w == 0 || q->targets[w - 1] != q->targets[i])
+            q->targets[w++] = q->targets[i];
+    q->ntargets = w;
+    return ETACAL_OK;
+}
+
+
+int segment_alloc(etacal_segment *s, size_t nkeys, size_t ntargets)
+{
+    memset(s, 0, sizeof *s);
+    s->keys = calloc(nkeys ? nkeys : 1, sizeof *s->keys);
+    s->k = calloc(ntargets, sizeof *s->k);
+    s->score_q = calloc(ntargets, sizeof *s->score_q);
+    s->status = calloc(ntargets, sizeof *s->status);
+    return (s->keys && s->k && s->score_q && s->status) ? 0 : -1;
+}
+
+/* Maps the mixed-radix code of a row's key ids to a dense segment number:
+ * a direct table when the code space is small, else open addressing. */
+typedef struct segmap {
+    uint32_t *direct;
+    size_t ndirect;
+    uint64_t *hkeys;
+    uint32_t *hvals; /* segment + 1; 0 empty */
+    size_t nslots, used;
+} segmap;
+
+#define DIRECT_MAX (UINT64_C(1) << 22)
+
+static int segmap_init(segmap *m, uint64_t space)
+{
+    memset(m, 0, sizeof *m);
+    if (space <= DIRECT_MAX) {
+        m->ndirect = (size_t)space;
+        m->direct = calloc(m->ndirect ? m->ndirect : 1, sizeof *m->direct);
+        return m->direct ? 0 : -1;
+    }
+    m->nslots = 1024;
+    m->hkeys = calloc(m->nslots, sizeof *m->hkeys);
+    m->hvals = calloc(m->nslots, sizeof *m->hvals);
+    return m->hkeys && m->hvals ? 0 : -1;
+}
+
+static void segmap_free(segmap *m)
+{
+    free(m->direct);
+    free(m->hkeys);
+    free(m->hvals);
+}
+
+static uint64_t mix64(uint64_t x)
+{
+    x ^= x >> 33;
+    x *= UINT64_C(0xff51afd7ed558ccd);
+    x ^= x >> 33;
+    return x;
+}
+
+static uint32_t *segmap_slot(segmap *m, uint64_t code)
+{
+    if (m->direct)
+        return &m->direct[code];
+    size_t mask = m->nslots - 1;
+    size_t i = (size_t)mix64(code) & mask;
+    while (m->hvals[i] && m->hkeys[i] != code)
+        i = (i + 1) & mask;
+    m->hkeys[i] = code;
+    return &m->hvals[i];
+}
+
+static int segmap_grow(segmap *m)
+{
+    if (m->direct || m->used * 2 < m->nslots)
+        return 0;
+    segmap n = {0};
+    n.nslots = m->nslots * 2;
+    n.hkeys = calloc(n.nslots, sizeof *n.hkeys);
+    n.hvals = calloc(n.nslots, sizeof *n.hvals);
+    if (!n.hkeys || !n.hvals) {
+        segmap_free(&n);
+        return -1;
+    }
+    for (size_t i = 0; i < m->nslots; i++)
+        if (m->hvals[i])
+            *segmap_slot(&n, m->hkeys[i]) = m->hvals[i];
+    n.used = m->used;
+    segmap_free(m);
+    *m = n;
+    return 0;
+}
+
+typedef struct sortent {
+    char **keys;
+    size_t nkeys;
+    size_t idx;
+} sortent;
+
+static int cmp_sortent(const void *a, const void *b)
+{
+    const sortent *x = a, *y = b;
+    for (size_t j = 0; j < x->nkeys; j++) {
+        int c = strcmp(x->keys[j], y->keys[j]);
+        if (c)
+            return c;
+    }
+    return 0;
+}
+
+int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
+                      const size_t *key_cols, size_t nkeys, const etacal_fit_opts *opts,
+                      etacal_quotes **out, etacal_error *err)
+{
+    int rc = ETACAL_OK;
+    uint32_t *rowseg = NULL;
+    double *scores = NULL;
+    size_t *start = NULL, *fill = NULL;
+    uint32_t *remap = NULL;
+    sortent *order = NULL;
+    segmap map = {0};
+    const uint32_t **keyids = NULL;
+    *out = NULL;
+
+    const double *y = etacal_table_num(t, actual_col);
+    const double *p = etacal_table_num(t, pred_col);
+    if (!y || !p)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "actual and prediction must be numeric columns");
+    size_t n = etacal_table_rows(t);
+    const char *src = etacal_table_source(t);
+    if (n == 0)
+        return etacal_error_set(err, ETACAL_ENUM, src, "no data rows with both an actual and a prediction");
+    if (opts->method != ETACAL_METHOD_ADD && opts->method != ETACAL_METHOD_RATIO)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "unknown method %d", opts->method);
+    size_t min_rows = opts->min_rows ? opts->min_rows : 200;
+
+    etacal_quotes *q = calloc(1, sizeof *q);
+    if (!q)
+        return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+    q->method = opts->method;
+    q->nkeys = nkeys;
+    if ((rc = quotes_set_targets(q, opts->targets, opts->ntargets, err)) != 0)
+        goto done;
+    q->key_names = calloc(nkeys ? nkeys : 1, sizeof *q->key_names);
+    keyids = calloc(nkeys ? nkeys : 1, sizeof *keyids);
+    if (!q->key_names || !keyids)
+        goto nomem;
+    uint64_t space = 1;
+    for (size_t j = 0; j < nkeys; j++) {
+        const char *name = etacal_table_col_name(t, key_cols[j]);
+        keyids[j] = etacal_table_key(t, key_cols[j]);
+        if (!keyids[j]) {
+            rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "'%s' is not a key column", name);
+            goto done;
+        }
+        q->key_names[j] = dupn(name, strlen(name));
+        if (!q->key_names[j])
+            goto nomem;
+        uint64_t c = etacal_table_key_count(t, key_cols[j]);
+        if (c == 0)
+            c = 1;
+        if (space > UINT64_MAX / c) {
+            rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "too many combinations of key values");
+            goto done;
+        }
+        space *= c;
+    }
+
+    /* 1. Segment of every row, numbered in order of first appearance (0 is
+     *    kept for the global segment). */
+    rowseg = malloc(n * sizeof *rowseg);
+    if (!rowseg || segmap_init(&map, space) != 0)
+        goto nomem;
+    size_t nseg = 1;
+    for (size_t i = 0; i < n; i++) {
+        uint64_t code = 0;
+        for (size_t j = 0; j < nkeys; j++)
+            code = code * (uint64_t)(etacal_table_key_count(t, key_cols[j])) + keyids[j][i];
+        uint32_t *slot = segmap_slot(&map, code);
+        if (*slot == 0) {
+            if (nkeys == 0) {
+                *slot = 1; /* everything is the global segment */
+            } else {
+                if (nseg >= UINT32_MAX - 1) {
+                    rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "too many segments");
+                    goto done;
+                }
+                *slot = (uint32_t)nseg++ + 1;
+                map.used++;
+                if (segmap_grow(&map) != 0)
+                    goto nomem;
+                slot = segmap_slot(&map, code);
+            }
+        }
+        rowseg[i] = *slot - 1;
+    }
+    segmap_free(&map);
+    memset(&map, 0, sizeof map);
+    if (nkeys == 0)
+        nseg = 1;
+
+    /* 2. Segments: global first, then the others sorted by key texts. */
+    q->segs = calloc(nseg, sizeof *q->segs);
+    if (!q->segs)
+        goto nomem;
+    q->nsegs = nseg;
+    for (size_t s = 0; s < nseg; s++)
+        if (segment_alloc(&q->segs[s], nkeys, q->ntargets) != 0)
+            goto nomem;
+    /* key texts from the first row of each segment */
+    unsigned char *named = calloc(nseg, 1);
+    if (!named)
+        goto nomem;
+    for (size_t j = 0; j < nkeys; j++)
+        if (!(q->segs[0].keys[j] = dupn("*", 1))) {
+            free(named);
+            goto nomem;
+        }
+    named[0] = 1;
+    for (size_t i = 0; i < n && nkeys; i++) {
+        uint32_t s = rowseg[i];
+        if (named[s])
+            continue;
+        named[s] = 1;
+        for (size_t j = 0; j < nkeys; j++) {
+            const char *txt = etacal_table_key_text(t, key_cols[j], keyids[j][i]);
+            if (!(q->segs[s].keys[j] = dupn(txt, strlen(txt)))) {
+                free(named);
+                goto nomem;
+            }
+        }
+    }
+    free(named);
+    if (nseg > 2) {
+        order = malloc((nseg - 1) * sizeof *order);
+        remap = malloc(nseg * sizeof *remap);
+        etacal_segment *sorted = malloc(nseg * sizeof *sorted);
+        if (!order || !remap || !sorted) {
+            free(sorted);
+            goto nomem;
+        }
+        for (size_t s = 1; s < nseg; s++)
+            order[s - 1] = (sortent){q->segs[s].keys, nkeys, s};
+        qsort(order, nseg - 1, sizeof *order, cmp_sortent);
+        sorted[0] = q->segs[0];
+        remap[0] = 0;
+        for (size_t s = 1; s < nseg; s++) {
+            sorted[s] = q->segs[order[s - 1].idx];
+            remap[order[s - 1].idx] = (uint32_t)s;
+        }
+        free(q->segs);
+        q->segs = sorted;
+        for (size_t i = 0; i < n; i++)
+            rowseg[i] = remap[rowseg[i]];
+    }
+
+    /* 3. Scores laid out by segment (counting sort), accuracy on the way. */
+    start = calloc(nseg + 1, sizeof *start);
+    fill = calloc(nseg, sizeof *fill);
+    scores = malloc(n * sizeof *scores);
+    if (!start || !fill || !scores)
+        goto nomem;
+    for (size_t i = 0; i < n; i++)
+        start[rowseg[i] + 1]++;
+    for (size_t s = 0; s < nseg; s++)
+        start[s + 1] += start[s];
+    ksum sq = {0, 0}, ab = {0, 0}, me = {0, 0};
+    size_t on_time = 0;
+    for (size_t i = 0; i < n; i++) {
+        double a = y[i], pr = p[i];
+        if (!isfinite(a) || !isfinite(pr)) {
+            rc = etacal_error_set(err, ETACAL_EINVAL, src, "non-finite actual or prediction in row %zu", i + 1);
+            goto done;
+        }
+        double s;
+        if (q->method == ETACAL_METHOD_RATIO) {
+            if (!(pr > 0)) {
+                rc = etacal_error_set(err, ETACAL_EINVAL, src,
+                                      "method ratio needs predictions > 0 (data row %zu has %g)", i + 1, pr);
+                goto done;
+            }
+            s = a / pr;
+        } else {
+            s = a - pr;
+        }
+        double e = a - pr;
+        ksum_add(&sq, e * e);
+        ksum_add(&ab, fabs(e));
+        ksum_add(&me, e);
+        int hit = a <= pr;
+        on_time += (size_t)hit;
+        uint32_t g = rowseg[i];
+        q->segs[g].bare_hits += (size_t)hit;
+        scores[start[g] + fill[g]++] = s;
+    }
+    free(rowseg);
+    rowseg = NULL;
+    q->accuracy.n = n;
+    q->accuracy.rmse = sqrt(ksum_value(&sq) / (double)n);
+    q->accuracy.mae = ksum_value(&ab) / (double)n;
+    q->accuracy.mean_error = ksum_value(&me) / (double)n;
+    q->accuracy.on_time = on_time;
+
+    /* 4. Bounds: each segment inside its slice first, the global segment
+     *    over all scores last (its selection reorders across slices).  With
+     *    no keys the only segment is the global one. */
+    size_t global_hits = 0;
+    for (size_t s = 0; s < nseg; s++)
+        global_hits += q->segs[s].bare_hits;
+    for (size_t s = 1; s < nseg; s++) {
+        etacal_segment *g = &q->segs[s];
+        g->n = start[s + 1] - start[s];
+        for (size_t ti = 0; ti < q->ntargets; ti++) {
+            g->score_q[ti] = etacal_conformal_upper(scores + start[s], g->n, q->targets[ti], &g->k[ti]);
+            g->status[ti] = g->n < min_rows      ? ETACAL_FALLBACK_FEW_ROWS
+                            : g->k[ti] > g->n ? ETACAL_FALLBACK_RANK
+                                              : ETACAL_OWN_ROW;
+        }
+    }
+    etacal_segment *gl = &q->segs[0];
+    gl->n = n;
+    gl->bare_hits = global_hits;
+    for (size_t ti = 0; ti < q->ntargets; ti++) {
+        gl->score_q[ti] = etacal_conformal_upper(scores, n, q->targets[ti], &gl->k[ti]);
+        gl->status[ti] = ETACAL_OWN_ROW;
+        if (gl->k[ti] > n) {
+            rc = etacal_error_set(err, ETACAL_ENUM, src,
+                                  "only %zu rows: a promise for target %g needs at least %zu "
+                                  "calibration rows (rank ceil((n+1)*tau) must not exceed n)",
+                                  n, q->targets[ti], etacal_conformal_min_n(q->targets[ti]));
+            goto done;
+        }
+    }
+
+    /* 5. The rows of the table. */
+    size_t nrows = 0;
+    for (size_t s = 0; s < nseg; s++)
+        for (size_t ti = 0; ti < q->ntargets; ti++)
+            nrows += q->segs[s].status[ti] == ETACAL_OWN_ROW;
+    q->rows = calloc(nrows ? nrows : 1, sizeof *q->rows);
+    if (!q->rows)
+        goto nomem;
+    for (size_t s = 0; s < nseg; s++) {
+        const etacal_segment *g = &q->segs[s];
+        for (size_t ti = 0; ti < q->ntargets; ti++) {
+            if (g->status[ti] != ETACAL_OWN_ROW)
+                continue;
+            etacal_quote *r = &q->rows[q->nrows++];
+            r->seg = s;
+            r->target = ti;
+            r->method = q->method;
+            r->n = g->n;
+            r->k = g->k[ti];
+            /* Rounded up, never down, so the guarantee survives: the
+             * offset to the millisecond, a factor to 1e-6. */
+            if (q->method == ETACAL_METHOD_ADD) {
+                r->offset_s = ceil_scaled(g->score_q[ti], 1e3);
+                r->slope = 1;
+            } else {
+                r->offset_s = 0;
+                r->slope = ceil_scaled(g->score_q[ti], 1e6);
+            }
+        }
+    }
+    goto done;
+
+nomem:
+    rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+done:
+    segmap_free(&map);
+    free(rowseg);
+    free(scores);
+    free(start);
+    free(fill);
+    free(remap);
+    free(order);
+    free(keyids);
+    if (rc) {
+        etacal_quotes_destroy(q);
+        return rc;
+    }
+    *out = q;
+    return ETACAL_OK;
+}
+
+/* Writes s as one CSV field, quoted only when it must be. */
+
+void csv_put_field(FILE *fp, const char *s, size_t len, char delim)
+{
+    int need = len > 0 && (s[0] == ' ' || s[len - 1] == ' ');
+    for (size_t i = 0; i < len && !need; i++)
+        need = s[i] == delim || s[i] == '"' || s[i] == '\n' || s[i] == '\r';
+    if (!need) {
+        fwrite(s, 1, len, fp);
+        return;
+    }
+    putc('"', fp);
+    for (size_t i = 0; i < len; i++) {
+        if (s[i] == '"')
+            putc('"', fp);
+        putc(s[i], fp);
+    }
+    putc('"', fp);
+}
+
+int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
+{
+    char num[ETACAL_NUM_BUFSZ];
+    for (size_t j = 0; j < q->nkeys; j++) {
+        csv_put_field(fp, q->key_names[j], strlen(q->key_names[j]), ',');
+        putc(',', fp);
+    }
+    fputs("target,method,n,k,offset_s,slope\n", fp);
+    for (size_t r = 0; r < q->nrows; r++) {
+        const etacal_quote *row = &q->rows[r];
+        const etacal_segment *g = &q->segs[row->seg];
+        for (size_t j = 0; j < q->nkeys; j++) {
+            csv_put_field(fp, g->keys[j], strlen(g->keys[j]), ',');
+            putc(',', fp);
+        }
+        etacal_num_format(q->targets[row->target], num);
+        fprintf(fp, "%s,%s,%zu,%zu,", num, etacal_method_name(row->method), row->n, row->k);
+        etacal_num_format(row->offset_s, num);
+        fputs(num, fp);
+        putc(',', fp);
+        etacal_num_format(row->slope, num);
+        fputs(num, fp);
+        putc('\n', fp);
+    }
+    if (ferror(fp))
+        return etacal_error_set(err, ETACAL_EIO, NULL, "write failed");
+    return ETACAL_OK;
+}

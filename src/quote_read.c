@@ -1,0 +1,368 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* quote_read.c: reading a quote table back from CSV and checking that it
+ * can be applied: required columns, finite numbers, targets in (0,1), one
+ * method, no duplicate rows, a global row for every target, and key levels
+ * of the form (values..., *, ...*). */
+#include "internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+typedef struct qrow {
+    uint32_t seg;
+    double target;
+    int method;
+    size_t n, k, line;
+    double offset_s, slope;
+} qrow;
+
+typedef struct qreader {
+    const char *path;
+    etacal_error *err;
+    rowbuf rb;
+    int header_done;
+    size_t nfields;
+    size_t nkeys;
+    long c_target, c_method, c_n, c_k, c_offset, c_slope;
+    char **key_names;
+    strdict segs; /* joined key texts (unit separator between) -> segment */
+    rowbuf joined;
+    qrow *rows;
+    size_t nrows, cap;
+    int method;
+} qreader;
+
+static void on_field(void *ud, size_t col, const char *s, size_t len)
+{
+    (void)col;
+    rowbuf_add(&((qreader *)ud)->rb, s, len);
+}
+
+static int fail(qreader *r, size_t line, int code, const char *msg, const char *arg)
+{
+    char where[128];
+    format_where(where, sizeof where, r->path, line);
+    etacal_error_set(r->err, code, where, msg, arg);
+    return 1;
+}
+
+static int header(qreader *r, size_t line)
+{
+    rowbuf *b = &r->rb;
+    r->c_target = r->c_method = r->c_n = r->c_k = r->c_offset = r->c_slope = -1;
+    for (size_t i = 0; i < b->nf; i++) {
+        const char *h = rowbuf_get(b, i);
+        long *slot = NULL;
+        if (strcmp(h, "target") == 0)
+            slot = &r->c_target;
+        else if (strcmp(h, "method") == 0)
+            slot = &r->c_method;
+        else if (strcmp(h, "n") == 0)
+            slot = &r->c_n;
+        else if (strcmp(h, "k") == 0)
+            slot = &r->c_k;
+        else if (strcmp(h, "offset_s") == 0)
+            slot = &r->c_offset;
+        else if (strcmp(h, "slope") == 0)
+            slot = &r->c_slope;
+        if (slot) {
+            if (*slot >= 0)
+                return fail(r, line, ETACAL_EPARSE, "column '%s' appears twice in the header", h);
+            *slot = (long)i;
+        }
+    }
+    static const char *req[] = {"target", "method", "n", "offset_s", "slope"};
+    long got[] = {r->c_target, r->c_method, r->c_n, r->c_offset, r->c_slope};
+    for (size_t i = 0; i < 5; i++)
+        if (got[i] < 0)
+            return fail(r, line, ETACAL_EPARSE, "not a quote table: no column '%s' in the header",
+                        req[i]);
+    r->nkeys = (size_t)r->c_target;
+    for (size_t i = 0; i < 5; i++)
+        if (got[i] < r->c_target)
+            return fail(r, line, ETACAL_EPARSE, "column '%s' must come after 'target' (the key columns come first)",
+                        req[i]);
+    r->key_names = calloc(r->nkeys ? r->nkeys : 1, sizeof *r->key_names);
+    if (!r->key_names)
+        return fail(r, line, ETACAL_ENOMEM, "out of memory%s", "");
+    for (size_t j = 0; j < r->nkeys; j++) {
+        for (size_t i = 0; i < j; i++)
+            if (strcmp(rowbuf_get(b, i), rowbuf_get(b, j)) == 0)
+                return fail(r, line, ETACAL_EPARSE, "key column '%s' appears twice", rowbuf_get(b, j));
+        size_t len = rowbuf_len(b, j);
+        r->key_names[j] = malloc(len + 1);
+        if (!r->key_names[j])
+            return fail(r, line, ETACAL_ENOMEM, "out of memory%s", "");
+        memcpy(r->key_names[j], rowbuf_get(b, j), len + 1);
+    }
+    r->nfields = b->nf;
+    return 0;
+}
+
+static int number(qreader *r, size_t line, long col, const char *name, double *v)
+{
+    const char *s = rowbuf_get(&r->rb, (size_t)col);
+    int k = etacal_num_parse(s, rowbuf_len(&r->rb, (size_t)col), v);
+    if (k != ETACAL_NUM_VALUE || !isfinite(*v))
+        return fail(r, line, ETACAL_EPARSE, "'%s' must be a finite number", name);
+    return 0;
+}
+
+static int count(qreader *r, size_t line, long col, const char *name, size_t *out)
+{
+    double v;
+    if (number(r, line, col, name, &v))
+        return 1;
+    if (!(v >= 0 && v == floor(v) && v < 9e15))
+        return fail(r, line, ETACAL_EPARSE, "'%s' must be a whole number >= 0", name);
+    *out = (size_t)v;
+    return 0;
+}
+
+static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t rawlen)
+{
+    (void)raw;
+    (void)rawlen;
+    qreader *r = ud;
+    rowbuf *b = &r->rb;
+    int stop = 0;
+    if (b->oom) {
+        stop = fail(r, line, ETACAL_ENOMEM, "out of memory%s", "");
+        goto out;
+    }
+    if (!r->header_done) {
+        r->header_done = 1;
+        stop = header(r, line);
+        goto out;
+    }
+    if (nfields != r->nfields) {
+        char msg[96];
+        snprintf(msg, sizeof msg, "%zu fields, but the header has %zu", nfields, r->nfields);
+        stop = fail(r, line, ETACAL_EPARSE, "%s", msg);
+        goto out;
+    }
+    qrow q = {0};
+    q.line = line;
+    if ((stop = number(r, line, r->c_target, "target", &q.target)))
+        goto out;
+    if (!(q.target > 0 && q.target < 1)) {
+        stop = fail(r, line, ETACAL_EPARSE, "target must be an on-time rate in (0,1)%s", "");
+        goto out;
+    }
+    q.method = etacal_method_parse(rowbuf_get(b, (size_t)r->c_method));
+    if (q.method < 0) {
+        stop = fail(r, line, ETACAL_EPARSE, "unknown method '%s' (expected add or ratio)",
+                    rowbuf_get(b, (size_t)r->c_method));
+        goto out;
+    }
+    if (r->nrows && q.method != r->method) {
+        stop = fail(r, line, ETACAL_EPARSE, "method '%s' differs from the table's first row",
+                    rowbuf_get(b, (size_t)r->c_method));
+        goto out;
+    }
+    r->method = q.method;
+    if ((stop = count(r, line, r->c_n, "n", &q.n)))
+        goto out;
+    if (r->c_k >= 0 && (stop = count(r, line, r->c_k, "k", &q.k)))
+        goto out;
+    if ((stop = number(r, line, r->c_offset, "offset_s", &q.offset_s)) ||
+        (stop = number(r, line, r->c_slope, "slope", &q.slope)))
+        goto out;
+    if (q.slope < 0) {
+        stop = fail(r, line, ETACAL_EPARSE, "slope must not be negative%s", "");
+        goto out;
+    }
+    /* Key level: some values, then only "*". */
+    int star = 0;
+    rowbuf_reset(&r->joined);
+    size_t jl = 0;
+    for (size_t j = 0; j < r->nkeys; j++) {
+        int is_star = strcmp(rowbuf_get(b, j), "*") == 0;
+        if (star && !is_star) {
+            stop = fail(r, line, ETACAL_EPARSE,
+                        "key '%s' has a value after a '*' key: levels go from the last key to the first",
+                        r->key_names[j]);
+            goto out;
+        }
+        star |= is_star;
+        jl += rowbuf_len(b, j) + 1;
+    }
+    /* Joined key: the fields with a unit separator after each. */
+    char small[512];
+    char *jk = jl <= sizeof small ? small : malloc(jl);
+    if (!jk) {
+        stop = fail(r, line, ETACAL_ENOMEM, "out of memory%s", "");
+        goto out;
+    }
+    size_t w = 0;
+    for (size_t j = 0; j < r->nkeys; j++) {
+        memcpy(jk + w, rowbuf_get(b, j), rowbuf_len(b, j));
+        w += rowbuf_len(b, j);
+        jk[w++] = '\x1f';
+    }
+    uint32_t seg;
+    int bad = strdict_intern(&r->segs, jk, w, &seg);
+    if (jk != small)
+        free(jk);
+    if (bad || grow_array((void **)&r->rows, &r->cap, r->nrows + 1, sizeof *r->rows) != 0) {
+        stop = fail(r, line, ETACAL_ENOMEM, "out of memory%s", "");
+        goto out;
+    }
+    q.seg = seg;
+    r->rows[r->nrows++] = q;
+out:
+    rowbuf_reset(b);
+    return stop;
+}
+
+static int cmp_qrow(const void *a, const void *b)
+{
+    const qrow *x = a, *y = b;
+    if (x->seg != y->seg)
+        return (x->seg > y->seg) - (x->seg < y->seg);
+    return (x->target > y->target) - (x->target < y->target);
+}
+
+int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, etacal_error *err)
+{
+    int rc;
+    qreader r;
+    memset(&r, 0, sizeof r);
+    r.path = path;
+    r.err = err;
+    strdict_init(&r.segs);
+    *out = NULL;
+    etacal_quotes *q = calloc(1, sizeof *q);
+    if (!q)
+        return etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+    csvstream_cb cb = {on_field, on_row, &r, NULL, NULL};
+    rc = csvstream_run(path, delim ? delim : ',', 0, &cb, NULL, err);
+    if (rc)
+        goto done;
+    if (!r.header_done) {
+        rc = etacal_error_set(err, ETACAL_EPARSE, path, "empty file: expected a quote table");
+        goto done;
+    }
+    if (r.nrows == 0) {
+        rc = etacal_error_set(err, ETACAL_EPARSE, path, "the quote table has no rows");
+        goto done;
+    }
+    q->nkeys = r.nkeys;
+    q->key_names = r.key_names;
+    r.key_names = NULL;
+    q->method = r.method;
+    /* targets */
+    double *tv = malloc(r.nrows * sizeof *tv);
+    if (!tv) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+        goto done;
+    }
+    for (size_t i = 0; i < r.nrows; i++)
+        tv[i] = r.rows[i].target;
+    rc = quotes_set_targets(q, tv, r.nrows, err);
+    free(tv);
+    if (rc)
+        goto done;
+    /* segments: the dictionary order, with the global segment moved first */
+    size_t nseg = r.segs.count;
+    uint32_t global = UINT32_MAX;
+    for (uint32_t s = 0; s < nseg; s++) {
+        const char *k = strdict_str(&r.segs, s);
+        size_t len = strdict_len(&r.segs, s), j;
+        for (j = 0; j + 1 < len && k[j] == '*' && k[j + 1] == '\x1f'; j += 2)
+            ;
+        if (j == len)
+            global = s;
+    }
+    if (global == UINT32_MAX) {
+        rc = etacal_error_set(err, ETACAL_EPARSE, path, "no global row (every key '*')");
+        goto done;
+    }
+    q->segs = calloc(nseg, sizeof *q->segs);
+    if (!q->segs) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+        goto done;
+    }
+    q->nsegs = nseg;
+    for (size_t i = 0; i < r.nrows; i++) {
+        uint32_t s = r.rows[i].seg;
+        r.rows[i].seg = s == global ? 0 : (s < global ? s + 1 : s);
+    }
+    for (uint32_t s = 0; s < nseg; s++) {
+        uint32_t d = s == global ? 0 : (s < global ? s + 1 : s);
+        etacal_segment *g = &q->segs[d];
+        if (segment_alloc(g, q->nkeys, q->ntargets) != 0) {
+            rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+            goto done;
+        }
+        const char *k = strdict_str(&r.segs, s);
+        for (size_t j = 0; j < q->nkeys; j++) {
+            const char *e = memchr(k, '\x1f', strlen(k));
+            size_t len = (size_t)(e - k);
+            g->keys[j] = malloc(len + 1);
+            if (!g->keys[j]) {
+                rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+                goto done;
+            }
+            memcpy(g->keys[j], k, len);
+            g->keys[j][len] = '\0';
+            k = e + 1;
+        }
+        for (size_t ti = 0; ti < q->ntargets; ti++) {
+            g->status[ti] = ETACAL_FALLBACK_FEW_ROWS;
+            g->score_q[ti] = NAN;
+        }
+    }
+    qsort(r.rows, r.nrows, sizeof *r.rows, cmp_qrow);
+    q->rows = calloc(r.nrows, sizeof *q->rows);
+    if (!q->rows) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+        goto done;
+    }
+    for (size_t i = 0; i < r.nrows; i++) {
+        const qrow *x = &r.rows[i];
+        if (i && x->seg == r.rows[i - 1].seg && x->target == r.rows[i - 1].target) {
+            char where[128];
+            format_where(where, sizeof where, path, x->line > r.rows[i - 1].line ? x->line : r.rows[i - 1].line);
+            rc = etacal_error_set(err, ETACAL_EPARSE, where, "duplicate row for the same segment and target %g",
+                                  x->target);
+            goto done;
+        }
+        etacal_quote *o = &q->rows[q->nrows++];
+        o->seg = x->seg;
+        o->target = (size_t)etacal_quotes_find_target(q, x->target);
+        o->method = x->method;
+        o->n = x->n;
+        o->k = x->k;
+        o->offset_s = x->offset_s;
+        o->slope = x->slope;
+        etacal_segment *g = &q->segs[x->seg];
+        g->n = x->n;
+        g->k[o->target] = x->k;
+        g->status[o->target] = ETACAL_OWN_ROW;
+        g->score_q[o->target] = x->method == ETACAL_METHOD_ADD ? x->offset_s : x->slope;
+    }
+    for (size_t ti = 0; ti < q->ntargets; ti++)
+        if (q->segs[0].status[ti] != ETACAL_OWN_ROW) {
+            rc = etacal_error_set(err, ETACAL_EPARSE, path, "no global row (every key '*') for target %g",
+                                  q->targets[ti]);
+            goto done;
+        }
+
+done:
+    rowbuf_free(&r.rb);
+    rowbuf_free(&r.joined);
+    strdict_free(&r.segs);
+    free(r.rows);
+    if (r.key_names)
+        for (size_t j = 0; j < r.nkeys; j++)
+            free(r.key_names[j]);
+    free(r.key_names);
+    if (rc) {
+        etacal_quotes_destroy(q);
+        return rc;
+    }
+    *out = q;
+    return ETACAL_OK;
+}
