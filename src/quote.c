@@ -223,14 +223,14 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     const uint32_t **keyids = NULL;
     *out = NULL;
 
-    const double *y = etacal_table_num(t, actual_col);
-    const double *p = etacal_table_num(t, pred_col);
-    if (!y || !p)
-        return etacal_error_set(err, ETACAL_EINVAL, NULL, "actual and prediction must be numeric columns");
     size_t n = etacal_table_rows(t);
     const char *src = etacal_table_source(t);
     if (n == 0)
         return etacal_error_set(err, ETACAL_ENUM, src, "no data rows with both an actual and a prediction");
+    const double *y = etacal_table_num(t, actual_col);
+    const double *p = etacal_table_num(t, pred_col);
+    if (!y || !p)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "actual and prediction must be numeric columns");
     if (opts->method != ETACAL_METHOD_ADD && opts->method != ETACAL_METHOD_RATIO)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "unknown method %d", opts->method);
     size_t min_rows = opts->min_rows ? opts->min_rows : 200;

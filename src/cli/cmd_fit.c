@@ -108,11 +108,17 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
         fmt_pct(buf[c], sizeof buf[c], g->bare_hits, g->n);
         cells[c] = buf[c];
         c++;
-        int few = 0, rank = 0;
+        int few = 0;
+        char rankmsg[48] = "";
         for (size_t ti = 0; ti < nt; ti++) {
             double v = g->score_q[ti];
             few |= g->status[ti] == ETACAL_FALLBACK_FEW_ROWS;
-            rank |= g->status[ti] == ETACAL_FALLBACK_RANK;
+            if (g->status[ti] == ETACAL_FALLBACK_RANK) {
+                char p[ETACAL_NUM_BUFSZ];
+                etacal_percent_label(q->targets[ti], p);
+                size_t l = strlen(rankmsg);
+                snprintf(rankmsg + l, sizeof rankmsg - l, "%s%s%%", l ? "," : "", p);
+            }
             if (isinf(v))
                 snprintf(buf[c], sizeof buf[c], "unbounded");
             else
@@ -132,8 +138,8 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
             snprintf(buf[c], sizeof buf[c], "global");
         else if (few)
             snprintf(buf[c], sizeof buf[c], "uses global (n < %zu)", min_rows);
-        else if (rank)
-            snprintf(buf[c], sizeof buf[c], "uses global for some targets (too few rows for a finite bound)");
+        else if (rankmsg[0])
+            snprintf(buf[c], sizeof buf[c], "uses global at %s (k > n)", rankmsg);
         else
             snprintf(buf[c], sizeof buf[c], "own");
         cells[c] = buf[c];
@@ -149,8 +155,8 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
                 break;
             }
     if (nk)
-        fprintf(fp, "\n%zu segments, %zu with rows of their own, %zu using the global row; table rows: %zu\n",
-                q->nsegs - 1, q->nsegs - 1 - fell, fell, q->nrows);
+        fprintf(fp, "\n%zu segment%s: %zu with rows of their own for every target, %zu using the global row for some; table rows: %zu\n",
+                q->nsegs - 1, q->nsegs == 2 ? "" : "s", q->nsegs - 1 - fell, fell, q->nrows);
 out:
     free(cells);
     free(buf);
