@@ -54,7 +54,7 @@ $(CITYGEN): examples/citygen.c
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) -o $@ $< -lm
 
-$(BUILD)/tests/%: tests/unit/%.c tests/unit/testutil.h $(LIB)
+$(BUILD)/tests/%: tests/unit/%.c $(wildcard tests/unit/*.h) $(LIB)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(CMOCKA_CFLAGS) -Itests/unit -o $@ $< $(LIB) $(CMOCKA_LIBS) $(LDLIBS_ALL)
 

@@ -1,0 +1,70 @@
+# SPDX-License-Identifier: GPL-3.0-or-later
+"""etacal fit end to end against numpy (Debian's python3-numpy): per segment
+and globally, the buffer must be the k-th smallest score with
+k = ceil((n+1) tau) (Lei et al. 2018), computed by numpy as the
+inverted_cdf quantile at tau of the scores with +inf appended, and small
+segments must fall back to the global row exactly as the rule says."""
+import csv
+import math
+import os
+import tempfile
+from fractions import Fraction
+
+from refutil import need, run, etacal
+
+np = need("numpy", "python3-numpy")
+
+rng = np.random.default_rng(7)
+n = 20000
+zones = np.array(["north", "south", "east", "west", "river"])
+bands = np.array(["lunch", "dinner", "late"])
+zi = rng.integers(0, len(zones), n)
+bi = rng.integers(0, len(bands), n)
+# a thin segment: most 'late' rows of 'river' are dropped
+keep = ~((zi == 4) & (bi == 2) & (rng.random(n) < 0.97))
+zi, bi = zi[keep], bi[keep]
+m = len(zi)
+pred = np.round(rng.uniform(600, 2400, m), 1)
+actual = np.round(pred * rng.lognormal(0.05 * zi, 0.2 + 0.05 * bi), 1)
+
+tmp = tempfile.mkdtemp()
+cal = os.path.join(tmp, "cal.csv")
+with open(cal, "w", newline="") as f:
+    w = csv.writer(f)
+    w.writerow(["zone", "band", "pred_s", "actual_s"])
+    for i in range(m):
+        w.writerow([zones[zi[i]], bands[bi[i]], repr(float(pred[i])), repr(float(actual[i]))])
+
+targets = ["0.8", "0.9", "0.95"]
+for method in ("add", "ratio"):
+    out = run([etacal(), "fit", cal, "--actual", "actual_s", "--pred", "pred_s", "--by", "zone,band",
+               "--target", ",".join(targets), "--method", method, "--min-rows", "150", "-q"])
+    rows = list(csv.DictReader(out.splitlines()))
+    table = {(r["zone"], r["band"], r["target"]): r for r in rows}
+    checked = 0
+    segs = [("*", "*", np.ones(m, bool))]
+    for a, z in enumerate(zones):
+        for b, bd in enumerate(bands):
+            segs.append((z, bd, (zi == a) & (bi == b)))
+    for z, bd, mask in segs:
+        s = actual[mask] - pred[mask] if method == "add" else actual[mask] / pred[mask]
+        ns = len(s)
+        for t in targets:
+            k = math.ceil((ns + 1) * Fraction(t))
+            row = table.get((z, bd, t))
+            if z != "*" and (ns < 150 or k > ns):
+                assert row is None, f"{method} {z}/{bd} n={ns} should fall back"
+                continue
+            assert row is not None, f"{method} {z}/{bd} t={t} missing"
+            want = float(np.quantile(np.append(s, np.inf), float(t), method="inverted_cdf"))
+            assert want == np.sort(s)[k - 1]
+            col = "offset_s" if method == "add" else "slope"
+            got = float(row[col])
+            scale = 1e3 if method == "add" else 1e6
+            # etacal rounds the published bound up to 1 ms (1e-6 for a factor)
+            assert want <= got + 1e-9 and got - want < 1 / scale + 1e-9, \
+                f"{method} {z}/{bd} t={t}: etacal {got}, numpy {want}"
+            assert int(row["n"]) == ns and int(row["k"]) == k
+            checked += 1
+    assert checked >= 40
+    print(f"method {method}: {checked} (segment, target) bounds agree with numpy")

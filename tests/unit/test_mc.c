@@ -1,0 +1,161 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* test_mc.c: Monte-Carlo check of the split-conformal guarantee.
+ *
+ * Theorem (Vovk et al. 2005; Lei et al. 2018, Thm 2.2 and its one-sided
+ * form): with n exchangeable calibration scores and k = ceil((n+1) tau),
+ * P(S_new <= s_(k)) >= tau, and for continuous scores it equals k/(n+1) <=
+ * tau + 1/(n+1).  With scores drawn from Exp(1), the coverage of one
+ * calibration draw is exactly F(s_(k)) = 1 - exp(-s_(k)), so the mean of
+ * that over repetitions estimates the guarantee with little noise.  Each
+ * check allows four Monte-Carlo standard errors. */
+#define _GNU_SOURCE
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <cmocka.h>
+
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <unistd.h>
+
+#include "etacal/etacal.h"
+
+typedef struct mc {
+    double mean, se;
+    size_t k;
+} mc;
+
+/* Mean coverage of the bound over reps draws of n Exp(1) scores. */
+static mc run(size_t n, double tau, size_t reps, unsigned long seed)
+{
+    gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(r, seed);
+    double *x = malloc(n * sizeof *x);
+    assert_non_null(x);
+    double sum = 0, sum2 = 0;
+    size_t k = 0;
+    for (size_t rep = 0; rep < reps; rep++) {
+        for (size_t i = 0; i < n; i++)
+            x[i] = gsl_ran_exponential(r, 1.0);
+        double q = etacal_conformal_upper(x, n, tau, &k);
+        double cov = isinf(q) ? 1.0 : 1 - exp(-q);
+        sum += cov;
+        sum2 += cov * cov;
+    }
+    free(x);
+    gsl_rng_free(r);
+    mc m;
+    m.mean = sum / (double)reps;
+    double var = sum2 / (double)reps - m.mean * m.mean;
+    m.se = sqrt(var > 0 ? var : 0) / sqrt((double)reps);
+    m.k = k;
+    return m;
+}
+
+static void check(size_t n, double tau, unsigned long seed)
+{
+    mc m = run(n, tau, 4000, seed);
+    double lo = tau - 4 * m.se, hi = tau + 1.0 / (double)(n + 1) + 4 * m.se;
+    double exact = (double)m.k / (double)(n + 1);
+    printf("   n=%zu tau=%g: mean coverage %.5f (se %.5f), k/(n+1) = %.5f, bound [%.5f, %.5f]\n", n, tau,
+           m.mean, m.se, exact, lo, hi);
+    assert_true(m.mean >= lo);
+    assert_true(m.mean <= hi);
+    /* Sharper: for continuous scores the mean is k/(n+1) exactly. */
+    assert_true(fabs(m.mean - exact) <= 4 * m.se);
+}
+
+static void test_guarantee_small_n(void **state)
+{
+    (void)state;
+    check(19, 0.95, 11);  /* k = 19 = n: the smallest n with a finite bound at .95 */
+    check(23, 0.9, 12);
+    check(50, 0.8, 13);
+}
+
+static void test_guarantee_larger_n(void **state)
+{
+    (void)state;
+    check(100, 0.9, 14);  /* k = 91, 91/101 = .900990 (Lei et al. 2018; METHODS.md) */
+    check(257, 0.975, 15);
+    check(1000, 0.5, 16);
+}
+
+/* The same theorem through the whole fit path: one CSV with 2000 segments
+ * of 40 rows each; within a segment the rows are exchangeable, so each
+ * segment's buffer (Mondrian conformal, Vovk et al. 2005) has coverage
+ * F(buffer) and the mean over segments obeys the same bounds. */
+static void test_guarantee_through_fit(void **state)
+{
+    (void)state;
+    const size_t nseg = 2000, per = 40;
+    const double tau = 0.85;
+    char dir[] = "/tmp/etacal-mc-XXXXXX";
+    assert_non_null(mkdtemp(dir));
+    char path[128];
+    snprintf(path, sizeof path, "%s/cal.csv", dir);
+    FILE *fp = fopen(path, "w");
+    assert_non_null(fp);
+    gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(r, 2385);
+    fprintf(fp, "seg,pred,actual\n");
+    /* rows interleaved across segments, as real files are */
+    for (size_t i = 0; i < per; i++)
+        for (size_t s = 0; s < nseg; s++) {
+            double pred = 600 + 17.0 * (double)(s % 13);
+            fprintf(fp, "s%zu,%.17g,%.17g\n", s, pred, pred + 60 * gsl_ran_exponential(r, 1.0));
+        }
+    gsl_rng_free(r);
+    assert_int_equal(fclose(fp), 0);
+
+    etacal_colspec cols[] = {{"actual", ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING, NULL},
+                             {"pred", ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING, NULL},
+                             {"seg", ETACAL_COL_KEY, 0, NULL}};
+    etacal_error err;
+    etacal_table *t = NULL;
+    assert_int_equal(etacal_table_read_csv(path, cols, 3, NULL, &t, &err), ETACAL_OK);
+    size_t keys[] = {2};
+    double targets[] = {tau};
+    etacal_fit_opts fo = {ETACAL_METHOD_ADD, targets, 1, per};
+    etacal_quotes *q = NULL;
+    assert_int_equal(etacal_quotes_fit(t, 0, 1, keys, 1, &fo, &q, &err), ETACAL_OK);
+    assert_int_equal(q->nsegs, nseg + 1);
+    double sum = 0, sum2 = 0;
+    size_t rows = 0;
+    for (size_t i = 0; i < q->nrows; i++) {
+        if (q->rows[i].seg == 0)
+            continue;
+        /* offset_s was rounded up to the millisecond: the coverage of the
+         * published bound, in units of the Exp scale of 60 s */
+        double cov = 1 - exp(-q->rows[i].offset_s / 60);
+        sum += cov;
+        sum2 += cov * cov;
+        rows++;
+    }
+    assert_int_equal(rows, nseg);
+    double mean = sum / (double)rows;
+    double se = sqrt(sum2 / (double)rows - mean * mean) / sqrt((double)rows);
+    size_t k = etacal_conformal_rank(per, tau);
+    printf("   fit path: %zu segments of %zu: mean coverage %.5f (se %.5f), k/(n+1) = %.5f\n", rows, per,
+           mean, se, (double)k / (double)(per + 1));
+    assert_true(mean >= tau - 4 * se);
+    assert_true(mean <= tau + 1.0 / (double)(per + 1) + 4 * se);
+    etacal_quotes_destroy(q);
+    etacal_table_destroy(t);
+    unlink(path);
+    rmdir(dir);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_guarantee_small_n),
+        cmocka_unit_test(test_guarantee_larger_n),
+        cmocka_unit_test(test_guarantee_through_fit),
+    };
+    return cmocka_run_group_tests_name("mc", tests, NULL, NULL);
+}
