@@ -30,13 +30,16 @@ cd "$(dirname "${BASH_SOURCE[0]}")/.."
 die() { echo "bench/run.sh: $*" >&2; exit 1; }
 
 ROWS=${1:-10000000}
-[[ $ROWS =~ ^[0-9]+$ ]] && ((ROWS >= 100)) ||
-    { echo "usage: bash bench/run.sh [ROWS]   (ROWS >= 100)" >&2; exit 2; }
+if ! [[ $ROWS =~ ^[0-9]+$ ]] || ((ROWS < 100)); then
+    echo "usage: bash bench/run.sh [ROWS]   (ROWS >= 100)" >&2
+    exit 2
+fi
 SMALL=$((ROWS / 10))
 REPS=${REPS:-3}
 [[ $REPS =~ ^[1-9][0-9]*$ ]] || die "REPS must be a positive integer"
 CC=${CC:-cc}
-CFLAGS="-std=c11 -O2 -g -Wall -Wextra -Wpedantic -Wshadow -Wstrict-prototypes -Wmissing-prototypes -Werror"
+CFLAGS=(-std=c11 -O2 -g -Wall -Wextra -Wpedantic -Wshadow
+    -Wstrict-prototypes -Wmissing-prototypes -Werror)
 ETACAL=${ETACAL:-build/etacal}
 PY=/usr/bin/python3
 B=build/bench
@@ -52,7 +55,7 @@ build_tool() { # build_tool OUT SRC LIBS...
     shift 2
     if [[ ! -x $out || $src -nt $out ]]; then
         echo "building $out" >&2
-        "$CC" $CFLAGS "$src" -o "$out" "$@"
+        "$CC" "${CFLAGS[@]}" "$src" -o "$out" "$@"
     fi
 }
 build_tool "$B/citygen" examples/citygen.c -lm
@@ -94,6 +97,8 @@ cat "$FILE" "$SFILE" > /dev/null
 # ---------------------------------------------------------------- timing
 # measure NAME STDOUT CMD...: run CMD REPS times with stdout to STDOUT;
 # sets WALL_<NAME> (median seconds) and RSS_<NAME> (median peak RSS, KiB).
+WALL_cat= WALL_tokenize= WALL_fit= WALL_pandas= WALL_apply_small= WALL_apply=
+RSS_cat= RSS_tokenize= RSS_fit= RSS_pandas= RSS_apply_small= RSS_apply=
 measure() {
     local name=$1 out=$2
     shift 2
