@@ -23,6 +23,9 @@
 # 3 of the License, or (at your option) any later version.  It is distributed
 # WITHOUT ANY WARRANTY; see the GNU General Public License for more details.
 
+# The WALL_* and RSS_* variables are set by measure() with printf -v.
+# shellcheck disable=SC2154
+
 set -euo pipefail
 
 cd "$(dirname "${BASH_SOURCE[0]}")/.."
@@ -97,8 +100,6 @@ cat "$FILE" "$SFILE" > /dev/null
 # ---------------------------------------------------------------- timing
 # measure NAME STDOUT CMD...: run CMD REPS times with stdout to STDOUT;
 # sets WALL_<NAME> (median seconds) and RSS_<NAME> (median peak RSS, KiB).
-WALL_cat= WALL_tokenize= WALL_fit= WALL_pandas= WALL_apply_small= WALL_apply=
-RSS_cat= RSS_tokenize= RSS_fit= RSS_pandas= RSS_apply_small= RSS_apply=
 measure() {
     local name=$1 out=$2
     shift 2
