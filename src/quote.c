@@ -192,6 +192,56 @@ static int segmap_grow(segmap *m)
     return 0;
 }
 
+/* The mixed-radix code of row i's key ids. */
+static uint64_t row_code(const uint32_t *const *keyids, const size_t *kc, size_t nkeys, size_t i)
+{
+    uint64_t code = 0;
+    for (size_t j = 0; j < nkeys; j++)
+        code = code * (uint64_t)kc[j] + keyids[j][i];
+    return code;
+}
+
+/* Segment numbers in the map become remap[number]. */
+static void segmap_renumber(segmap *m, const uint32_t *remap)
+{
+    uint32_t *v = m->direct ? m->direct : m->hvals;
+    size_t len = m->direct ? m->ndirect : m->nslots;
+    for (size_t i = 0; i < len; i++)
+        if (v[i])
+            v[i] = remap[v[i] - 1] + 1;
+}
+
+/* Row i's segment (0, the global one, when there are no keys). */
+static uint32_t row_seg(const segmap *m, const uint32_t *const *keyids, const size_t *kc, size_t nkeys,
+                        size_t i)
+{
+    if (nkeys == 0)
+        return 0;
+    uint64_t code = row_code(keyids, kc, nkeys, i);
+    if (m->direct)
+        return m->direct[code] - 1;
+    size_t mask = m->nslots - 1;
+    size_t s = (size_t)mix64(code) & mask;
+    while (m->hkeys[s] != code)
+        s = (s + 1) & mask;
+    return m->hvals[s] - 1;
+}
+
+static size_t bucket(double x, double lo, double scale, size_t B)
+{
+    double b = (x - lo) * scale;
+    if (!(b > 0))
+        return 0;
+    return b >= (double)B ? B - 1 : (size_t)b;
+}
+
+/* One order statistic to find: segment g, target ti. */
+typedef struct job {
+    size_t bucket; /* SIZE_MAX: k > n, no finite bound */
+    size_t rank;   /* rank within the bucket */
+    size_t cap, used, off;
+} job;
+
 typedef struct sortent {
     char **keys;
     size_t nkeys;
@@ -214,9 +264,9 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
                       etacal_quotes **out, etacal_error *err)
 {
     int rc = ETACAL_OK;
-    uint32_t *rowseg = NULL;
-    double *scores = NULL;
-    size_t *start = NULL, *fill = NULL;
+    size_t *first = NULL, *kc = NULL, *hist = NULL;
+    double *mn = NULL, *mx = NULL, *scale = NULL, *cand = NULL;
+    job *jobs = NULL;
     uint32_t *remap = NULL;
     sortent *order = NULL;
     segmap map = {0};
@@ -267,163 +317,187 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         space *= c;
     }
 
-    /* 1. Segment of every row, numbered in order of first appearance (0 is
-     *    kept for the global segment). */
-    rowseg = malloc(n * sizeof *rowseg);
-    if (!rowseg || segmap_init(&map, space) != 0)
+    /* 1. Segments, numbered in order of first appearance (0 is the global
+     *    segment).  No per-row array is kept: each later pass finds a row's
+     *    segment again from its key ids through the map. */
+    kc = malloc((nkeys ? nkeys : 1) * sizeof *kc);
+    if (!kc || segmap_init(&map, space) != 0)
         goto nomem;
-    size_t nseg = 1;
-    for (size_t i = 0; i < n; i++) {
-        uint64_t code = 0;
-        for (size_t j = 0; j < nkeys; j++)
-            code = code * (uint64_t)(etacal_table_key_count(t, key_cols[j])) + keyids[j][i];
+    for (size_t j = 0; j < nkeys; j++)
+        kc[j] = etacal_table_key_count(t, key_cols[j]);
+    size_t nseg = 1, firstcap = 0;
+    for (size_t i = 0; i < n && nkeys; i++) {
+        uint64_t code = row_code(keyids, kc, nkeys, i);
         uint32_t *slot = segmap_slot(&map, code);
         if (*slot == 0) {
-            if (nkeys == 0) {
-                *slot = 1; /* everything is the global segment */
-            } else {
-                if (nseg >= UINT32_MAX - 1) {
-                    rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "too many segments");
-                    goto done;
-                }
-                *slot = (uint32_t)nseg++ + 1;
-                map.used++;
-                if (segmap_grow(&map) != 0)
-                    goto nomem;
-                slot = segmap_slot(&map, code);
+            if (nseg >= UINT32_MAX - 1) {
+                rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "too many segments");
+                goto done;
             }
+            if (grow_array((void **)&first, &firstcap, nseg + 1, sizeof *first) != 0)
+                goto nomem;
+            first[nseg] = i;
+            *slot = (uint32_t)nseg++ + 1;
+            map.used++;
+            if (segmap_grow(&map) != 0)
+                goto nomem;
         }
-        rowseg[i] = *slot - 1;
     }
-    segmap_free(&map);
-    memset(&map, 0, sizeof map);
-    if (nkeys == 0)
-        nseg = 1;
 
     /* 2. Segments: global first, then the others sorted by key texts. */
     q->segs = calloc(nseg, sizeof *q->segs);
     if (!q->segs)
         goto nomem;
     q->nsegs = nseg;
-    for (size_t s = 0; s < nseg; s++)
-        if (segment_alloc(&q->segs[s], nkeys, q->ntargets) != 0)
+    for (size_t g = 0; g < nseg; g++)
+        if (segment_alloc(&q->segs[g], nkeys, q->ntargets) != 0)
             goto nomem;
-    /* key texts from the first row of each segment */
-    unsigned char *named = calloc(nseg, 1);
-    if (!named)
-        goto nomem;
     for (size_t j = 0; j < nkeys; j++)
-        if (!(q->segs[0].keys[j] = dupn("*", 1))) {
-            free(named);
+        if (!(q->segs[0].keys[j] = dupn("*", 1)))
             goto nomem;
-        }
-    named[0] = 1;
-    for (size_t i = 0; i < n && nkeys; i++) {
-        uint32_t s = rowseg[i];
-        if (named[s])
-            continue;
-        named[s] = 1;
+    for (size_t g = 1; g < nseg; g++)
         for (size_t j = 0; j < nkeys; j++) {
-            const char *txt = etacal_table_key_text(t, key_cols[j], keyids[j][i]);
-            if (!(q->segs[s].keys[j] = dupn(txt, strlen(txt)))) {
-                free(named);
+            const char *txt = etacal_table_key_text(t, key_cols[j], keyids[j][first[g]]);
+            if (!(q->segs[g].keys[j] = dupn(txt, strlen(txt))))
                 goto nomem;
-            }
         }
-    }
-    free(named);
+    remap = malloc(nseg * sizeof *remap);
+    if (!remap)
+        goto nomem;
+    remap[0] = 0;
+    for (size_t g = 1; g < nseg; g++)
+        remap[g] = (uint32_t)g;
     if (nseg > 2) {
         order = malloc((nseg - 1) * sizeof *order);
-        remap = malloc(nseg * sizeof *remap);
         etacal_segment *sorted = malloc(nseg * sizeof *sorted);
-        if (!order || !remap || !sorted) {
+        if (!order || !sorted) {
             free(sorted);
             goto nomem;
         }
-        for (size_t s = 1; s < nseg; s++)
-            order[s - 1] = (sortent){q->segs[s].keys, nkeys, s};
+        for (size_t g = 1; g < nseg; g++)
+            order[g - 1] = (sortent){q->segs[g].keys, nkeys, g};
         qsort(order, nseg - 1, sizeof *order, cmp_sortent);
         sorted[0] = q->segs[0];
-        remap[0] = 0;
-        for (size_t s = 1; s < nseg; s++) {
-            sorted[s] = q->segs[order[s - 1].idx];
-            remap[order[s - 1].idx] = (uint32_t)s;
+        for (size_t g = 1; g < nseg; g++) {
+            sorted[g] = q->segs[order[g - 1].idx];
+            remap[order[g - 1].idx] = (uint32_t)g;
         }
         free(q->segs);
         q->segs = sorted;
-        for (size_t i = 0; i < n; i++)
-            rowseg[i] = remap[rowseg[i]];
     }
+    segmap_renumber(&map, remap);
 
-    /* 3. Scores laid out by segment (counting sort), accuracy on the way. */
-    start = calloc(nseg + 1, sizeof *start);
-    fill = calloc(nseg, sizeof *fill);
-    scores = malloc(n * sizeof *scores);
-    if (!start || !fill || !scores)
+    /* 3. Pass over the rows: validation, accuracy, per-segment n, bare
+     *    hits and score range. */
+    mn = malloc(nseg * sizeof *mn);
+    mx = malloc(nseg * sizeof *mx);
+    if (!mn || !mx)
         goto nomem;
-    for (size_t i = 0; i < n; i++)
-        start[rowseg[i] + 1]++;
-    for (size_t s = 0; s < nseg; s++)
-        start[s + 1] += start[s];
+    for (size_t g = 0; g < nseg; g++) {
+        mn[g] = INFINITY;
+        mx[g] = -INFINITY;
+    }
+    int ratio = q->method == ETACAL_METHOD_RATIO;
     ksum sq = {0, 0}, ab = {0, 0}, me = {0, 0};
     size_t on_time = 0;
     for (size_t i = 0; i < n; i++) {
         double a = y[i], pr = p[i];
         if (!isfinite(a) || !isfinite(pr)) {
-            rc = etacal_error_set(err, ETACAL_EINVAL, src, "non-finite actual or prediction in row %zu", i + 1);
+            rc = etacal_error_set(err, ETACAL_EINVAL, src, "non-finite actual or prediction in data row %zu", i + 1);
             goto done;
         }
-        double s;
-        if (q->method == ETACAL_METHOD_RATIO) {
-            if (!(pr > 0)) {
-                rc = etacal_error_set(err, ETACAL_EINVAL, src,
-                                      "method ratio needs predictions > 0 (data row %zu has %g)", i + 1, pr);
-                goto done;
-            }
-            s = a / pr;
-        } else {
-            s = a - pr;
+        if (ratio && !(pr > 0)) {
+            rc = etacal_error_set(err, ETACAL_EINVAL, src,
+                                  "method ratio needs predictions > 0 (data row %zu has %g)", i + 1, pr);
+            goto done;
         }
+        double sc = ratio ? a / pr : a - pr;
         double e = a - pr;
         ksum_add(&sq, e * e);
         ksum_add(&ab, fabs(e));
         ksum_add(&me, e);
         int hit = a <= pr;
         on_time += (size_t)hit;
-        uint32_t g = rowseg[i];
+        uint32_t g = row_seg(&map, keyids, kc, nkeys, i);
+        q->segs[g].n++;
         q->segs[g].bare_hits += (size_t)hit;
-        scores[start[g] + fill[g]++] = s;
+        if (sc < mn[g])
+            mn[g] = sc;
+        if (sc > mx[g])
+            mx[g] = sc;
+        if (sc < mn[0])
+            mn[0] = sc;
+        if (sc > mx[0])
+            mx[0] = sc;
     }
-    free(rowseg);
-    rowseg = NULL;
     q->accuracy.n = n;
     q->accuracy.rmse = sqrt(ksum_value(&sq) / (double)n);
     q->accuracy.mae = ksum_value(&ab) / (double)n;
     q->accuracy.mean_error = ksum_value(&me) / (double)n;
     q->accuracy.on_time = on_time;
+    etacal_segment *gl = &q->segs[0];
+    if (nkeys) {
+        gl->n = n;
+        gl->bare_hits = on_time;
+    }
 
-    /* 4. Bounds: each segment inside its slice first, the global segment
-     *    over all scores last (its selection reorders across slices).  With
-     *    no keys the only segment is the global one. */
-    size_t global_hits = 0;
-    for (size_t s = 0; s < nseg; s++)
-        global_hits += q->segs[s].bare_hits;
-    for (size_t s = 1; s < nseg; s++) {
-        etacal_segment *g = &q->segs[s];
-        g->n = start[s + 1] - start[s];
+    /* 4. The k-th smallest score of every (segment, target) by bucket
+     *    selection, without copying or reordering the rows: a histogram of
+     *    each segment's scores over B equal-width buckets of its range
+     *    finds the bucket that holds rank k; a second pass gathers only
+     *    that bucket's scores, and an exact selection among them gives the
+     *    order statistic.  The bucket index is a monotone function of the
+     *    score, so this is exact; only the work depends on the spread. */
+    size_t B = 4096;
+    while (B > 16 && (double)B * (double)nseg * sizeof(size_t) > 64.0 * 1024 * 1024)
+        B /= 2;
+    hist = calloc(nseg * B, sizeof *hist);
+    scale = malloc(nseg * sizeof *scale);
+    size_t njobs = nseg * q->ntargets;
+    jobs = calloc(njobs, sizeof *jobs);
+    if (!hist || !scale || !jobs)
+        goto nomem;
+    for (size_t g = 0; g < nseg; g++) {
+        double w = mx[g] - mn[g];
+        scale[g] = w > 0 && isfinite(w) ? (double)B / w : 0;
+    }
+    for (size_t i = 0; i < n; i++) {
+        double sc = ratio ? y[i] / p[i] : y[i] - p[i];
+        uint32_t g = row_seg(&map, keyids, kc, nkeys, i);
+        hist[(size_t)g * B + bucket(sc, mn[g], scale[g], B)]++;
+        if (g)
+            hist[bucket(sc, mn[0], scale[0], B)]++;
+    }
+    size_t ncand = 0;
+    for (size_t g = 0; g < nseg; g++) {
+        etacal_segment *sg = &q->segs[g];
         for (size_t ti = 0; ti < q->ntargets; ti++) {
-            g->score_q[ti] = etacal_conformal_upper(scores + start[s], g->n, q->targets[ti], &g->k[ti]);
-            g->status[ti] = g->n < min_rows      ? ETACAL_FALLBACK_FEW_ROWS
-                            : g->k[ti] > g->n ? ETACAL_FALLBACK_RANK
-                                              : ETACAL_OWN_ROW;
+            size_t k = etacal_conformal_rank(sg->n, q->targets[ti]);
+            if (k < 1)
+                k = 1;
+            sg->k[ti] = k;
+            sg->status[ti] = g == 0                 ? ETACAL_OWN_ROW
+                             : sg->n < min_rows     ? ETACAL_FALLBACK_FEW_ROWS
+                             : k > sg->n            ? ETACAL_FALLBACK_RANK
+                                                    : ETACAL_OWN_ROW;
+            job *jb = &jobs[g * q->ntargets + ti];
+            if (k > sg->n) {
+                jb->bucket = SIZE_MAX;
+                sg->score_q[ti] = INFINITY;
+                continue;
+            }
+            const size_t *h = hist + g * B;
+            size_t cum = 0, b = 0;
+            while (cum + h[b] < k)
+                cum += h[b++];
+            jb->bucket = b;
+            jb->rank = k - cum;
+            jb->cap = h[b];
+            jb->off = ncand;
+            ncand += h[b];
         }
     }
-    etacal_segment *gl = &q->segs[0];
-    gl->n = n;
-    gl->bare_hits = global_hits;
-    for (size_t ti = 0; ti < q->ntargets; ti++) {
-        gl->score_q[ti] = etacal_conformal_upper(scores, n, q->targets[ti], &gl->k[ti]);
-        gl->status[ti] = ETACAL_OWN_ROW;
+    for (size_t ti = 0; ti < q->ntargets; ti++)
         if (gl->k[ti] > n) {
             rc = etacal_error_set(err, ETACAL_ENUM, src,
                                   "only %zu rows: a promise for target %g needs at least %zu "
@@ -431,7 +505,30 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
                                   n, q->targets[ti], etacal_conformal_min_n(q->targets[ti]));
             goto done;
         }
+    cand = malloc((ncand ? ncand : 1) * sizeof *cand);
+    if (!cand)
+        goto nomem;
+    for (size_t i = 0; i < n; i++) {
+        double sc = ratio ? y[i] / p[i] : y[i] - p[i];
+        uint32_t g = row_seg(&map, keyids, kc, nkeys, i);
+        size_t bg = bucket(sc, mn[g], scale[g], B);
+        job *jg = &jobs[(size_t)g * q->ntargets];
+        for (size_t ti = 0; ti < q->ntargets; ti++)
+            if (jg[ti].bucket == bg)
+                cand[jg[ti].off + jg[ti].used++] = sc;
+        if (g) {
+            size_t b0 = bucket(sc, mn[0], scale[0], B);
+            for (size_t ti = 0; ti < q->ntargets; ti++)
+                if (jobs[ti].bucket == b0)
+                    cand[jobs[ti].off + jobs[ti].used++] = sc;
+        }
     }
+    for (size_t g = 0; g < nseg; g++)
+        for (size_t ti = 0; ti < q->ntargets; ti++) {
+            job *jb = &jobs[g * q->ntargets + ti];
+            if (jb->bucket != SIZE_MAX)
+                q->segs[g].score_q[ti] = etacal_select(cand + jb->off, jb->cap, jb->rank);
+        }
 
     /* 5. The rows of the table. */
     size_t nrows = 0;
@@ -469,10 +566,14 @@ nomem:
     rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
 done:
     segmap_free(&map);
-    free(rowseg);
-    free(scores);
-    free(start);
-    free(fill);
+    free(first);
+    free(kc);
+    free(hist);
+    free(mn);
+    free(mx);
+    free(scale);
+    free(cand);
+    free(jobs);
     free(remap);
     free(order);
     free(keyids);
