@@ -26,6 +26,7 @@ typedef struct {
     const char *raw;   /* raw mode: the current record's bytes */
     size_t rawlen;
     size_t rows_in_raw; /* records libcsv found in the current raw slice */
+    int count_nl;       /* fields of this chunk may hold a line feed */
     int stopped;
 } ctx;
 
@@ -42,12 +43,14 @@ static void on_field(void *s, size_t len, void *ud)
     ctx *c = ud;
     if (c->stopped)
         return;
-    if (len && memchr(s, '\n', len)) {
-        const char *p = s, *e = p + len;
-        while ((p = memchr(p, '\n', (size_t)(e - p))) != NULL) {
-            c->pending_nl++;
-            p++;
-        }
+    /* An LF inside a field can only come from a quoted field; fields are
+     * short, so a plain loop beats a call to memchr. */
+    if (c->count_nl) {
+        const char *b = s;
+        size_t nl = 0;
+        for (size_t i = 0; i < len; i++)
+            nl += b[i] == '\n';
+        c->pending_nl += nl;
     }
     c->cb->field(c->cb->ud, c->col++, s, len);
 }
@@ -114,7 +117,7 @@ int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb,
     struct csv_parser p;
     int parser_ok = 0;
     uint64_t total = 0, done = 0;
-    ctx c = {.cb = cb, .line = 1};
+    ctx c = {.cb = cb, .line = 1, .count_nl = 1};
     int is_stdin = strcmp(path, "-") == 0;
 
     if (is_stdin) {
@@ -146,7 +149,10 @@ int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb,
     }
     parser_ok = 1;
     csv_set_delim(&p, (unsigned char)(delim ? delim : ','));
-    csv_set_space_func(&p, is_space);
+    /* libcsv trims spaces and tabs around unquoted fields; with a tab
+     * delimiter only spaces may be trimmed. */
+    if (delim == '\t')
+        csv_set_space_func(&p, is_space);
 
     int first = 1;
     for (;;) {
@@ -170,6 +176,11 @@ int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb,
             }
         }
         if (!raw) {
+            /* A field can hold a line feed only if it is quoted: when the
+             * chunk has no quote character and no quoted field is open
+             * from the previous chunk (libcsv's public parser state), the
+             * per-field count can be skipped. */
+            c.count_nl = p.quoted || memchr(data, '"', len) != NULL;
             size_t startline = c.line;
             if (csv_parse(&p, data, len, on_field, on_row, &c) != len) {
                 rc = quote_error(&p, path, c.line ? c.line : startline, err);

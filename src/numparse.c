@@ -63,14 +63,41 @@ static double slow_parse(const char *s, size_t len, int *ok)
 
 int etacal_num_parse(const char *s, size_t len, double *out)
 {
+    /* The common case first: an optional minus, digits with at most one
+     * point, nothing else, and a mantissa below 2^53 (exact, as below). */
+    if (len && len <= 17) {
+        const char *p = s, *e = s + len;
+        int neg = *p == '-';
+        p += neg;
+        uint64_t m = 0;
+        int nd = 0, frac = -1;
+        for (; p < e; p++) {
+            unsigned d = (unsigned)(unsigned char)*p - '0';
+            if (d < 10) {
+                m = m * 10 + d;
+                nd++;
+            } else if (*p == '.' && frac < 0) {
+                frac = (int)(e - p - 1);
+            } else {
+                break;
+            }
+        }
+        if (p == e && nd > 0 && m < (UINT64_C(1) << 53)) {
+            double v = (double)m;
+            if (frac > 0)
+                v /= pow10_exact[frac];
+            *out = neg ? -v : v;
+            return ETACAL_NUM_VALUE;
+        }
+    }
     while (len > 0 && (*s == ' ' || *s == '\t')) {
         s++;
         len--;
     }
     while (len > 0 && (s[len - 1] == ' ' || s[len - 1] == '\t'))
         len--;
-    if (len == 0 || lower_eq(s, len, "na") || lower_eq(s, len, "nan") ||
-        lower_eq(s, len, "null")) {
+    if (len == 0 || (((unsigned char)*s | 0x20) == 'n' &&
+                     (lower_eq(s, len, "na") || lower_eq(s, len, "nan") || lower_eq(s, len, "null")))) {
         *out = NAN;
         return ETACAL_NUM_MISSING;
     }
@@ -80,7 +107,8 @@ int etacal_num_parse(const char *s, size_t len, double *out)
         neg = (*p == '-');
         p++;
     }
-    if (lower_eq(p, (size_t)(end - p), "inf") || lower_eq(p, (size_t)(end - p), "infinity")) {
+    if (p < end && (*p | 0x20) == 'i' &&
+        (lower_eq(p, (size_t)(end - p), "inf") || lower_eq(p, (size_t)(end - p), "infinity"))) {
         *out = neg ? -INFINITY : INFINITY;
         return ETACAL_NUM_VALUE;
     }

@@ -26,15 +26,45 @@ int grow_array(void **p, size_t *cap, size_t need, size_t elem)
     return 0;
 }
 
-/* FNV-1a: short keys, good spread, no state. */
+/* Key texts are short.  Keys of 8 bytes or more are read as (possibly
+ * overlapping) 8-byte words, never outside [s, s+len); shorter ones byte
+ * by byte. */
+static inline uint64_t load8(const char *s)
+{
+    uint64_t w;
+    memcpy(&w, s, 8);
+    return w;
+}
+
 static uint64_t hash_bytes(const char *s, size_t len)
 {
-    uint64_t h = UINT64_C(1469598103934665603);
-    for (size_t i = 0; i < len; i++) {
-        h ^= (unsigned char)s[i];
-        h *= UINT64_C(1099511628211);
+    uint64_t h = UINT64_C(1469598103934665603) ^ len;
+    if (len < 8) {
+        for (size_t i = 0; i < len; i++) {
+            h ^= (unsigned char)s[i];
+            h *= UINT64_C(1099511628211);
+        }
+    } else {
+        size_t i = 0;
+        for (; i + 8 < len; i += 8)
+            h = (h ^ load8(s + i)) * UINT64_C(0xff51afd7ed558ccd);
+        h = (h ^ load8(s + len - 8)) * UINT64_C(0xc4ceb9fe1a85ec53);
     }
-    return h;
+    return h ^ (h >> 29);
+}
+
+static int same_bytes(const char *a, const char *b, size_t len)
+{
+    if (len < 8) {
+        for (size_t i = 0; i < len; i++)
+            if (a[i] != b[i])
+                return 0;
+        return 1;
+    }
+    for (size_t i = 0; i + 8 < len; i += 8)
+        if (load8(a + i) != load8(b + i))
+            return 0;
+    return load8(a + len - 8) == load8(b + len - 8);
 }
 
 void strdict_init(strdict *d) { memset(d, 0, sizeof *d); }
@@ -61,7 +91,7 @@ static int lookup_slot(const strdict *d, const char *s, size_t len, size_t *slot
             return 0;
         }
         uint32_t id = v - 1;
-        if (d->lens[id] == len && memcmp(d->arena + d->offs[id], s, len) == 0) {
+        if (d->lens[id] == len && same_bytes(d->arena + d->offs[id], s, len)) {
             *slot = i;
             return 1;
         }
