@@ -7,11 +7,16 @@
  * when the record ends with the right number of fields and every value is
  * acceptable is the staged row appended, so a bad or skipped row leaves no
  * trace in the columns. */
+#define _DEFAULT_SOURCE
 #include "internal.h"
 
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/mman.h>
+#include <sys/stat.h>
+#include <threads.h>
+#include <unistd.h>
 
 typedef struct column {
     char *name;
@@ -258,6 +263,165 @@ static char *dupstr(const char *s)
     return d;
 }
 
+static etacal_table *table_new(const char *path, const etacal_colspec *cols, size_t ncols)
+{
+    etacal_table *t = calloc(1, sizeof *t);
+    if (!t)
+        return NULL;
+    t->ncols = ncols;
+    t->cols = calloc(ncols ? ncols : 1, sizeof *t->cols);
+    t->source = dupstr(path);
+    if (!t->cols || !t->source) {
+        etacal_table_destroy(t);
+        return NULL;
+    }
+    for (size_t i = 0; i < ncols; i++) {
+        column *c = &t->cols[i];
+        c->name = dupstr(cols[i].name);
+        if (!c->name) {
+            etacal_table_destroy(t);
+            return NULL;
+        }
+        c->type = cols[i].type;
+        c->flags = cols[i].flags;
+        c->what = cols[i].what;
+        strdict_init(&c->dict);
+    }
+    return t;
+}
+
+static int reader_init(reader *r, etacal_table *t, const etacal_colspec *cols, const etacal_read_opts *opts,
+                       const char *path, etacal_error *err)
+{
+    memset(r, 0, sizeof *r);
+    size_t n = t->ncols ? t->ncols : 1;
+    r->stage_num = calloc(n, sizeof *r->stage_num);
+    r->stage_key = calloc(n, sizeof *r->stage_key);
+    r->seen = calloc(n, 1);
+    r->t = t;
+    r->spec = cols;
+    r->opts = opts;
+    r->path = path;
+    r->err = err;
+    return r->stage_num && r->stage_key && r->seen ? 0 : -1;
+}
+
+static void reader_free(reader *r, int owns_role)
+{
+    if (owns_role)
+        free(r->role);
+    free(r->stage_num);
+    free(r->stage_key);
+    free(r->seen);
+}
+
+/* The second half of a file, read by its own thread. */
+typedef struct part {
+    reader r;
+    csvstream_range range;
+    etacal_error err;
+    int rc;
+    uint64_t bytes;
+    char delim;
+} part;
+
+static int part_main(void *arg)
+{
+    part *pt = arg;
+    csvstream_cb cb = {on_field, on_row, &pt->r, NULL, NULL};
+    pt->rc = csvstream_run_range(pt->r.path, pt->delim, 0, &cb, &pt->range, &pt->bytes, &pt->err);
+    return 0;
+}
+
+/* Gives the whole pages of [p, p+len) back to the system; their content
+ * is not needed again (the block is freed right after).  Keeps the peak
+ * memory of a merge near the size of the merged table. */
+static void release_pages(void *p, size_t len)
+{
+    long pg = sysconf(_SC_PAGESIZE);
+    if (pg <= 0)
+        return;
+    uintptr_t a = ((uintptr_t)p + (uintptr_t)pg - 1) & ~((uintptr_t)pg - 1);
+    uintptr_t b = ((uintptr_t)p + len) & ~((uintptr_t)pg - 1);
+    if (b > a)
+        (void)madvise((void *)a, b - a, MADV_DONTNEED);
+}
+
+/* Copies n elements of size elem from src to dst in 8 MiB steps, giving
+ * src's pages back behind the copy. */
+static void move_pages(void *dst, void *src, size_t n, size_t elem)
+{
+    const size_t step = (size_t)8 << 20;
+    size_t total = n * elem;
+    for (size_t off = 0; off < total; off += step) {
+        size_t len = total - off < step ? total - off : step;
+        memcpy((char *)dst + off, (char *)src + off, len);
+        release_pages((char *)src + off, len);
+    }
+}
+
+/* Appends the rows of b to a, column by column, freeing b's columns as it
+ * goes, and maps b's key ids into a's dictionaries (values new in b come
+ * after a's, as in a sequential read). */
+static int table_append(etacal_table *a, etacal_table *b)
+{
+    size_t na = a->rows, nb = b->rows;
+    if (nb == 0)
+        return 0;
+    for (size_t i = 0; i < a->ncols; i++) {
+        column *ca = &a->cols[i];
+        column *cb = &b->cols[i];
+        if (ca->type == ETACAL_COL_NUM) {
+            double *p = realloc(ca->num, (na + nb) * sizeof *p);
+            if (!p)
+                return -1;
+            ca->num = p;
+            move_pages(p + na, cb->num, nb, sizeof *p);
+            free(cb->num);
+            cb->num = NULL;
+        } else {
+            uint32_t *p = realloc(ca->key, (na + nb) * sizeof *p);
+            if (!p)
+                return -1;
+            ca->key = p;
+            uint32_t *remap = malloc((cb->dict.count ? cb->dict.count : 1) * sizeof *remap);
+            if (!remap)
+                return -1;
+            for (uint32_t id = 0; id < cb->dict.count; id++)
+                if (strdict_intern(&ca->dict, strdict_str(&cb->dict, id), strdict_len(&cb->dict, id),
+                                   &remap[id]) != 0) {
+                    free(remap);
+                    return -1;
+                }
+            for (size_t r = 0; r < nb; r++)
+                cb->key[r] = remap[cb->key[r]];
+            free(remap);
+            move_pages(p + na, cb->key, nb, sizeof *p);
+            free(cb->key);
+            cb->key = NULL;
+        }
+    }
+    a->rows = a->cap = na + nb;
+    b->rows = 0;
+    return 0;
+}
+
+static void stats_add(etacal_read_stats *a, const etacal_read_stats *b)
+{
+    a->data_rows += b->data_rows;
+    a->kept += b->kept;
+    a->missing += b->missing;
+    if (b->bad && !a->bad) {
+        a->first_bad_line = b->first_bad_line;
+        memcpy(a->first_bad_msg, b->first_bad_msg, sizeof a->first_bad_msg);
+    }
+    a->bad += b->bad;
+    a->bytes += b->bytes;
+}
+
+/* Files smaller than this are read by one thread. */
+#define PARALLEL_MIN ((uint64_t)16 << 20)
+
 int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t ncols,
                           const etacal_read_opts *opts, etacal_table **out, etacal_error *err)
 {
@@ -265,6 +429,8 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
     int rc = ETACAL_OK;
     reader r;
     memset(&r, 0, sizeof r);
+    part *pt = NULL;
+    etacal_table *tb = NULL;
     *out = NULL;
     if (!opts)
         opts = &defaults;
@@ -277,52 +443,83 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
                 return etacal_error_set(err, ETACAL_EINVAL, NULL, "column '%s' is named twice",
                                         cols[i].name);
 
-    etacal_table *t = calloc(1, sizeof *t);
+    etacal_table *t = table_new(path, cols, ncols);
     if (!t)
         return etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
-    t->ncols = ncols;
-    t->cols = calloc(ncols ? ncols : 1, sizeof *t->cols);
-    t->source = dupstr(path);
-    r.stage_num = calloc(ncols ? ncols : 1, sizeof *r.stage_num);
-    r.stage_key = calloc(ncols ? ncols : 1, sizeof *r.stage_key);
-    r.seen = calloc(ncols ? ncols : 1, 1);
-    if (!t->cols || !t->source || !r.stage_num || !r.stage_key || !r.seen) {
+    if (reader_init(&r, t, cols, opts, path, err) != 0) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
         goto done;
     }
-    for (size_t i = 0; i < ncols; i++) {
-        column *c = &t->cols[i];
-        c->name = dupstr(cols[i].name);
-        if (!c->name) {
+    csvstream_cb cb = {on_field, on_row, &r, opts->progress, opts->progress_ud};
+
+    /* A large regular file is read in two halves at once, split at a
+     * record boundary; the rows keep their file order. */
+    uint64_t header_end = 0, split = 0;
+    size_t header_lines = 0, split_line = 0;
+    struct stat st;
+    int parallel = opts->threads != 1 && strcmp(path, "-") != 0 && stat(path, &st) == 0 &&
+                   S_ISREG(st.st_mode) && (uint64_t)st.st_size >= PARALLEL_MIN &&
+                   sysconf(_SC_NPROCESSORS_ONLN) > 1 &&
+                   csv_find_split(path, (uint64_t)st.st_size, &header_end, &header_lines, &split,
+                                  &split_line) == 0 &&
+                   header_end > 0 && split > header_end && split < (uint64_t)st.st_size;
+    if (!parallel) {
+        rc = csvstream_run(path, delim, 0, &cb, &t->stats.bytes, err);
+        if (rc)
+            goto done;
+    } else {
+        csvstream_range hr = {0, header_end, 1};
+        uint64_t hbytes = 0;
+        rc = csvstream_run_range(path, delim, 0, &cb, &hr, &hbytes, err);
+        if (rc)
+            goto done;
+        pt = calloc(1, sizeof *pt);
+        tb = table_new(path, cols, ncols);
+        if (!pt || !tb || reader_init(&pt->r, tb, cols, opts, path, &pt->err) != 0) {
             rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
             goto done;
         }
-        c->type = cols[i].type;
-        c->flags = cols[i].flags;
-        c->what = cols[i].what;
-        strdict_init(&c->dict);
+        etacal_error_clear(&pt->err);
+        pt->r.header_done = 1;
+        pt->r.role = r.role;
+        pt->r.nheader = r.nheader;
+        pt->range = (csvstream_range){split, (uint64_t)st.st_size, split_line};
+        pt->delim = delim;
+        thrd_t th;
+        int started = thrd_create(&th, part_main, pt) == thrd_success;
+        if (!started)
+            part_main(pt);
+        csvstream_range dr = {header_end, split, header_lines + 1};
+        rc = csvstream_run_range(path, delim, 0, &cb, &dr, &t->stats.bytes, err);
+        if (started)
+            thrd_join(th, NULL);
+        t->stats.bytes += hbytes;
+        if (rc)
+            goto done; /* the first error in file order */
+        if (pt->rc) {
+            rc = pt->rc;
+            *err = pt->err;
+            goto done;
+        }
+        tb->stats.bytes = pt->bytes;
+        stats_add(&t->stats, &tb->stats);
+        if (table_append(t, tb) != 0) {
+            rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+            goto done;
+        }
     }
-    r.t = t;
-    r.spec = cols;
-    r.opts = opts;
-    r.path = path;
-    r.err = err;
-    csvstream_cb cb = {on_field, on_row, &r, opts->progress, opts->progress_ud};
-    rc = csvstream_run(path, delim, 0, &cb, &t->stats.bytes, err);
-    if (rc)
-        goto done;
     if (!r.header_done) {
         rc = etacal_error_set(err, ETACAL_EPARSE, path, "empty file: expected a header row");
         goto done;
     }
-    etacal_read_stats *st = &t->stats;
-    if (st->bad && (double)st->bad > opts->max_bad_share * (double)st->data_rows) {
+    etacal_read_stats *rs = &t->stats;
+    if (rs->bad && (double)rs->bad > opts->max_bad_share * (double)rs->data_rows) {
         char where[128];
-        format_where(where, sizeof where, path, st->first_bad_line);
+        format_where(where, sizeof where, path, rs->first_bad_line);
         rc = etacal_error_set(err, ETACAL_EPARSE, where,
                               "%s (%zu of %zu data rows are malformed, more than the allowed "
                               "share %g)",
-                              st->first_bad_msg, st->bad, st->data_rows, opts->max_bad_share);
+                              rs->first_bad_msg, rs->bad, rs->data_rows, opts->max_bad_share);
         goto done;
     }
     /* Give back the unused tail of the geometric growth. */
@@ -343,10 +540,11 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
     }
 
 done:
-    free(r.role);
-    free(r.stage_num);
-    free(r.stage_key);
-    free(r.seen);
+    if (pt)
+        reader_free(&pt->r, 0);
+    free(pt);
+    etacal_table_destroy(tb);
+    reader_free(&r, 1);
     if (rc) {
         etacal_table_destroy(t);
         return rc;

@@ -15,6 +15,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <sys/types.h>
 
 #define CHUNK (1u << 20)
 
@@ -109,6 +110,12 @@ static int feed_record(struct csv_parser *p, ctx *c, const char *rec, size_t len
 int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb, uint64_t *bytes_out,
                   etacal_error *err)
 {
+    return csvstream_run_range(path, delim, raw, cb, NULL, bytes_out, err);
+}
+
+int csvstream_run_range(const char *path, char delim, int raw, const csvstream_cb *cb,
+                        const csvstream_range *range, uint64_t *bytes_out, etacal_error *err)
+{
     int rc = ETACAL_OK;
     FILE *fp = NULL;
     char *buf = NULL, *rec = NULL;
@@ -117,8 +124,9 @@ int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb,
     struct csv_parser p;
     int parser_ok = 0;
     uint64_t total = 0, done = 0;
-    ctx c = {.cb = cb, .line = 1, .count_nl = 1};
+    ctx c = {.cb = cb, .line = range ? range->first_line : 1, .count_nl = 1};
     int is_stdin = strcmp(path, "-") == 0;
+    uint64_t left = range ? range->end - range->start : UINT64_MAX;
 
     if (is_stdin) {
         fp = stdin;
@@ -138,6 +146,13 @@ int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb,
         if (S_ISREG(st.st_mode))
             total = (uint64_t)st.st_size;
     }
+    if (range) {
+        if (is_stdin || fseeko(fp, (off_t)range->start, SEEK_SET) != 0) {
+            rc = etacal_error_set(err, ETACAL_EIO, path, "cannot seek: %s", strerror(errno));
+            goto done;
+        }
+        total = left;
+    }
     buf = malloc(CHUNK);
     if (!buf) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
@@ -154,9 +169,11 @@ int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb,
     if (delim == '\t')
         csv_set_space_func(&p, is_space);
 
-    int first = 1;
+    int first = !range || range->start == 0;
     for (;;) {
-        size_t got = fread(buf, 1, CHUNK, fp);
+        size_t want = left < CHUNK ? (size_t)left : CHUNK;
+        size_t got = want ? fread(buf, 1, want, fp) : 0;
+        left -= got;
         if (got == 0) {
             if (ferror(fp)) {
                 rc = etacal_error_set(err, ETACAL_EIO, path, "read failed: %s", strerror(errno));
@@ -295,4 +312,68 @@ void rowbuf_free(rowbuf *r)
     free(r->off);
     free(r->flen);
     memset(r, 0, sizeof *r);
+}
+
+/* Line feeds in a block with no quote character. */
+static size_t count_lf(const unsigned char *b, size_t n)
+{
+    size_t c = 0;
+    for (size_t i = 0; i < n; i++)
+        c += b[i] == '\n';
+    return c;
+}
+
+int csv_find_split(const char *path, uint64_t size, uint64_t *header_end, size_t *header_lines,
+                   uint64_t *split, size_t *split_line)
+{
+    *header_end = 0;
+    *header_lines = 0;
+    *split = 0;
+    *split_line = 0;
+    FILE *fp = fopen(path, "rb");
+    if (!fp)
+        return -1;
+    unsigned char *buf = malloc(CHUNK);
+    if (!buf) {
+        fclose(fp);
+        return -1;
+    }
+    uint64_t pos = 0, mid = size / 2;
+    size_t lines = 0;
+    int parity = 0, rc = 0;
+    for (;;) {
+        size_t got = fread(buf, 1, CHUNK, fp);
+        if (got == 0) {
+            rc = ferror(fp) ? -1 : 0;
+            break;
+        }
+        size_t i = 0;
+        if (*header_end && pos + got < mid && !memchr(buf, '"', got)) {
+            lines += count_lf(buf, got); /* parity unchanged */
+            pos += got;
+            continue;
+        }
+        for (; i < got; i++) {
+            if (buf[i] == '"') {
+                parity ^= 1;
+            } else if (buf[i] == '\n') {
+                lines++;
+                if (parity)
+                    continue;
+                if (!*header_end) {
+                    *header_end = pos + i + 1;
+                    *header_lines = lines;
+                } else if (pos + i + 1 >= mid) {
+                    *split = pos + i + 1;
+                    *split_line = lines + 1;
+                    goto out;
+                }
+            }
+        }
+        pos += got;
+    }
+out:
+    free(buf);
+    fclose(fp);
+    return rc;
 }

@@ -86,6 +86,25 @@ typedef struct csvstream_cb {
 int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb, uint64_t *bytes_out,
                   etacal_error *err);
 
+/* A byte range of the file to parse ([start, end), starting on a record
+ * boundary) and the physical line number at start. */
+typedef struct csvstream_range {
+    uint64_t start, end;
+    size_t first_line;
+} csvstream_range;
+
+int csvstream_run_range(const char *path, char delim, int raw, const csvstream_cb *cb,
+                        const csvstream_range *range, uint64_t *bytes_out, etacal_error *err);
+
+/* Finds where the header record of a regular file ends and a record
+ * boundary near the middle of the rest, by quote parity (RFC 4180: quotes
+ * inside a field are doubled, so an even count of quote bytes before a
+ * line feed means the line feed ends a record).  Fills *header_end,
+ * *split (0 if none was found) and *split_line, the physical line at split.
+ * Returns 0, or -1 on a read error. */
+int csv_find_split(const char *path, uint64_t size, uint64_t *header_end, size_t *header_lines,
+                   uint64_t *split, size_t *split_line);
+
 /* "FILE:LINE" into buf. */
 void format_where(char *buf, size_t size, const char *path, size_t line);
 

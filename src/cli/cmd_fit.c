@@ -29,6 +29,8 @@ static const char help[] =
     "  --delim D             comma (default), semicolon, tab or pipe\n"
     "  --bad-rows error|skip malformed data rows are an error (default) or skipped and counted\n"
     "  --max-bad-share F     with --bad-rows skip: fail if more than this share is bad (default 0.01)\n"
+    "  --threads 1|auto      read a large file (16 MiB or more) in two halves at once\n"
+    "                        when there are two CPUs (auto, the default), or with one\n"
     "  -q, --quiet           no summary\n"
     "  -h, --help            show this help and exit\n"
     "\n"
@@ -165,13 +167,14 @@ out:
 
 int cmd_fit(int argc, char **argv)
 {
-    enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_DELIM, O_BAD, O_MAXBAD };
+    enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_DELIM, O_BAD, O_MAXBAD, O_THREADS };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL}, {"pred", required_argument, 0, O_PRED},
         {"by", required_argument, 0, O_BY},         {"target", required_argument, 0, O_TARGET},
         {"method", required_argument, 0, O_METHOD}, {"min-rows", required_argument, 0, O_MINROWS},
         {"output", required_argument, 0, 'o'},      {"delim", required_argument, 0, O_DELIM},
         {"bad-rows", required_argument, 0, O_BAD},  {"max-bad-share", required_argument, 0, O_MAXBAD},
+        {"threads", required_argument, 0, O_THREADS},
         {"quiet", no_argument, 0, 'q'},             {"help", no_argument, 0, 'h'},
         {0, 0, 0, 0}};
     const char *actual = NULL, *pred = NULL, *output = NULL;
@@ -220,6 +223,14 @@ int cmd_fit(int argc, char **argv)
         case O_MAXBAD:
             if (parse_share(optarg, &ro.max_bad_share) != 0)
                 return usage_error("fit", "--max-bad-share takes a share in [0,1]");
+            break;
+        case O_THREADS:
+            if (strcmp(optarg, "auto") == 0)
+                ro.threads = 0;
+            else if (strcmp(optarg, "1") == 0)
+                ro.threads = 1;
+            else
+                return usage_error("fit", "--threads must be 1 or auto");
             break;
         case 'q': quiet = 1; break;
         case 'h': fputs(help, stdout); return 0;
