@@ -27,8 +27,14 @@ double etacal_promise_round(double promise, double round_s)
 {
     if (!isfinite(promise))
         return promise;
-    if (round_s > 0)
-        return ceil(promise / round_s) * round_s;
+    if (round_s > 0) {
+        /* A promise already on the grid, up to decimal noise (2.1 / 0.3 is
+         * 7.000000000000001), stays where it is. */
+        double q = promise / round_s, r = nearbyint(q);
+        if (fabs(q - r) <= 1e-9 * (fabs(q) > 1 ? fabs(q) : 1))
+            return r * round_s;
+        return ceil(q) * round_s;
+    }
     return ceil_scaled(promise, 1000);
 }
 
@@ -174,18 +180,44 @@ static long lookup(applier *a, size_t ti, size_t *level_out)
     return -1;
 }
 
+/* Writes a promise in seconds.  Promises are whole milliseconds (or
+ * multiples of --round), so they print exactly from an integer count of
+ * milliseconds, with trailing zeros of the fraction dropped; printf's float
+ * formatting would cost more than the rest of apply. */
 static void put_promise(applier *a, double v)
 {
     char buf[64];
-    if (a->o->round_s > 0) {
-        etacal_num_format(v, buf);
-    } else {
-        int n = snprintf(buf, sizeof buf, "%.3f", v);
-        while (n > 0 && buf[n - 1] == '0')
-            buf[--n] = '\0';
-        if (n > 0 && buf[n - 1] == '.')
-            buf[--n] = '\0';
+    double ms = v * 1000;
+    double r = nearbyint(ms);
+    if (fabs(ms - r) <= 1e-6 && fabs(r) < 9e15) {
+        long long m = (long long)r;
+        char *e = buf + sizeof buf, *p = e;
+        int neg = m < 0;
+        unsigned long long u = neg ? (unsigned long long)(-m) : (unsigned long long)m;
+        unsigned frac = (unsigned)(u % 1000);
+        u /= 1000;
+        if (frac) {
+            int digits = 3;
+            while (frac % 10 == 0) {
+                frac /= 10;
+                digits--;
+            }
+            for (int i = 0; i < digits; i++) {
+                *--p = (char)('0' + frac % 10);
+                frac /= 10;
+            }
+            *--p = '.';
+        }
+        do {
+            *--p = (char)('0' + u % 10);
+            u /= 10;
+        } while (u);
+        if (neg)
+            *--p = '-';
+        fwrite(p, 1, (size_t)(e - p), a->out);
+        return;
     }
+    etacal_num_format(v, buf);
     fputs(buf, a->out);
 }
 

@@ -52,6 +52,9 @@ typedef struct reader {
     int row_bad;         /* 0 ok, 1 missing (skip), 2 malformed */
     char bad_msg[160];
     int fatal;           /* an error that --bad-rows skip does not cover */
+    rowbuf pending;      /* key values of the current row not yet in a dictionary */
+    size_t *pending_col;
+    size_t pending_cap;
     size_t first_col_bad;
 } reader;
 
@@ -100,8 +103,16 @@ static void data_field(reader *r, size_t col, const char *s, size_t len)
                     c->name, "");
             return;
         }
-        if (strdict_intern(&c->dict, s, len, &r->stage_key[ti]) != 0)
-            r->fatal = ETACAL_ENOMEM;
+        /* A value seen before gets its id now; a new one waits for the
+         * end of the row, so that a skipped row adds no key value. */
+        if (!strdict_find(&c->dict, s, len, &r->stage_key[ti])) {
+            rowbuf_add(&r->pending, s, len);
+            if (grow_array((void **)&r->pending_col, &r->pending_cap, r->pending.nf,
+                           sizeof *r->pending_col) != 0)
+                r->fatal = ETACAL_ENOMEM;
+            else
+                r->pending_col[r->pending.nf - 1] = (size_t)ti;
+        }
         return;
     }
     double v;
@@ -214,6 +225,8 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
     }
     int bad = r->row_bad;
     r->row_bad = 0;
+    if (bad)
+        rowbuf_reset(&r->pending); /* a skipped row leaves no key value behind */
     if (bad == 2) {
         format_where(where, sizeof where, r->path, line);
         if (r->opts->bad_rows != ETACAL_BAD_ROWS_SKIP) {
@@ -230,6 +243,21 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         st->missing++;
         return 0;
     }
+    if (r->pending.oom) {
+        format_where(where, sizeof where, r->path, line);
+        etacal_error_set(r->err, ETACAL_ENOMEM, where, "out of memory");
+        return 1;
+    }
+    for (size_t i = 0; i < r->pending.nf; i++) {
+        size_t ti = r->pending_col[i];
+        if (strdict_intern(&r->t->cols[ti].dict, rowbuf_get(&r->pending, i), rowbuf_len(&r->pending, i),
+                           &r->stage_key[ti]) != 0) {
+            format_where(where, sizeof where, r->path, line);
+            etacal_error_set(r->err, ETACAL_ENOMEM, where, "out of memory");
+            return 1;
+        }
+    }
+    rowbuf_reset(&r->pending);
     if (append_row(r) != 0) {
         format_where(where, sizeof where, r->path, line);
         etacal_error_set(r->err, ETACAL_ENOMEM, where, "out of memory");
@@ -308,6 +336,8 @@ static int reader_init(reader *r, etacal_table *t, const etacal_colspec *cols, c
 
 static void reader_free(reader *r, int owns_role)
 {
+    rowbuf_free(&r->pending);
+    free(r->pending_col);
     if (owns_role)
         free(r->role);
     free(r->stage_num);

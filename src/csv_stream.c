@@ -96,7 +96,10 @@ static int feed_record(struct csv_parser *p, ctx *c, const char *rec, size_t len
     c->rawlen = len;
     c->rows_in_raw = 0;
     size_t startline = c->line;
-    if (csv_parse(p, rec, len, on_field, on_row, c) != len)
+    size_t used = csv_parse(p, rec, len, on_field, on_row, c);
+    if (c->stopped)
+        return ETACAL_OK; /* the caller sees c->stopped and keeps that error */
+    if (used != len)
         return quote_error(p, path, startline, err);
     if (c->rows_in_raw > 1 && !c->stopped) {
         char where[128];
@@ -199,35 +202,65 @@ int csvstream_run_range(const char *path, char delim, int raw, const csvstream_c
              * per-field count can be skipped. */
             c.count_nl = p.quoted || memchr(data, '"', len) != NULL;
             size_t startline = c.line;
-            if (csv_parse(&p, data, len, on_field, on_row, &c) != len) {
+            size_t used = csv_parse(&p, data, len, on_field, on_row, &c);
+            if (c.stopped)
+                break; /* the callback's error is the first one; keep it */
+            if (used != len) {
                 rc = quote_error(&p, path, c.line ? c.line : startline, err);
                 goto done;
             }
         } else {
-            size_t start = 0;
-            for (size_t i = 0; i < len && !c.stopped; i++) {
-                char ch = data[i];
-                if (ch == '"') {
-                    in_quote = !in_quote;
-                } else if (ch == '\n' && !in_quote) {
-                    const char *r = data + start;
-                    size_t rl = i + 1 - start;
-                    if (reclen) {
-                        if (grow_array((void **)&rec, &reccap, reclen + rl, 1) != 0) {
-                            rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
-                            goto done;
-                        }
-                        memcpy(rec + reclen, r, rl);
-                        reclen += rl;
-                        r = rec;
-                        rl = reclen;
-                    }
-                    rc = feed_record(&p, &c, r, rl, path, err);
-                    reclen = 0;
-                    if (rc)
-                        goto done;
-                    start = i + 1;
+            /* Record ends are line feeds outside quotes.  memchr jumps from
+             * one quote or line feed to the next; a doubled quote toggles
+             * twice, so the parity stays right (RFC 4180). */
+            size_t start = 0, i = 0, nlpos = 0;
+            int have_nl = 0;
+            while (i < len && !c.stopped) {
+                if (in_quote) {
+                    const char *q = memchr(data + i, '"', len - i);
+                    if (!q)
+                        break;
+                    in_quote = 0;
+                    i = (size_t)(q - data) + 1;
+                    continue;
                 }
+                if (!have_nl || nlpos < i) {
+                    const char *nl = memchr(data + i, '\n', len - i);
+                    if (!nl) {
+                        /* the tail: its quotes set the state for the next chunk */
+                        for (const char *t = data + i;
+                             (t = memchr(t, '"', (size_t)(data + len - t))) != NULL; t++)
+                            in_quote = !in_quote;
+                        break;
+                    }
+                    nlpos = (size_t)(nl - data);
+                    have_nl = 1;
+                }
+                const char *q = memchr(data + i, '"', nlpos - i);
+                if (q) {
+                    in_quote = 1;
+                    i = (size_t)(q - data) + 1;
+                    continue;
+                }
+                i = nlpos;
+                const char *r = data + start;
+                size_t rl = i + 1 - start;
+                if (reclen) {
+                    if (grow_array((void **)&rec, &reccap, reclen + rl, 1) != 0) {
+                        rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+                        goto done;
+                    }
+                    memcpy(rec + reclen, r, rl);
+                    reclen += rl;
+                    r = rec;
+                    rl = reclen;
+                }
+                rc = feed_record(&p, &c, r, rl, path, err);
+                reclen = 0;
+                if (rc)
+                    goto done;
+                start = i + 1;
+                i = start;
             }
             if (!c.stopped && start < len) {
                 size_t rl = len - start;
@@ -250,7 +283,8 @@ int csvstream_run_range(const char *path, char delim, int raw, const csvstream_c
         c.rawlen = reclen;
         c.rows_in_raw = 0;
         size_t startline = c.line;
-        if (csv_parse(&p, rec, reclen, on_field, on_row, &c) != reclen) {
+        size_t used = csv_parse(&p, rec, reclen, on_field, on_row, &c);
+        if (!c.stopped && used != reclen) {
             rc = quote_error(&p, path, startline, err);
             goto done;
         }
@@ -283,6 +317,15 @@ void rowbuf_add(rowbuf *r, const char *s, size_t len)
 {
     if (r->oom)
         return;
+    if (r->len + len + 1 <= r->cap && r->nf < r->fcap) {
+        memcpy(r->buf + r->len, s, len);
+        r->buf[r->len + len] = '\0';
+        r->off[r->nf] = r->len;
+        r->flen[r->nf] = len;
+        r->nf++;
+        r->len += len + 1;
+        return;
+    }
     if (grow_array((void **)&r->buf, &r->cap, r->len + len + 1, 1) != 0) {
         r->oom = 1;
         return;

@@ -43,21 +43,22 @@ static int lower_eq(const char *s, size_t len, const char *word)
 
 static double slow_parse(const char *s, size_t len, int *ok)
 {
-    char buf[512];
-    if (len >= sizeof buf) {
-        *ok = 0;
+    char small[512];
+    char *buf = len < sizeof small ? small : malloc(len + 1);
+    *ok = 0;
+    if (!buf)
         return 0;
-    }
     memcpy(buf, s, len);
     buf[len] = '\0';
     call_once(&c_locale_once, make_c_locale);
-    if (c_locale == (locale_t)0) {
-        *ok = 0;
-        return 0;
+    double v = 0;
+    if (c_locale != (locale_t)0) {
+        char *end;
+        v = strtod_l(buf, &end, c_locale);
+        *ok = (end == buf + len);
     }
-    char *end;
-    double v = strtod_l(buf, &end, c_locale);
-    *ok = (end == buf + len);
+    if (buf != small)
+        free(buf);
     return v;
 }
 
@@ -204,17 +205,40 @@ size_t etacal_num_format(double x, char *buf)
         if (etacal_num_parse(buf, (size_t)len, &back) == ETACAL_NUM_VALUE && back == x)
             break;
     }
+    /* buf is d[.ddd]e[+-]XX with the shortest digits; write it in positional
+     * notation when the exponent is moderate, from those digits alone (so
+     * 1.8e+03 becomes 1800 and no digit beyond the shortest form appears). */
     const char *e = strchr(buf, 'e');
     int e10 = e ? atoi(e + 1) : 0;
-    if (e10 >= -5 && e10 < 17) {
-        /* Positional notation with just the digits needed. */
-        int decimals = prec - 1 - e10;
-        if (decimals < 0)
-            decimals = 0;
-        len = snprintf(buf, ETACAL_NUM_BUFSZ, "%.*f", decimals, x);
-        for (int i = 0; i < len; i++)
-            if (buf[i] == ',')
-                buf[i] = '.';
+    if (e && e10 >= -5 && e10 < 17) {
+        char digits[24];
+        int nd = 0, neg = buf[0] == '-';
+        for (const char *c = buf; c < e; c++)
+            if (*c >= '0' && *c <= '9')
+                digits[nd++] = *c;
+        char out[ETACAL_NUM_BUFSZ];
+        int w = 0;
+        if (neg)
+            out[w++] = '-';
+        if (e10 < 0) {
+            out[w++] = '0';
+            out[w++] = '.';
+            for (int i = 0; i < -e10 - 1; i++)
+                out[w++] = '0';
+            for (int i = 0; i < nd; i++)
+                out[w++] = digits[i];
+        } else {
+            for (int i = 0; i <= e10; i++)
+                out[w++] = i < nd ? digits[i] : '0';
+            if (nd > e10 + 1) {
+                out[w++] = '.';
+                for (int i = e10 + 1; i < nd; i++)
+                    out[w++] = digits[i];
+            }
+        }
+        out[w] = '\0';
+        memcpy(buf, out, (size_t)w + 1);
+        len = w;
     }
     return (size_t)len;
 }

@@ -163,20 +163,9 @@ int strdict_intern(strdict *d, const char *s, size_t len, uint32_t *id)
  * tau = num / 10^den_exp. */
 static int decimal_parts(double tau, uint64_t *num, int *den_exp)
 {
-    char buf[ETACAL_NUM_BUFSZ];
     char ebuf[64];
-    size_t n = etacal_num_format(tau, buf);
-    (void)n;
-    /* Re-express in scientific form with the same significant digits. */
-    int sig = 0;
-    for (const char *c = buf; *c && *c != 'e' && *c != 'E'; c++)
-        if (*c >= '0' && *c <= '9')
-            sig++;
-    if (sig < 1)
-        sig = 1;
-    if (sig > 17)
-        sig = 17;
-    for (int prec = sig - 1; prec <= 16; prec++) {
+    /* The shortest scientific form that reads back as tau. */
+    for (int prec = 0; prec <= 16; prec++) {
         snprintf(ebuf, sizeof ebuf, "%.*e", prec, tau);
         double back;
         for (char *c = ebuf; *c; c++)

@@ -17,8 +17,9 @@ extern "C" {
 #endif
 
 /* k = ceil(m * tau) computed exactly for tau as its shortest decimal form
- * (0.3 is 3/10), so k never comes out one too high through rounding; a plain
- * ceil((n+1)*0.3) in double is 4 for n = 9.  tau must be in [0,1]. */
+ * (0.3 is 3/10), so k never comes out one too high through rounding: for
+ * n = 9 and alpha = 0.7, a plain ceil((n+1)*(1-alpha)) in double is 4, the
+ * exact rank 3.  tau must be in [0,1]. */
 size_t etacal_ceil_mul(size_t m, double tau);
 
 /* The conformal rank ceil((n+1) tau).  May exceed n. */

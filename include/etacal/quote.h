@@ -69,7 +69,8 @@ typedef struct etacal_quote {
 
 /* A quote table.  Read-only for callers; built by etacal_quotes_fit or
  * etacal_quotes_read_csv and freed by etacal_quotes_destroy.  segs[0] is the
- * global segment; the other segments are sorted by their key texts. */
+ * global segment.  A fitted table has the other segments sorted by their key
+ * texts (bytewise); a table read from a file keeps the file's order. */
 typedef struct etacal_quotes {
     size_t nkeys;
     char **key_names;

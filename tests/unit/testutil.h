@@ -48,11 +48,14 @@ static inline void tu_rm_tree(const char *path)
     if (!dp)
         return;
     struct dirent *de;
-    char sub[1024];
     while ((de = readdir(dp)) != NULL) {
         if (strcmp(de->d_name, ".") == 0 || strcmp(de->d_name, "..") == 0)
             continue;
-        snprintf(sub, sizeof sub, "%s/%s", path, de->d_name);
+        size_t size = strlen(path) + strlen(de->d_name) + 2;
+        char *sub = malloc(size);
+        if (!sub)
+            break;
+        snprintf(sub, size, "%s/%s", path, de->d_name);
         struct stat st;
         if (lstat(sub, &st) == 0 && S_ISDIR(st.st_mode)) {
             chmod(sub, 0700);
@@ -60,6 +63,7 @@ static inline void tu_rm_tree(const char *path)
         } else {
             unlink(sub);
         }
+        free(sub);
     }
     closedir(dp);
     rmdir(path);

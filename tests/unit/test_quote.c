@@ -1,0 +1,748 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* test_quote.c: fitting quote tables (etacal_quotes_fit), writing them as
+ * CSV and reading them back (etacal_quotes_write_csv / _read_csv), with the
+ * reader's validation errors.
+ *
+ * The main fit is small enough to check by hand: every expected bound below
+ * is the k-th smallest of the listed scores, k = ceil((n+1) tau), rounded up
+ * to a whole millisecond (add) or to 1e-6 (ratio). */
+#define _GNU_SOURCE
+#include <stdarg.h>
+#include <stddef.h>
+#include <setjmp.h>
+#include <stdint.h>
+#include <cmocka.h>
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "etacal/etacal.h"
+#include "internal.h"
+#include "testutil.h"
+
+typedef struct fixture {
+    tu_dir dir;
+    char path[600];
+    etacal_table *t;
+    etacal_quotes *q, *q2;
+    etacal_error err;
+} fixture;
+
+static int setup(void **state)
+{
+    fixture *f = calloc(1, sizeof *f);
+    if (!f)
+        return -1;
+    tu_dir_make(&f->dir);
+    *state = f;
+    return 0;
+}
+
+static int teardown(void **state)
+{
+    fixture *f = *state;
+    etacal_table_destroy(f->t);
+    etacal_quotes_destroy(f->q);
+    etacal_quotes_destroy(f->q2);
+    tu_dir_remove(&f->dir);
+    free(f);
+    return 0;
+}
+
+/* Table columns: 0 actual_s, 1 pred_s, 2 zone, 3 vehicle (nkeys of them). */
+static void load(fixture *f, const char *text, size_t nkeys)
+{
+    static const etacal_colspec cols[] = {
+        {"actual_s", ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_NONNEG | ETACAL_NUM_FINITE,
+         "duration"},
+        {"pred_s", ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_NONNEG | ETACAL_NUM_FINITE,
+         "prediction"},
+        {"zone", ETACAL_COL_KEY, 0, NULL},
+        {"vehicle", ETACAL_COL_KEY, 0, NULL},
+    };
+    etacal_table_destroy(f->t);
+    f->t = NULL;
+    tu_write_text(&f->dir, "calib.csv", text, f->path, sizeof f->path);
+    etacal_error e;
+    if (etacal_table_read_csv(f->path, cols, 2 + nkeys, NULL, &f->t, &e) != ETACAL_OK)
+        fail_msg("reading the calibration data: %s: %s", e.where, e.msg);
+}
+
+static int fit(fixture *f, size_t nkeys, int method, const double *targets, size_t ntargets,
+               size_t min_rows)
+{
+    static const size_t keys[] = {2, 3};
+    etacal_fit_opts o = {method, targets, ntargets, min_rows};
+    etacal_quotes_destroy(f->q);
+    f->q = NULL;
+    etacal_error_clear(&f->err);
+    return etacal_quotes_fit(f->t, 0, 1, keys, nkeys, &o, &f->q, &f->err);
+}
+
+/* The hand-checked data set: 17 orders in three zones, interleaved so that
+ * the zones first appear as north, south, east.  Scores actual - pred:
+ *   north (9): -30.25 -5.5 7.75 12.5 19.9 48.125 63.0625 86.2 101.3755
+ *   south (6): -9.875 22.25 33.3 55 77.4375 120.5
+ *   east  (2): -4.75 90.5
+ * all 17 sorted: -30.25 -9.875 -5.5 -4.75 7.75 12.5 19.9 22.25 33.3 48.125
+ *   55 63.0625 77.4375 86.2 90.5 101.3755 120.5 */
+static const char *calib_csv = "order_id,zone,pred_s,actual_s\n"
+                               "1,north,600,612.5\n"
+                               "2,south,500,533.3\n"
+                               "3,north,900,869.75\n"
+                               "4,east,1100,1190.5\n"
+                               "5,south,650,640.125\n"
+                               "6,north,1200,1248.125\n"
+                               "7,north,450,457.75\n"
+                               "8,south,1000,1120.5\n"
+                               "9,north,1500,1601.3755\n"
+                               "10,east,820,815.25\n"
+                               "11,south,380,402.25\n"
+                               "12,north,720,714.5\n"
+                               "13,north,1080,1143.0625\n"
+                               "14,south,1400,1455\n"
+                               "15,north,300,386.2\n"
+                               "16,south,760,837.4375\n"
+                               "17,north,840,859.9\n";
+
+static const char *calib_quotes_csv = "zone,target,method,n,k,offset_s,slope\n"
+                                      "*,0.8,add,17,15,90.5,1\n"
+                                      "*,0.9,add,17,17,120.5,1\n"
+                                      "north,0.8,add,9,8,86.2,1\n"
+                                      "north,0.9,add,9,9,101.376,1\n"
+                                      "south,0.8,add,6,6,120.5,1\n";
+
+static void check_row(const etacal_quotes *q, size_t r, const char *key, size_t target, size_t n,
+                      size_t k, double offset, double slope)
+{
+    assert_true(r < q->nrows);
+    const etacal_quote *row = &q->rows[r];
+    assert_string_equal(q->segs[row->seg].keys[0], key);
+    assert_int_equal(row->target, target);
+    assert_int_equal(row->n, n);
+    assert_int_equal(row->k, k);
+    assert_close(row->offset_s, offset, 1e-13);
+    assert_close(row->slope, slope, 1e-13);
+}
+
+static void test_fit_hand_checked(void **state)
+{
+    fixture *f = *state;
+    load(f, calib_csv, 1);
+    const double targets[] = {0.9, 0.8}; /* unsorted on purpose */
+    assert_int_equal(fit(f, 1, ETACAL_METHOD_ADD, targets, 2, 5), ETACAL_OK);
+    const etacal_quotes *q = f->q;
+    assert_int_equal(q->method, ETACAL_METHOD_ADD);
+    assert_int_equal(q->nkeys, 1);
+    assert_string_equal(q->key_names[0], "zone");
+    assert_int_equal(q->ntargets, 2);
+    assert_same_double(q->targets[0], 0.8);
+    assert_same_double(q->targets[1], 0.9);
+    assert_int_equal(etacal_quotes_find_target(q, 0.9), 1);
+    assert_int_equal(etacal_quotes_find_target(q, 0.8), 0);
+    assert_int_equal(etacal_quotes_find_target(q, 0.85), -1);
+
+    /* Segments: global first, then sorted by key text. */
+    assert_int_equal(q->nsegs, 4);
+    static const char *names[] = {"*", "east", "north", "south"};
+    static const size_t ns[] = {17, 2, 9, 6}, bare[] = {4, 1, 2, 1};
+    for (size_t s = 0; s < 4; s++) {
+        assert_string_equal(q->segs[s].keys[0], names[s]);
+        assert_int_equal(q->segs[s].n, ns[s]);
+        assert_int_equal(q->segs[s].bare_hits, bare[s]);
+    }
+    const etacal_segment *gl = &q->segs[0], *east = &q->segs[1], *north = &q->segs[2],
+                         *south = &q->segs[3];
+    /* global n=17: k(.8) = ceil(14.4) = 15 -> 90.5; k(.9) = ceil(16.2) = 17 -> 120.5 */
+    assert_int_equal(gl->k[0], 15);
+    assert_int_equal(gl->k[1], 17);
+    assert_close(gl->score_q[0], 90.5, 1e-15);
+    assert_close(gl->score_q[1], 120.5, 1e-15);
+    assert_int_equal(gl->status[0], ETACAL_OWN_ROW);
+    assert_int_equal(gl->status[1], ETACAL_OWN_ROW);
+    /* north n=9: k(.8) = 8 -> 86.2; k(.9) = 9 -> 101.3755 (the table rounds it
+     * up to 101.376) */
+    assert_int_equal(north->k[0], 8);
+    assert_int_equal(north->k[1], 9);
+    assert_close(north->score_q[0], 86.2, 1e-12);
+    assert_close(north->score_q[1], 101.3755, 1e-12);
+    assert_int_equal(north->status[0], ETACAL_OWN_ROW);
+    assert_int_equal(north->status[1], ETACAL_OWN_ROW);
+    /* south n=6: k(.8) = ceil(5.6) = 6 -> 120.5; k(.9) = ceil(6.3) = 7 > 6 */
+    assert_int_equal(south->k[0], 6);
+    assert_int_equal(south->k[1], 7);
+    assert_close(south->score_q[0], 120.5, 1e-15);
+    assert_true(isinf(south->score_q[1]) && south->score_q[1] > 0);
+    assert_int_equal(south->status[0], ETACAL_OWN_ROW);
+    assert_int_equal(south->status[1], ETACAL_FALLBACK_RANK);
+    /* east n=2 < min_rows 5: falls back for both (k = 3 > 2 as well) */
+    assert_int_equal(east->status[0], ETACAL_FALLBACK_FEW_ROWS);
+    assert_int_equal(east->status[1], ETACAL_FALLBACK_FEW_ROWS);
+    assert_int_equal(east->k[0], 3);
+    assert_true(isinf(east->score_q[0]));
+
+    /* Rows: by segment, then target; own rows only. */
+    assert_int_equal(q->nrows, 5);
+    check_row(q, 0, "*", 0, 17, 15, 90.5, 1);
+    check_row(q, 1, "*", 1, 17, 17, 120.5, 1);
+    check_row(q, 2, "north", 0, 9, 8, 86.2, 1);
+    check_row(q, 3, "north", 1, 9, 9, 101.376, 1);
+    check_row(q, 4, "south", 0, 6, 6, 120.5, 1);
+    for (size_t r = 0; r < q->nrows; r++)
+        assert_int_equal(q->rows[r].method, ETACAL_METHOD_ADD);
+    /* Rounded up, never down. */
+    assert_true(q->rows[3].offset_s >= north->score_q[1]);
+
+    /* Accuracy over all 17 (sums of the exact decimal differences, python
+     * fractions): mean error 687.5255/17, MAE 788.2755/17, RMSE
+     * sqrt(59014.05856275/17). */
+    assert_int_equal(q->accuracy.n, 17);
+    assert_int_equal(q->accuracy.on_time, 4);
+    assert_close(q->accuracy.mean_error, 40.44267647058823, 1e-12);
+    assert_close(q->accuracy.mae, 46.36914705882353, 1e-12);
+    assert_close(q->accuracy.rmse, 58.91871697154928, 1e-12);
+}
+
+static void test_fit_default_min_rows_and_no_keys(void **state)
+{
+    fixture *f = *state;
+    load(f, calib_csv, 1);
+    const double targets[] = {0.8};
+    /* min_rows 0 means 200: every zone falls back, the global row stays. */
+    assert_int_equal(fit(f, 1, ETACAL_METHOD_ADD, targets, 1, 0), ETACAL_OK);
+    assert_int_equal(f->q->nsegs, 4);
+    for (size_t s = 1; s < 4; s++)
+        assert_int_equal(f->q->segs[s].status[0], ETACAL_FALLBACK_FEW_ROWS);
+    assert_int_equal(f->q->nrows, 1);
+    check_row(f->q, 0, "*", 0, 17, 15, 90.5, 1);
+    /* No key columns: the global segment only. */
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_ADD, targets, 1, 5), ETACAL_OK);
+    assert_int_equal(f->q->nkeys, 0);
+    assert_int_equal(f->q->nsegs, 1);
+    assert_int_equal(f->q->nrows, 1);
+    assert_int_equal(f->q->rows[0].k, 15);
+    assert_close(f->q->rows[0].offset_s, 90.5, 1e-15);
+    /* Duplicated targets count once. */
+    const double dup[] = {0.9, 0.8, 0.9, 0.8};
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_ADD, dup, 4, 5), ETACAL_OK);
+    assert_int_equal(f->q->ntargets, 2);
+    assert_int_equal(f->q->nrows, 2);
+}
+
+static void test_fit_ratio(void **state)
+{
+    fixture *f = *state;
+    /* Ratios actual/pred: 1.234567875 1.1 0.96 1.1 1.1004 1.17 1.13 0.95 1.12;
+     * sorted 0.95 0.96 1.1 1.1 1.1004 1.12 1.13 1.17 1.234567875.
+     * n=9: k(.8) = 8 -> 1.17; k(.9) = 9 -> 1.234567875, up to 1.234568. */
+    load(f,
+         "pred_s,actual_s\n800,987.6543\n1000,1100\n500,480\n640,704\n1250,1375.5\n900,1053\n"
+         "400,452\n1600,1520\n720,806.4\n",
+         0);
+    const double targets[] = {0.8, 0.9};
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_RATIO, targets, 2, 5), ETACAL_OK);
+    const etacal_quotes *q = f->q;
+    assert_int_equal(q->method, ETACAL_METHOD_RATIO);
+    assert_int_equal(q->nrows, 2);
+    assert_int_equal(q->rows[0].k, 8);
+    assert_int_equal(q->rows[1].k, 9);
+    assert_close(q->segs[0].score_q[0], 1.17, 1e-14);
+    assert_close(q->segs[0].score_q[1], 1.234567875, 1e-14);
+    assert_same_double(q->rows[0].offset_s, 0.0);
+    assert_close(q->rows[0].slope, 1.17, 1e-15);
+    assert_close(q->rows[1].slope, 1.234568, 1e-15);
+    assert_int_equal(q->rows[0].method, ETACAL_METHOD_RATIO);
+    /* The text. */
+    char *buf = NULL;
+    size_t len = 0;
+    FILE *fp = open_memstream(&buf, &len);
+    assert_non_null(fp);
+    assert_int_equal(etacal_quotes_write_csv(q, fp, &f->err), ETACAL_OK);
+    fclose(fp);
+    assert_string_equal(buf, "target,method,n,k,offset_s,slope\n"
+                             "0.8,ratio,9,8,0,1.17\n"
+                             "0.9,ratio,9,9,0,1.234568\n");
+    /* ... and back: no key columns, the global segment has no keys. */
+    tu_write_text(&f->dir, "ratio.csv", buf, f->path, sizeof f->path);
+    free(buf);
+    assert_int_equal(etacal_quotes_read_csv(f->path, 0, &f->q2, &f->err), ETACAL_OK);
+    assert_int_equal(f->q2->nkeys, 0);
+    assert_int_equal(f->q2->method, ETACAL_METHOD_RATIO);
+    assert_int_equal(f->q2->nsegs, 1);
+    assert_int_equal(f->q2->nrows, 2);
+    assert_close(f->q2->rows[1].slope, 1.234568, 1e-15);
+}
+
+static void test_fit_ratio_needs_positive_predictions(void **state)
+{
+    fixture *f = *state;
+    load(f, "pred_s,actual_s\n800,987.6543\n1000,1100\n0,480\n640,704\n", 0);
+    const double targets[] = {0.5};
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_RATIO, targets, 1, 1), ETACAL_EINVAL);
+    assert_null(f->q);
+    assert_error(&f->err, ETACAL_EINVAL, f->path,
+                 "method ratio needs predictions > 0 (data row 3 has 0)");
+    /* The same data fits with the add method. */
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_ADD, targets, 1, 1), ETACAL_OK);
+}
+
+static void test_fit_errors(void **state)
+{
+    fixture *f = *state;
+    /* 8 rows: at tau .9 the rank ceil(9 * .9) = 9 > 8, and the global
+     * segment needs at least 9. */
+    load(f,
+         "pred_s,actual_s\n800,987.6543\n1000,1100\n500,480\n640,704\n1250,1375.5\n900,1053\n"
+         "400,452\n1600,1520\n",
+         0);
+    const double t89[] = {0.8, 0.9};
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_ADD, t89, 2, 5), ETACAL_ENUM);
+    assert_null(f->q);
+    assert_error(&f->err, ETACAL_ENUM, f->path,
+                 "only 8 rows: a promise for target 0.9 needs at least 9 calibration rows (rank "
+                 "ceil((n+1)*tau) must not exceed n)");
+    const double t95[] = {0.95};
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_ADD, t95, 1, 5), ETACAL_ENUM);
+    assert_error(&f->err, ETACAL_ENUM, f->path,
+                 "only 8 rows: a promise for target 0.95 needs at least 19 calibration rows (rank "
+                 "ceil((n+1)*tau) must not exceed n)");
+    /* 0.8 alone is fine: ceil(9 * .8) = 8. */
+    const double t8[] = {0.8};
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_ADD, t8, 1, 5), ETACAL_OK);
+    assert_int_equal(f->q->rows[0].k, 8);
+
+    /* Targets outside (0,1), none, NaN. */
+    const double bad1[] = {0.9, 1.0};
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_ADD, bad1, 2, 5), ETACAL_EINVAL);
+    assert_error(&f->err, ETACAL_EINVAL, "", "target must be an on-time rate in (0,1), got 1");
+    const double bad0[] = {0.0};
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_ADD, bad0, 1, 5), ETACAL_EINVAL);
+    assert_error(&f->err, ETACAL_EINVAL, "", "target must be an on-time rate in (0,1), got 0");
+    const double badn[] = {NAN};
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_ADD, badn, 1, 5), ETACAL_EINVAL);
+    assert_error(&f->err, ETACAL_EINVAL, "", "target must be an on-time rate in (0,1), got nan");
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_ADD, t8, 0, 5), ETACAL_EINVAL);
+    assert_error(&f->err, ETACAL_EINVAL, "", "no target given");
+    /* Unknown method. */
+    assert_int_equal(fit(f, 0, 7, t8, 1, 5), ETACAL_EINVAL);
+    assert_error(&f->err, ETACAL_EINVAL, "", "unknown method 7");
+    assert_null(f->q);
+
+    /* No rows at all. */
+    load(f, "pred_s,actual_s\n", 0);
+    assert_int_equal(fit(f, 0, ETACAL_METHOD_ADD, t8, 1, 5), ETACAL_ENUM);
+    assert_error(&f->err, ETACAL_ENUM, f->path, "no data rows with both an actual and a prediction");
+
+    /* Columns of the wrong type. */
+    load(f, calib_csv, 1);
+    etacal_fit_opts o = {ETACAL_METHOD_ADD, t8, 1, 5};
+    const size_t notkey[] = {1};
+    assert_int_equal(etacal_quotes_fit(f->t, 0, 1, notkey, 1, &o, &f->q, &f->err), ETACAL_EINVAL);
+    assert_error(&f->err, ETACAL_EINVAL, "", "'pred_s' is not a key column");
+    const size_t key[] = {2};
+    assert_int_equal(etacal_quotes_fit(f->t, 2, 1, key, 1, &o, &f->q, &f->err), ETACAL_EINVAL);
+    assert_error(&f->err, ETACAL_EINVAL, "", "actual and prediction must be numeric columns");
+}
+
+/* Two keys and random data against a brute-force computation of every
+ * bound: scores per segment sorted with qsort, k with integer arithmetic. */
+static int cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+static void test_fit_random_against_brute_force(void **state)
+{
+    fixture *f = *state;
+    static const char *zones[] = {"west", "north", "east"};
+    static const char *veh[] = {"car", "bike"};
+    /* segment sizes chosen to cover own rows, few rows (9 < min_rows 10)
+     * and rank > n (18 rows at .95: ceil(19 * .95) = 19) */
+    static const size_t sizes[3][2] = {{400, 35}, {150, 9}, {60, 18}};
+    tu_rng r = {UINT64_C(2385)};
+    size_t total = 0;
+    for (int z = 0; z < 3; z++)
+        for (int v = 0; v < 2; v++)
+            total += sizes[z][v];
+    size_t cap = total * 64 + 64, n = 0;
+    char *text = malloc(cap);
+    double *sc[3][2];
+    size_t cnt[3][2] = {{0}};
+    assert_non_null(text);
+    for (int z = 0; z < 3; z++)
+        for (int v = 0; v < 2; v++) {
+            sc[z][v] = malloc(sizes[z][v] * sizeof(double));
+            assert_non_null(sc[z][v]);
+        }
+    double *all = malloc(total * sizeof *all);
+    assert_non_null(all);
+    n += (size_t)snprintf(text + n, cap - n, "vehicle,pred_s,zone,actual_s\n");
+    size_t left[3][2];
+    memcpy(left, sizes, sizeof left);
+    for (size_t i = 0; i < total; i++) {
+        int z, v;
+        do {
+            z = (int)tu_below(&r, 3);
+            v = (int)tu_below(&r, 2);
+        } while (left[z][v] == 0);
+        left[z][v]--;
+        /* whole-millisecond values, so each score is a short decimal */
+        long pred_ms = 300000 + (long)tu_below(&r, 1500000);
+        long act_ms = pred_ms - 200000 + (long)tu_below(&r, 600000) + 50000 * z;
+        if (act_ms < 0)
+            act_ms = 0;
+        n += (size_t)snprintf(text + n, cap - n, "%s,%ld.%03ld,%s,%ld.%03ld\n", veh[v],
+                              pred_ms / 1000, pred_ms % 1000, zones[z], act_ms / 1000, act_ms % 1000);
+        double s = (double)act_ms / 1000.0 - (double)pred_ms / 1000.0;
+        sc[z][v][cnt[z][v]++] = s;
+        all[i] = s;
+    }
+    load(f, text, 2);
+    free(text);
+    const double targets[] = {0.95, 0.8, 0.9};
+    const uint64_t tnum[] = {8, 9, 95}, tden[] = {10, 10, 100}; /* sorted: .8 .9 .95 */
+    assert_int_equal(fit(f, 2, ETACAL_METHOD_ADD, targets, 3, 10), ETACAL_OK);
+    const etacal_quotes *q = f->q;
+    assert_int_equal(q->nsegs, 7);
+    assert_int_equal(q->nkeys, 2);
+    assert_string_equal(q->key_names[0], "zone");
+    assert_string_equal(q->key_names[1], "vehicle");
+    /* sorted by (zone, vehicle) text */
+    static const int order[6][2] = {{2, 1}, {2, 0}, {1, 1}, {1, 0}, {0, 1}, {0, 0}};
+    assert_string_equal(q->segs[0].keys[0], "*");
+    assert_string_equal(q->segs[0].keys[1], "*");
+    size_t expect_rows = 0;
+    for (size_t s = 0; s <= 6; s++) {
+        const etacal_segment *g = &q->segs[s];
+        double *v;
+        size_t m;
+        if (s == 0) {
+            v = all;
+            m = total;
+        } else {
+            int z = order[s - 1][0], ve = order[s - 1][1];
+            assert_string_equal(g->keys[0], zones[z]);
+            assert_string_equal(g->keys[1], veh[ve]);
+            v = sc[z][ve];
+            m = sizes[z][ve];
+        }
+        assert_int_equal(g->n, m);
+        qsort(v, m, sizeof *v, cmp_double);
+        for (size_t ti = 0; ti < 3; ti++) {
+            uint64_t k = ((m + 1) * tnum[ti] + tden[ti] - 1) / tden[ti];
+            assert_int_equal(g->k[ti], k);
+            int want_status = s == 0       ? ETACAL_OWN_ROW
+                              : m < 10     ? ETACAL_FALLBACK_FEW_ROWS
+                              : k > m      ? ETACAL_FALLBACK_RANK
+                                           : ETACAL_OWN_ROW;
+            assert_int_equal(g->status[ti], want_status);
+            if (k <= m)
+                assert_same_double(g->score_q[ti], v[k - 1]);
+            else
+                assert_true(isinf(g->score_q[ti]));
+            expect_rows += want_status == ETACAL_OWN_ROW;
+        }
+    }
+    assert_int_equal(q->nrows, expect_rows);
+    for (size_t i = 0; i < q->nrows; i++) {
+        const etacal_quote *row = &q->rows[i];
+        if (i) { /* by segment, then target */
+            const etacal_quote *prev = &q->rows[i - 1];
+            assert_true(prev->seg < row->seg || (prev->seg == row->seg && prev->target < row->target));
+        }
+        double s = q->segs[row->seg].score_q[row->target];
+        /* rounded up to a whole millisecond, never down */
+        assert_true(row->offset_s >= s - 1e-9 * fabs(s));
+        assert_true(row->offset_s - s < 0.001 + 1e-9);
+        assert_close(row->offset_s * 1000, nearbyint(row->offset_s * 1000), 1e-12);
+    }
+    for (int z = 0; z < 3; z++)
+        for (int v = 0; v < 2; v++)
+            free(sc[z][v]);
+    free(all);
+}
+
+static void test_write_and_read_back(void **state)
+{
+    fixture *f = *state;
+    load(f, calib_csv, 1);
+    const double targets[] = {0.8, 0.9};
+    assert_int_equal(fit(f, 1, ETACAL_METHOD_ADD, targets, 2, 5), ETACAL_OK);
+    char *buf = NULL;
+    size_t len = 0;
+    FILE *fp = open_memstream(&buf, &len);
+    assert_non_null(fp);
+    assert_int_equal(etacal_quotes_write_csv(f->q, fp, &f->err), ETACAL_OK);
+    fclose(fp);
+    assert_string_equal(buf, calib_quotes_csv);
+    tu_write_text(&f->dir, "quotes.csv", buf, f->path, sizeof f->path);
+    free(buf);
+    assert_int_equal(etacal_quotes_read_csv(f->path, 0, &f->q2, &f->err), ETACAL_OK);
+    const etacal_quotes *a = f->q, *b = f->q2;
+    assert_int_equal(b->nkeys, 1);
+    assert_string_equal(b->key_names[0], "zone");
+    assert_int_equal(b->method, ETACAL_METHOD_ADD);
+    assert_int_equal(b->ntargets, 2);
+    assert_same_double(b->targets[0], 0.8);
+    assert_same_double(b->targets[1], 0.9);
+    assert_int_equal(b->nrows, a->nrows);
+    for (size_t r = 0; r < a->nrows; r++) {
+        const etacal_quote *x = &a->rows[r], *y = &b->rows[r];
+        assert_string_equal(a->segs[x->seg].keys[0], b->segs[y->seg].keys[0]);
+        assert_int_equal(x->target, y->target);
+        assert_int_equal(x->method, y->method);
+        assert_int_equal(x->n, y->n);
+        assert_int_equal(x->k, y->k);
+        assert_same_double(x->offset_s, y->offset_s);
+        assert_same_double(x->slope, y->slope);
+    }
+    /* segments of the read table: global first */
+    assert_int_equal(b->nsegs, 3);
+    assert_string_equal(b->segs[0].keys[0], "*");
+    assert_int_equal(b->segs[0].status[0], ETACAL_OWN_ROW);
+    assert_int_equal(b->segs[2].status[1], ETACAL_FALLBACK_FEW_ROWS); /* south has no .9 row */
+    /* Writing the read table gives the same text. */
+    buf = NULL;
+    fp = open_memstream(&buf, &len);
+    assert_non_null(fp);
+    assert_int_equal(etacal_quotes_write_csv(b, fp, &f->err), ETACAL_OK);
+    fclose(fp);
+    assert_string_equal(buf, calib_quotes_csv);
+    free(buf);
+}
+
+static void test_write_quotes_key_fields(void **state)
+{
+    fixture *f = *state;
+    /* Key values that need quoting on the way out, and back. */
+    char text[4096];
+    size_t n = (size_t)snprintf(text, sizeof text, "zone,vehicle,pred_s,actual_s\n");
+    for (int i = 0; i < 10; i++)
+        n += (size_t)snprintf(text + n, sizeof text - n,
+                              "\"Old Town, \"\"North\"\"\",\"e-bike\",%d.5,%d.25\n", 600 + i * 37,
+                              610 + i * 41);
+    for (int i = 0; i < 10; i++)
+        n += (size_t)snprintf(text + n, sizeof text - n, "\" padded \",car,%d.5,%d.25\n",
+                              600 + i * 29, 640 + i * 13);
+    load(f, text, 2);
+    const double targets[] = {0.9};
+    assert_int_equal(fit(f, 2, ETACAL_METHOD_ADD, targets, 1, 5), ETACAL_OK);
+    assert_int_equal(f->q->nrows, 3);
+    char *buf = NULL;
+    size_t len = 0;
+    FILE *fp = open_memstream(&buf, &len);
+    assert_non_null(fp);
+    assert_int_equal(etacal_quotes_write_csv(f->q, fp, &f->err), ETACAL_OK);
+    fclose(fp);
+    /* " padded " sorts before "Old..." (space < 'O').  Scores: "Old Town"
+     * 9.75 + 4 i (i = 0..9), " padded " 39.75 - 16 i.  Each segment has
+     * n = 10, k = ceil(11 * .9) = 10: its largest score, 45.75 and 39.75.
+     * Global: k = ceil(21 * .9) = 19 of 20, the second largest of all:
+     * 41.75 ("Old Town", i = 8). */
+    assert_string_equal(buf, "zone,vehicle,target,method,n,k,offset_s,slope\n"
+                             "*,*,0.9,add,20,19,41.75,1\n"
+                             "\" padded \",car,0.9,add,10,10,39.75,1\n"
+                             "\"Old Town, \"\"North\"\"\",e-bike,0.9,add,10,10,45.75,1\n");
+    tu_write_text(&f->dir, "q.csv", buf, f->path, sizeof f->path);
+    free(buf);
+    assert_int_equal(etacal_quotes_read_csv(f->path, 0, &f->q2, &f->err), ETACAL_OK);
+    assert_int_equal(f->q2->nsegs, 3);
+    assert_string_equal(f->q2->segs[1].keys[0], " padded ");
+    assert_string_equal(f->q2->segs[2].keys[0], "Old Town, \"North\"");
+    assert_string_equal(f->q2->segs[2].keys[1], "e-bike");
+}
+
+/* ---- the reader ------------------------------------------------------- */
+
+static int read_q(fixture *f, const char *text, char delim)
+{
+    etacal_quotes_destroy(f->q2);
+    f->q2 = NULL;
+    tu_write_text(&f->dir, "quotes.csv", text, f->path, sizeof f->path);
+    etacal_error_clear(&f->err);
+    return etacal_quotes_read_csv(f->path, delim, &f->q2, &f->err);
+}
+
+static void expect_read_error(fixture *f, const char *text, int code, size_t line, const char *msg)
+{
+    int rc = read_q(f, text, 0);
+    if (rc == ETACAL_OK)
+        fail_msg("reading succeeded, expected '%s'", msg);
+    char where[700];
+    if (line)
+        tu_where(where, sizeof where, f->path, line);
+    else
+        snprintf(where, sizeof where, "%s", f->path);
+    assert_error(&f->err, code, where, msg);
+    assert_int_equal(rc, code);
+    assert_null(f->q2);
+}
+
+#define HDR "zone,vehicle,target,method,n,k,offset_s,slope\n"
+#define GLOBAL90 "*,*,0.9,add,5000,4501,312.125,1\n"
+
+static void test_read_hand_written_table(void **state)
+{
+    fixture *f = *state;
+    /* By hand: no k column, an extra column, partial levels, a ';' file. */
+    const char *text = "zone;vehicle;target;method;n;offset_s;slope;note\n"
+                       "*;*;0.9;add;5000;312.125;1;all orders\n"
+                       "north;*;0.9;add;900;250.25;1;\n"
+                       "north;bike;0.9;add;400;180.0625;1;\"bikes; fast\"\n"
+                       "*;*;0.975;add;5000;655.5;1;\n";
+    assert_int_equal(read_q(f, text, ';'), ETACAL_OK);
+    const etacal_quotes *q = f->q2;
+    assert_int_equal(q->nkeys, 2);
+    assert_string_equal(q->key_names[1], "vehicle");
+    assert_int_equal(q->ntargets, 2);
+    assert_same_double(q->targets[1], 0.975);
+    assert_int_equal(q->nsegs, 3);
+    assert_int_equal(q->nrows, 4);
+    assert_string_equal(q->segs[0].keys[0], "*");
+    assert_int_equal(q->rows[0].seg, 0);
+    assert_int_equal(q->rows[1].seg, 0);
+    assert_int_equal(q->rows[1].target, 1);
+    assert_close(q->rows[1].offset_s, 655.5, 0);
+    assert_int_equal(q->rows[0].k, 0); /* no k column */
+    assert_int_equal(q->segs[0].n, 5000);
+    assert_close(q->segs[0].score_q[0], 312.125, 0);
+    int found_bike = 0;
+    for (size_t r = 0; r < q->nrows; r++) {
+        const etacal_segment *g = &q->segs[q->rows[r].seg];
+        if (strcmp(g->keys[0], "north") == 0 && strcmp(g->keys[1], "bike") == 0) {
+            found_bike = 1;
+            assert_close(q->rows[r].offset_s, 180.0625, 0);
+            assert_int_equal(q->rows[r].n, 400);
+        }
+    }
+    assert_true(found_bike);
+    /* A ';' table read with ',' is one column per line. */
+    expect_read_error(f, "zone;vehicle;target;method;n;offset_s;slope\n*;*;0.9;add;5000;312.125;1\n",
+                      ETACAL_EPARSE, 1, "not a quote table: no column 'target' in the header");
+}
+
+/* quote.h: "segs[0] is the global segment; the other segments are sorted by
+ * their key texts" for tables built by either the fit or the reader. */
+/* quote.h: a table read from a file keeps the file's order of segments,
+ * with the global segment first. */
+static void test_read_keeps_file_order(void **state)
+{
+    fixture *f = *state;
+    const char *text = "zone,target,method,n,offset_s,slope\n"
+                       "south,0.9,add,300,95.5,1\n"
+                       "*,0.9,add,5000,312.125,1\n"
+                       "north,0.9,add,900,250.25,1\n";
+    assert_int_equal(read_q(f, text, 0), ETACAL_OK);
+    const etacal_quotes *q = f->q2;
+    assert_int_equal(q->nsegs, 3);
+    assert_string_equal(q->segs[0].keys[0], "*");
+    assert_string_equal(q->segs[1].keys[0], "south");
+    assert_string_equal(q->segs[2].keys[0], "north");
+}
+
+static void test_read_errors(void **state)
+{
+    fixture *f = *state;
+    expect_read_error(f, "zone,target,method,n,k,offset_s\n*,0.9,add,50,46,3.5\n", ETACAL_EPARSE, 1,
+                      "not a quote table: no column 'slope' in the header");
+    expect_read_error(f, "zone,target,n,k,offset_s,slope\n*,0.9,50,46,3.5,1\n", ETACAL_EPARSE, 1,
+                      "not a quote table: no column 'method' in the header");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,811,inf,1\n", ETACAL_EPARSE, 3,
+                      "'offset_s' must be a finite number");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,811,NA,1\n", ETACAL_EPARSE, 3,
+                      "'offset_s' must be a finite number");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,811,250.25,nan\n", ETACAL_EPARSE, 3,
+                      "'slope' must be a finite number");
+    expect_read_error(f, HDR "*,*,1,add,5000,4501,312.125,1\n", ETACAL_EPARSE, 2,
+                      "target must be an on-time rate in (0,1)");
+    expect_read_error(f, HDR GLOBAL90 "\n*,*,0,add,5000,4501,312.125,1\n", ETACAL_EPARSE, 4,
+                      "target must be an on-time rate in (0,1)");
+    expect_read_error(f, HDR "*,*,-0.9,add,5000,4501,312.125,1\n", ETACAL_EPARSE, 2,
+                      "target must be an on-time rate in (0,1)");
+    expect_read_error(f, HDR "*,*,90%,add,5000,4501,312.125,1\n", ETACAL_EPARSE, 2,
+                      "'target' must be a finite number");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,mult,900,811,250.25,1\n", ETACAL_EPARSE, 3,
+                      "unknown method 'mult' (expected add or ratio)");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,ratio,900,811,0,1.25\n", ETACAL_EPARSE, 3,
+                      "method 'ratio' differs from the table's first row");
+    expect_read_error(f,
+                      HDR GLOBAL90 "north,*,0.9,add,900,811,250.25,1\n"
+                                   "*,*,0.9,add,17,16,3.5,1\n",
+                      ETACAL_EPARSE, 4, "duplicate row for the same segment and target 0.9");
+    expect_read_error(f,
+                      HDR "north,*,0.9,add,900,811,250.25,1\n" GLOBAL90
+                          "\"north\",\"*\",0.9,add,17,16,3.5,1\n",
+                      ETACAL_EPARSE, 4, "duplicate row for the same segment and target 0.9");
+    expect_read_error(f, HDR "north,*,0.9,add,900,811,250.25,1\nnorth,bike,0.9,add,9,9,3.5,1\n",
+                      ETACAL_EPARSE, 0, "no global row (every key '*')");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.95,add,900,811,250.25,1\n", ETACAL_EPARSE, 0,
+                      "no global row (every key '*') for target 0.95");
+    expect_read_error(f, HDR GLOBAL90 "*,bike,0.9,add,900,811,250.25,1\n", ETACAL_EPARSE, 3,
+                      "key 'vehicle' has a value after a '*' key: levels go from the last key to "
+                      "the first");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,811,250.25\n", ETACAL_EPARSE, 3,
+                      "7 fields, but the header has 8");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900.5,811,250.25,1\n", ETACAL_EPARSE, 3,
+                      "'n' must be a whole number >= 0");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,-3,811,250.25,1\n", ETACAL_EPARSE, 3,
+                      "'n' must be a whole number >= 0");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,NA,250.25,1\n", ETACAL_EPARSE, 3,
+                      "'k' must be a finite number");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,811,250.25,-0.5\n", ETACAL_EPARSE, 3,
+                      "slope must not be negative");
+    expect_read_error(f, "zone,method,target,n,offset_s,slope\n*,add,0.9,50,3.5,1\n", ETACAL_EPARSE,
+                      1, "column 'method' must come after 'target' (the key columns come first)");
+    expect_read_error(f, "zone,zone,target,method,n,offset_s,slope\n*,*,0.9,add,50,3.5,1\n",
+                      ETACAL_EPARSE, 1, "key column 'zone' appears twice");
+    expect_read_error(f, "zone,target,method,n,offset_s,slope,target\n*,0.9,add,50,3.5,1,0.9\n",
+                      ETACAL_EPARSE, 1, "column 'target' appears twice in the header");
+    expect_read_error(f, "", ETACAL_EPARSE, 0, "empty file: expected a quote table");
+    expect_read_error(f, HDR, ETACAL_EPARSE, 0, "the quote table has no rows");
+    expect_read_error(f, HDR GLOBAL90 "\"north,*,0.9,add,900,811,250.25,1\n", ETACAL_EPARSE, 3,
+                      "unterminated quoted field");
+    char missing[700];
+    tu_path(missing, sizeof missing, &f->dir, "nope.csv");
+    etacal_quotes *q = (etacal_quotes *)0x1;
+    assert_int_equal(etacal_quotes_read_csv(missing, 0, &q, &f->err), ETACAL_EIO);
+    assert_null(q);
+    assert_error(&f->err, ETACAL_EIO, missing, "cannot open: No such file or directory");
+}
+
+static void test_method_names(void **state)
+{
+    (void)state;
+    assert_string_equal(etacal_method_name(ETACAL_METHOD_ADD), "add");
+    assert_string_equal(etacal_method_name(ETACAL_METHOD_RATIO), "ratio");
+    assert_null(etacal_method_name(2));
+    assert_null(etacal_method_name(-1));
+    assert_int_equal(etacal_method_parse("add"), ETACAL_METHOD_ADD);
+    assert_int_equal(etacal_method_parse("ratio"), ETACAL_METHOD_RATIO);
+    assert_int_equal(etacal_method_parse("Add"), -1);
+    assert_int_equal(etacal_method_parse("mult"), -1);
+    assert_int_equal(etacal_method_parse(""), -1);
+    etacal_quotes_destroy(NULL);
+}
+
+int main(void)
+{
+#define T(name) cmocka_unit_test_setup_teardown(name, setup, teardown)
+    const struct CMUnitTest tests[] = {
+        T(test_fit_hand_checked),
+        T(test_fit_default_min_rows_and_no_keys),
+        T(test_fit_ratio),
+        T(test_fit_ratio_needs_positive_predictions),
+        T(test_fit_errors),
+        T(test_fit_random_against_brute_force),
+        T(test_write_and_read_back),
+        T(test_write_quotes_key_fields),
+        T(test_read_hand_written_table),
+        T(test_read_keeps_file_order),
+        T(test_read_errors),
+        T(test_method_names),
+    };
+#undef T
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
