@@ -317,30 +317,20 @@ void rowbuf_add(rowbuf *r, const char *s, size_t len)
 {
     if (r->oom)
         return;
-    if (r->len + len + 1 <= r->cap && r->nf < r->fcap) {
-        memcpy(r->buf + r->len, s, len);
-        r->buf[r->len + len] = '\0';
-        r->off[r->nf] = r->len;
-        r->flen[r->nf] = len;
-        r->nf++;
-        r->len += len + 1;
-        return;
+    if (r->len + len + 1 > r->cap || r->nf >= r->fcap) {
+        size_t fc = r->fcap;
+        if (grow_array((void **)&r->buf, &r->cap, r->len + len + 1, 1) != 0 ||
+            grow_array((void **)&r->off, &fc, r->nf + 1, sizeof *r->off) != 0) {
+            r->oom = 1;
+            return;
+        }
+        fc = r->fcap; /* off and flen grow alike, from the same capacity */
+        if (grow_array((void **)&r->flen, &fc, r->nf + 1, sizeof *r->flen) != 0) {
+            r->oom = 1;
+            return;
+        }
+        r->fcap = fc;
     }
-    if (grow_array((void **)&r->buf, &r->cap, r->len + len + 1, 1) != 0) {
-        r->oom = 1;
-        return;
-    }
-    size_t fc = r->fcap;
-    if (grow_array((void **)&r->off, &fc, r->nf + 1, sizeof *r->off) != 0) {
-        r->oom = 1;
-        return;
-    }
-    fc = r->fcap;
-    if (grow_array((void **)&r->flen, &fc, r->nf + 1, sizeof *r->flen) != 0) {
-        r->oom = 1;
-        return;
-    }
-    r->fcap = fc;
     memcpy(r->buf + r->len, s, len);
     r->buf[r->len + len] = '\0';
     r->off[r->nf] = r->len;
