@@ -24,9 +24,29 @@ typedef struct column {
     unsigned flags;
     const char *what;
     double *num;
-    uint32_t *key;
+    void *key; /* ids: uint16_t while the dictionary is small, else uint32_t */
+    int kw;    /* bytes per id: 2 or 4 */
     strdict dict;
 } column;
+
+static inline uint32_t key_get(const column *c, size_t i)
+{
+    return c->kw == 2 ? ((const uint16_t *)c->key)[i] : ((const uint32_t *)c->key)[i];
+}
+
+/* Switches a column's ids from 16 to 32 bits (for n rows, capacity cap). */
+static int key_widen(column *c, size_t n, size_t cap)
+{
+    uint32_t *w = malloc((cap ? cap : 1) * sizeof *w);
+    if (!w)
+        return -1;
+    for (size_t i = 0; i < n; i++)
+        w[i] = ((const uint16_t *)c->key)[i];
+    free(c->key);
+    c->key = w;
+    c->kw = 4;
+    return 0;
+}
 
 struct etacal_table {
     char *source;
@@ -169,7 +189,7 @@ static int append_row(reader *r)
                     return -1;
                 c->num = p;
             } else {
-                uint32_t *p = realloc(c->key, ncap * sizeof *p);
+                void *p = realloc(c->key, ncap * (size_t)c->kw);
                 if (!p)
                     return -1;
                 c->key = p;
@@ -179,10 +199,17 @@ static int append_row(reader *r)
     }
     for (size_t i = 0; i < t->ncols; i++) {
         column *c = &t->cols[i];
-        if (c->type == ETACAL_COL_NUM)
+        if (c->type == ETACAL_COL_NUM) {
             c->num[t->rows] = r->stage_num[i];
+            continue;
+        }
+        uint32_t id = r->stage_key[i];
+        if (c->kw == 2 && id > UINT16_MAX && key_widen(c, t->rows, t->cap) != 0)
+            return -1;
+        if (c->kw == 2)
+            ((uint16_t *)c->key)[t->rows] = (uint16_t)id;
         else
-            c->key[t->rows] = r->stage_key[i];
+            ((uint32_t *)c->key)[t->rows] = id;
     }
     t->rows++;
     return 0;
@@ -313,6 +340,7 @@ static etacal_table *table_new(const char *path, const etacal_colspec *cols, siz
         c->type = cols[i].type;
         c->flags = cols[i].flags;
         c->what = cols[i].what;
+        c->kw = 2;
         strdict_init(&c->dict);
     }
     return t;
@@ -410,10 +438,6 @@ static int table_append(etacal_table *a, etacal_table *b)
             free(cb->num);
             cb->num = NULL;
         } else {
-            uint32_t *p = realloc(ca->key, (na + nb) * sizeof *p);
-            if (!p)
-                return -1;
-            ca->key = p;
             uint32_t *remap = malloc((cb->dict.count ? cb->dict.count : 1) * sizeof *remap);
             if (!remap)
                 return -1;
@@ -423,10 +447,38 @@ static int table_append(etacal_table *a, etacal_table *b)
                     free(remap);
                     return -1;
                 }
-            for (size_t r = 0; r < nb; r++)
-                cb->key[r] = remap[cb->key[r]];
+            if (ca->kw == 2 && ca->dict.count > (size_t)UINT16_MAX + 1 && key_widen(ca, na, na) != 0) {
+                free(remap);
+                return -1;
+            }
+            void *p = realloc(ca->key, (na + nb) * (size_t)ca->kw);
+            if (!p) {
+                free(remap);
+                return -1;
+            }
+            ca->key = p;
+            /* b's ids mapped in place (the mapped ids fit a's width, which
+             * is at least b's when a is wide; else both are narrow), then
+             * moved behind a's. */
+            if (ca->kw == 4 && cb->kw == 2) {
+                uint32_t *dst = (uint32_t *)p + na;
+                for (size_t r = 0; r < nb; r++)
+                    dst[r] = remap[((const uint16_t *)cb->key)[r]];
+            } else {
+                for (size_t r = 0; r < nb; r++) {
+                    if (cb->kw == 2)
+                        ((uint16_t *)cb->key)[r] = (uint16_t)remap[((uint16_t *)cb->key)[r]];
+                    else
+                        ((uint32_t *)cb->key)[r] = remap[((uint32_t *)cb->key)[r]];
+                }
+                if (ca->kw == cb->kw) {
+                    move_pages((char *)p + na * (size_t)ca->kw, cb->key, nb, (size_t)ca->kw);
+                } else { /* a narrow, b wide: cannot happen (b's values are all in a) */
+                    free(remap);
+                    return -1;
+                }
+            }
             free(remap);
-            move_pages(p + na, cb->key, nb, sizeof *p);
             free(cb->key);
             cb->key = NULL;
         }
@@ -561,7 +613,7 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
                 if (p)
                     c->num = p;
             } else {
-                uint32_t *p = realloc(c->key, t->rows * sizeof *p);
+                void *p = realloc(c->key, t->rows * (size_t)c->kw);
                 if (p)
                     c->key = p;
             }
@@ -594,9 +646,18 @@ const double *etacal_table_num(const etacal_table *t, size_t col)
     return col < t->ncols && t->cols[col].type == ETACAL_COL_NUM ? t->cols[col].num : NULL;
 }
 
-const uint32_t *etacal_table_key(const etacal_table *t, size_t col)
+const void *etacal_table_key_ids(const etacal_table *t, size_t col, int *width)
 {
-    return col < t->ncols && t->cols[col].type == ETACAL_COL_KEY ? t->cols[col].key : NULL;
+    if (col >= t->ncols || t->cols[col].type != ETACAL_COL_KEY)
+        return NULL;
+    if (width)
+        *width = t->cols[col].kw;
+    return t->cols[col].key;
+}
+
+uint32_t etacal_table_key_id(const etacal_table *t, size_t col, size_t row)
+{
+    return key_get(&t->cols[col], row);
 }
 
 size_t etacal_table_key_count(const etacal_table *t, size_t col)

@@ -193,11 +193,22 @@ static int segmap_grow(segmap *m)
 }
 
 /* The mixed-radix code of row i's key ids. */
-static uint64_t row_code(const uint32_t *const *keyids, const size_t *kc, size_t nkeys, size_t i)
+/* A key column's ids as stored by the table: 16 or 32 bits. */
+typedef struct keycol {
+    const void *ids;
+    int width;
+} keycol;
+
+static inline uint32_t key_at(const keycol *k, size_t i)
+{
+    return k->width == 2 ? ((const uint16_t *)k->ids)[i] : ((const uint32_t *)k->ids)[i];
+}
+
+static uint64_t row_code(const keycol *keyids, const size_t *kc, size_t nkeys, size_t i)
 {
     uint64_t code = 0;
     for (size_t j = 0; j < nkeys; j++)
-        code = code * (uint64_t)kc[j] + keyids[j][i];
+        code = code * (uint64_t)kc[j] + key_at(&keyids[j], i);
     return code;
 }
 
@@ -212,7 +223,7 @@ static void segmap_renumber(segmap *m, const uint32_t *remap)
 }
 
 /* Row i's segment (0, the global one, when there are no keys). */
-static uint32_t row_seg(const segmap *m, const uint32_t *const *keyids, const size_t *kc, size_t nkeys,
+static uint32_t row_seg(const segmap *m, const keycol *keyids, const size_t *kc, size_t nkeys,
                         size_t i)
 {
     if (nkeys == 0)
@@ -270,7 +281,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     uint32_t *remap = NULL;
     sortent *order = NULL;
     segmap map = {0};
-    const uint32_t **keyids = NULL;
+    keycol *keyids = NULL;
     *out = NULL;
 
     size_t n = etacal_table_rows(t);
@@ -299,8 +310,8 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     uint64_t space = 1;
     for (size_t j = 0; j < nkeys; j++) {
         const char *name = etacal_table_col_name(t, key_cols[j]);
-        keyids[j] = etacal_table_key(t, key_cols[j]);
-        if (!keyids[j]) {
+        keyids[j].ids = etacal_table_key_ids(t, key_cols[j], &keyids[j].width);
+        if (!keyids[j].ids) {
             rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "'%s' is not a key column", name);
             goto done;
         }
@@ -357,7 +368,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
             goto nomem;
     for (size_t g = 1; g < nseg; g++)
         for (size_t j = 0; j < nkeys; j++) {
-            const char *txt = etacal_table_key_text(t, key_cols[j], keyids[j][first[g]]);
+            const char *txt = etacal_table_key_text(t, key_cols[j], key_at(&keyids[j], first[g]));
             if (!(q->segs[g].keys[j] = dupn(txt, strlen(txt))))
                 goto nomem;
         }

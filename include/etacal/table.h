@@ -3,7 +3,8 @@
  *
  * Only the columns named by the caller are kept.  Numeric columns become
  * arrays of double; key (segment) columns are dictionary-encoded to dense
- * ids 0..count-1 in order of first appearance.  Storage grows by doubling;
+ * ids 0..count-1 in order of first appearance, stored in 16 bits while a
+ * column has at most 65536 values.  Storage grows by doubling;
  * nothing is allocated per row or field. */
 #ifndef ETACAL_TABLE_H
 #define ETACAL_TABLE_H
@@ -86,7 +87,12 @@ const etacal_read_stats *etacal_table_stats(const etacal_table *t);
 
 /* Column data, borrowed from the table; NULL when col has the other type. */
 const double *etacal_table_num(const etacal_table *t, size_t col);
-const uint32_t *etacal_table_key(const etacal_table *t, size_t col);
+/* The ids of a key column, borrowed: *width is 2 (uint16_t ids, while the
+ * column has at most 65536 distinct values) or 4 (uint32_t).  NULL for a
+ * numeric column. */
+const void *etacal_table_key_ids(const etacal_table *t, size_t col, int *width);
+/* The id of one row of a key column (col must be a key column). */
+uint32_t etacal_table_key_id(const etacal_table *t, size_t col, size_t row);
 /* Number of distinct values of a key column, and the text of one. */
 size_t etacal_table_key_count(const etacal_table *t, size_t col);
 const char *etacal_table_key_text(const etacal_table *t, size_t col, uint32_t id);

@@ -112,7 +112,7 @@ static void test_read_basic(void **state)
         assert_same_double(y[i], want_y[i]);
         assert_same_double(p[i], want_p[i]);
     }
-    const uint32_t *z = etacal_table_key(t, 2);
+    const uint32_t *z = key_ids_of(t, 2);
     assert_non_null(z);
     assert_int_equal(etacal_table_key_count(t, 2), 3);
     /* ids in order of first appearance */
@@ -125,7 +125,7 @@ static void test_read_basic(void **state)
     assert_string_equal(etacal_table_key_text(t, 2, 2), "east");
     /* Accessors of the other type, and out of range. */
     assert_null(etacal_table_num(t, 2));
-    assert_null(etacal_table_key(t, 0));
+    assert_null(etacal_table_key_ids(t, 0, NULL));
     assert_int_equal(etacal_table_key_count(t, 0), 0);
     assert_null(etacal_table_key_text(t, 2, 3));
     assert_null(etacal_table_key_text(t, 0, 0));
@@ -446,7 +446,7 @@ static void test_read_skipped_rows_leave_no_key(void **state)
                        "south,61.875,77.5\n";
     assert_int_equal(read_str(f, text, NULL), ETACAL_OK);
     assert_int_equal(etacal_table_rows(f->t), 2);
-    const uint32_t *z = etacal_table_key(f->t, 2);
+    const uint32_t *z = key_ids_of(f->t, 2);
     assert_string_equal(etacal_table_key_text(f->t, 2, z[0]), "north");
     assert_string_equal(etacal_table_key_text(f->t, 2, z[1]), "south");
     size_t count = etacal_table_key_count(f->t, 2);
@@ -538,7 +538,7 @@ static void test_read_many_keys(void **state)
     free(text);
     assert_int_equal(etacal_table_rows(f->t), 10000);
     assert_int_equal(etacal_table_key_count(f->t, 2), 5000);
-    const uint32_t *z = etacal_table_key(f->t, 2);
+    const uint32_t *z = key_ids_of(f->t, 2);
     char want[32];
     for (int i = 0; i < 10000; i++) {
         snprintf(want, sizeof want, "z%d", (i * 7) % 5000);

@@ -22,6 +22,8 @@ static char dir[64], path[128];
 
 /* Writes about 20 MB; the row with index bad_at (if not SIZE_MAX) gets a
  * non-numeric actual.  Returns the physical line of that row. */
+static int many_keys; /* 1: 40000 zone values in each half, 80000 in all */
+
 static size_t write_file(size_t rows, size_t bad_at, size_t bad_at2)
 {
     FILE *fp = fopen(path, "w");
@@ -35,7 +37,9 @@ static size_t write_file(size_t rows, size_t bad_at, size_t bad_at2)
         x ^= x << 17;
         line++;
         unsigned z = (unsigned)(x % 37);
-        if (z % 5 == 0)
+        if (many_keys)
+            fprintf(fp, "k%zu,", i < rows / 2 ? i % 40000 : 40000 + i % 40000);
+        else if (z % 5 == 0)
             fprintf(fp, "\"zone %u, south\",", z);
         else
             fprintf(fp, "z%u,", z);
@@ -112,7 +116,10 @@ static void test_same_rows(void **state)
     assert_memory_equal(etacal_table_num(a, 1), etacal_table_num(b, 1), rows * sizeof(double));
     for (size_t c = 2; c < 4; c++) {
         assert_int_equal(etacal_table_key_count(a, c), etacal_table_key_count(b, c));
-        assert_memory_equal(etacal_table_key(a, c), etacal_table_key(b, c), rows * sizeof(uint32_t));
+        int wa = 0, wb = 0;
+        const void *ka = etacal_table_key_ids(a, c, &wa), *kb = etacal_table_key_ids(b, c, &wb);
+        assert_int_equal(wa, wb);
+        assert_memory_equal(ka, kb, rows * (size_t)wa);
         for (uint32_t id = 0; id < etacal_table_key_count(a, c); id++)
             assert_string_equal(etacal_table_key_text(a, c, id), etacal_table_key_text(b, c, id));
     }
@@ -168,12 +175,43 @@ static void test_first_error_wins(void **state)
     etacal_table_destroy(b);
 }
 
+/* More than 65536 distinct values: ids switch from 16 to 32 bits, in a
+ * one-thread read while reading and in a two-part read when the halves
+ * (40000 values each) are merged. */
+static void test_wide_keys(void **state)
+{
+    (void)state;
+    const size_t rows = 1000000;
+    many_keys = 1;
+    write_file(rows, SIZE_MAX, SIZE_MAX);
+    many_keys = 0;
+    etacal_table *a = NULL, *b = NULL;
+    etacal_error err;
+    assert_int_equal(read_with(1, 0, &a, &err), ETACAL_OK);
+    assert_int_equal(read_with(0, 0, &b, &err), ETACAL_OK);
+    assert_int_equal(etacal_table_key_count(a, 2), 80000);
+    assert_int_equal(etacal_table_key_count(b, 2), 80000);
+    int wa = 0, wb = 0;
+    const void *ka = etacal_table_key_ids(a, 2, &wa), *kb = etacal_table_key_ids(b, 2, &wb);
+    assert_int_equal(wa, 4);
+    assert_int_equal(wb, 4);
+    assert_memory_equal(ka, kb, rows * 4);
+    assert_string_equal(etacal_table_key_text(b, 2, etacal_table_key_id(b, 2, rows - 1)), "k79999");
+    assert_string_equal(etacal_table_key_text(b, 2, etacal_table_key_id(b, 2, 12345)), "k12345");
+    /* a column with few values stays narrow */
+    etacal_table_key_ids(b, 3, &wb);
+    assert_int_equal(wb, 2);
+    etacal_table_destroy(a);
+    etacal_table_destroy(b);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_same_rows),
         cmocka_unit_test(test_error_line_second_half),
         cmocka_unit_test(test_first_error_wins),
+        cmocka_unit_test(test_wide_keys),
     };
     return cmocka_run_group_tests_name("parallel_read", tests, setup, teardown);
 }

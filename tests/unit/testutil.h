@@ -22,6 +22,7 @@
 #include <unistd.h>
 
 #include "etacal/error.h"
+#include "etacal/table.h"
 
 /* ---- scratch directory ------------------------------------------------- */
 
@@ -235,5 +236,18 @@ static inline uint64_t tu_below(tu_rng *r, uint64_t n) { return tu_next(r) % n; 
 
 /* Uniform double in [0, 1). */
 static inline double tu_unif(tu_rng *r) { return (double)(tu_next(r) >> 11) * 0x1.0p-53; }
+
+/* A key column's ids as uint32_t, whatever width the table stores them in
+ * (a static buffer: valid until the next call). */
+static inline const uint32_t *key_ids_of(const etacal_table *t, size_t col)
+{
+    static uint32_t buf[1 << 20];
+    size_t n = etacal_table_rows(t);
+    if (n > sizeof buf / sizeof *buf || !etacal_table_key_ids(t, col, NULL))
+        return NULL;
+    for (size_t i = 0; i < n; i++)
+        buf[i] = etacal_table_key_id(t, col, i);
+    return buf;
+}
 
 #endif
