@@ -501,6 +501,23 @@ static void stats_add(etacal_read_stats *a, const etacal_read_stats *b)
     a->bytes += b->bytes;
 }
 
+/* In a two-part read the calling thread reports progress for the whole
+ * file from its own half, scaled. */
+typedef struct progress_map {
+    void (*fn)(void *ud, uint64_t done, uint64_t total);
+    void *ud;
+    uint64_t base, size;
+    double scale;
+} progress_map;
+
+static void progress_scaled(void *ud, uint64_t done, uint64_t total)
+{
+    (void)total;
+    progress_map *m = ud;
+    uint64_t d = m->base + (uint64_t)((double)done * m->scale);
+    m->fn(m->ud, d < m->size ? d : m->size, m->size);
+}
+
 /* Files smaller than this are read by one thread. */
 #define PARALLEL_MIN ((uint64_t)16 << 20)
 
@@ -572,6 +589,12 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
         if (!started)
             part_main(pt);
         csvstream_range dr = {header_end, split, header_lines + 1};
+        progress_map pm = {opts->progress, opts->progress_ud, header_end, (uint64_t)st.st_size,
+                           (double)((uint64_t)st.st_size - header_end) / (double)(split - header_end)};
+        if (opts->progress) {
+            cb.progress = progress_scaled;
+            cb.progress_ud = &pm;
+        }
         rc = csvstream_run_range(path, delim, 0, &cb, &dr, &t->stats.bytes, err);
         if (started)
             thrd_join(th, NULL);

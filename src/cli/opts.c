@@ -119,7 +119,7 @@ int parse_names(char *s, char **names, size_t *n, size_t max)
 void progress_cb(void *ud, uint64_t done, uint64_t total)
 {
     progress *p = ud;
-    if (total < (64u << 20) || !isatty(2))
+    if (total < (8u << 20) || !isatty(2))
         return;
     int pct = (int)(100.0 * (double)done / (double)total);
     if (pct == p->last_pct)
