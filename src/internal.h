@@ -127,6 +127,35 @@ void rowbuf_free(rowbuf *r);
 /* Writes one CSV field, quoted only when it must be. */
 void csv_put_field(FILE *fp, const char *s, size_t len, char delim);
 
+/* segset: the segments of a table (segment.c).  keys[g][j] is the text of
+ * key j in segment g; segment 0 is the global one ("*"), the others come in
+ * the bytewise order of their key texts. */
+typedef struct segmap {
+    uint32_t *direct;
+    size_t ndirect;
+    uint64_t *hkeys;
+    uint32_t *hvals; /* segment + 1; 0 empty */
+    size_t nslots, used;
+} segmap;
+
+typedef struct keycol {
+    const void *ids;
+    int width;
+} keycol;
+
+typedef struct segset {
+    size_t nkeys, nseg;
+    char ***keys;
+    segmap map;
+    keycol *kcols;
+    size_t *kc;
+} segset;
+
+int segset_build(segset *s, const etacal_table *t, const size_t *key_cols, size_t nkeys, etacal_error *err);
+/* The segment of a row (0 when there are no keys). */
+uint32_t segset_row(const segset *s, size_t row);
+void segset_free(segset *s);
+
 /* Shared by the table fitter and reader. */
 int quotes_set_targets(etacal_quotes *q, const double *targets, size_t n, etacal_error *err);
 int segment_alloc(etacal_segment *s, size_t nkeys, size_t ntargets);

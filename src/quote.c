@@ -118,126 +118,6 @@ int segment_alloc(etacal_segment *s, size_t nkeys, size_t ntargets)
     return (s->keys && s->k && s->score_q && s->status) ? 0 : -1;
 }
 
-/* Maps the mixed-radix code of a row's key ids to a dense segment number:
- * a direct table when the code space is small, else open addressing. */
-typedef struct segmap {
-    uint32_t *direct;
-    size_t ndirect;
-    uint64_t *hkeys;
-    uint32_t *hvals; /* segment + 1; 0 empty */
-    size_t nslots, used;
-} segmap;
-
-#define DIRECT_MAX (UINT64_C(1) << 22)
-
-static int segmap_init(segmap *m, uint64_t space)
-{
-    memset(m, 0, sizeof *m);
-    if (space <= DIRECT_MAX) {
-        m->ndirect = (size_t)space;
-        m->direct = calloc(m->ndirect ? m->ndirect : 1, sizeof *m->direct);
-        return m->direct ? 0 : -1;
-    }
-    m->nslots = 1024;
-    m->hkeys = calloc(m->nslots, sizeof *m->hkeys);
-    m->hvals = calloc(m->nslots, sizeof *m->hvals);
-    return m->hkeys && m->hvals ? 0 : -1;
-}
-
-static void segmap_free(segmap *m)
-{
-    free(m->direct);
-    free(m->hkeys);
-    free(m->hvals);
-}
-
-static uint64_t mix64(uint64_t x)
-{
-    x ^= x >> 33;
-    x *= UINT64_C(0xff51afd7ed558ccd);
-    x ^= x >> 33;
-    return x;
-}
-
-static uint32_t *segmap_slot(segmap *m, uint64_t code)
-{
-    if (m->direct)
-        return &m->direct[code];
-    size_t mask = m->nslots - 1;
-    size_t i = (size_t)mix64(code) & mask;
-    while (m->hvals[i] && m->hkeys[i] != code)
-        i = (i + 1) & mask;
-    m->hkeys[i] = code;
-    return &m->hvals[i];
-}
-
-static int segmap_grow(segmap *m)
-{
-    if (m->direct || m->used * 2 < m->nslots)
-        return 0;
-    segmap n = {0};
-    n.nslots = m->nslots * 2;
-    n.hkeys = calloc(n.nslots, sizeof *n.hkeys);
-    n.hvals = calloc(n.nslots, sizeof *n.hvals);
-    if (!n.hkeys || !n.hvals) {
-        segmap_free(&n);
-        return -1;
-    }
-    for (size_t i = 0; i < m->nslots; i++)
-        if (m->hvals[i])
-            *segmap_slot(&n, m->hkeys[i]) = m->hvals[i];
-    n.used = m->used;
-    segmap_free(m);
-    *m = n;
-    return 0;
-}
-
-/* The mixed-radix code of row i's key ids. */
-/* A key column's ids as stored by the table: 16 or 32 bits. */
-typedef struct keycol {
-    const void *ids;
-    int width;
-} keycol;
-
-static inline uint32_t key_at(const keycol *k, size_t i)
-{
-    return k->width == 2 ? ((const uint16_t *)k->ids)[i] : ((const uint32_t *)k->ids)[i];
-}
-
-static uint64_t row_code(const keycol *keyids, const size_t *kc, size_t nkeys, size_t i)
-{
-    uint64_t code = 0;
-    for (size_t j = 0; j < nkeys; j++)
-        code = code * (uint64_t)kc[j] + key_at(&keyids[j], i);
-    return code;
-}
-
-/* Segment numbers in the map become remap[number]. */
-static void segmap_renumber(segmap *m, const uint32_t *remap)
-{
-    uint32_t *v = m->direct ? m->direct : m->hvals;
-    size_t len = m->direct ? m->ndirect : m->nslots;
-    for (size_t i = 0; i < len; i++)
-        if (v[i])
-            v[i] = remap[v[i] - 1] + 1;
-}
-
-/* Row i's segment (0, the global one, when there are no keys). */
-static uint32_t row_seg(const segmap *m, const keycol *keyids, const size_t *kc, size_t nkeys,
-                        size_t i)
-{
-    if (nkeys == 0)
-        return 0;
-    uint64_t code = row_code(keyids, kc, nkeys, i);
-    if (m->direct)
-        return m->direct[code] - 1;
-    size_t mask = m->nslots - 1;
-    size_t s = (size_t)mix64(code) & mask;
-    while (m->hkeys[s] != code)
-        s = (s + 1) & mask;
-    return m->hvals[s] - 1;
-}
-
 static size_t bucket(double x, double lo, double scale, size_t B)
 {
     double b = (x - lo) * scale;
@@ -253,35 +133,15 @@ typedef struct job {
     size_t cap, used, off;
 } job;
 
-typedef struct sortent {
-    char **keys;
-    size_t nkeys;
-    size_t idx;
-} sortent;
-
-static int cmp_sortent(const void *a, const void *b)
-{
-    const sortent *x = a, *y = b;
-    for (size_t j = 0; j < x->nkeys; j++) {
-        int c = strcmp(x->keys[j], y->keys[j]);
-        if (c)
-            return c;
-    }
-    return 0;
-}
-
 int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
                       const size_t *key_cols, size_t nkeys, const etacal_fit_opts *opts,
                       etacal_quotes **out, etacal_error *err)
 {
     int rc = ETACAL_OK;
-    size_t *first = NULL, *kc = NULL, *hist = NULL;
+    size_t *hist = NULL;
     double *mn = NULL, *mx = NULL, *scale = NULL, *cand = NULL;
     job *jobs = NULL;
-    uint32_t *remap = NULL;
-    sortent *order = NULL;
-    segmap map = {0};
-    keycol *keyids = NULL;
+    segset ss = {0};
     *out = NULL;
 
     size_t n = etacal_table_rows(t);
@@ -304,101 +164,31 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     if ((rc = quotes_set_targets(q, opts->targets, opts->ntargets, err)) != 0)
         goto done;
     q->key_names = calloc(nkeys ? nkeys : 1, sizeof *q->key_names);
-    keyids = calloc(nkeys ? nkeys : 1, sizeof *keyids);
-    if (!q->key_names || !keyids)
+    if (!q->key_names)
         goto nomem;
-    uint64_t space = 1;
     for (size_t j = 0; j < nkeys; j++) {
         const char *name = etacal_table_col_name(t, key_cols[j]);
-        keyids[j].ids = etacal_table_key_ids(t, key_cols[j], &keyids[j].width);
-        if (!keyids[j].ids) {
-            rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "'%s' is not a key column", name);
-            goto done;
-        }
-        q->key_names[j] = dupn(name, strlen(name));
-        if (!q->key_names[j])
+        if (!(q->key_names[j] = dupn(name, strlen(name))))
             goto nomem;
-        uint64_t c = etacal_table_key_count(t, key_cols[j]);
-        if (c == 0)
-            c = 1;
-        if (space > UINT64_MAX / c) {
-            rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "too many combinations of key values");
-            goto done;
-        }
-        space *= c;
     }
 
-    /* 1. Segments, numbered in order of first appearance (0 is the global
-     *    segment).  No per-row array is kept: each later pass finds a row's
-     *    segment again from its key ids through the map. */
-    kc = malloc((nkeys ? nkeys : 1) * sizeof *kc);
-    if (!kc || segmap_init(&map, space) != 0)
-        goto nomem;
-    for (size_t j = 0; j < nkeys; j++)
-        kc[j] = etacal_table_key_count(t, key_cols[j]);
-    size_t nseg = 1, firstcap = 0;
-    for (size_t i = 0; i < n && nkeys; i++) {
-        uint64_t code = row_code(keyids, kc, nkeys, i);
-        uint32_t *slot = segmap_slot(&map, code);
-        if (*slot == 0) {
-            if (nseg >= UINT32_MAX - 1) {
-                rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "too many segments");
-                goto done;
-            }
-            if (grow_array((void **)&first, &firstcap, nseg + 1, sizeof *first) != 0)
-                goto nomem;
-            first[nseg] = i;
-            *slot = (uint32_t)nseg++ + 1;
-            map.used++;
-            if (segmap_grow(&map) != 0)
-                goto nomem;
-        }
-    }
-
-    /* 2. Segments: global first, then the others sorted by key texts. */
+    /* 1. Segments: global first, the others sorted by their key texts. */
+    if ((rc = segset_build(&ss, t, key_cols, nkeys, err)) != 0)
+        goto done;
+    size_t nseg = ss.nseg;
     q->segs = calloc(nseg, sizeof *q->segs);
     if (!q->segs)
         goto nomem;
     q->nsegs = nseg;
-    for (size_t g = 0; g < nseg; g++)
+    for (size_t g = 0; g < nseg; g++) {
         if (segment_alloc(&q->segs[g], nkeys, q->ntargets) != 0)
             goto nomem;
-    for (size_t j = 0; j < nkeys; j++)
-        if (!(q->segs[0].keys[j] = dupn("*", 1)))
-            goto nomem;
-    for (size_t g = 1; g < nseg; g++)
-        for (size_t j = 0; j < nkeys; j++) {
-            const char *txt = etacal_table_key_text(t, key_cols[j], key_at(&keyids[j], first[g]));
-            if (!(q->segs[g].keys[j] = dupn(txt, strlen(txt))))
-                goto nomem;
-        }
-    remap = malloc(nseg * sizeof *remap);
-    if (!remap)
-        goto nomem;
-    remap[0] = 0;
-    for (size_t g = 1; g < nseg; g++)
-        remap[g] = (uint32_t)g;
-    if (nseg > 2) {
-        order = malloc((nseg - 1) * sizeof *order);
-        etacal_segment *sorted = malloc(nseg * sizeof *sorted);
-        if (!order || !sorted) {
-            free(sorted);
-            goto nomem;
-        }
-        for (size_t g = 1; g < nseg; g++)
-            order[g - 1] = (sortent){q->segs[g].keys, nkeys, g};
-        qsort(order, nseg - 1, sizeof *order, cmp_sortent);
-        sorted[0] = q->segs[0];
-        for (size_t g = 1; g < nseg; g++) {
-            sorted[g] = q->segs[order[g - 1].idx];
-            remap[order[g - 1].idx] = (uint32_t)g;
-        }
-        free(q->segs);
-        q->segs = sorted;
+        free(q->segs[g].keys);
+        q->segs[g].keys = ss.keys[g]; /* ownership moves to the table */
+        ss.keys[g] = NULL;
     }
-    segmap_renumber(&map, remap);
 
-    /* 3. Pass over the rows: validation, accuracy, per-segment n, bare
+    /* 2. Pass over the rows: validation, accuracy, per-segment n, bare
      *    hits and score range. */
     mn = malloc(nseg * sizeof *mn);
     mx = malloc(nseg * sizeof *mx);
@@ -429,7 +219,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         ksum_add(&me, e);
         int hit = a <= pr;
         on_time += (size_t)hit;
-        uint32_t g = row_seg(&map, keyids, kc, nkeys, i);
+        uint32_t g = segset_row(&ss, i);
         q->segs[g].n++;
         q->segs[g].bare_hits += (size_t)hit;
         if (sc < mn[g])
@@ -452,7 +242,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         gl->bare_hits = on_time;
     }
 
-    /* 4. The k-th smallest score of every (segment, target) by bucket
+    /* 3. The k-th smallest score of every (segment, target) by bucket
      *    selection, without copying or reordering the rows: a histogram of
      *    each segment's scores over B equal-width buckets of its range
      *    finds the bucket that holds rank k; a second pass gathers only
@@ -474,7 +264,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     }
     for (size_t i = 0; i < n; i++) {
         double sc = ratio ? y[i] / p[i] : y[i] - p[i];
-        uint32_t g = row_seg(&map, keyids, kc, nkeys, i);
+        uint32_t g = segset_row(&ss, i);
         hist[(size_t)g * B + bucket(sc, mn[g], scale[g], B)]++;
         if (g)
             hist[bucket(sc, mn[0], scale[0], B)]++;
@@ -521,7 +311,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         goto nomem;
     for (size_t i = 0; i < n; i++) {
         double sc = ratio ? y[i] / p[i] : y[i] - p[i];
-        uint32_t g = row_seg(&map, keyids, kc, nkeys, i);
+        uint32_t g = segset_row(&ss, i);
         size_t bg = bucket(sc, mn[g], scale[g], B);
         job *jg = &jobs[(size_t)g * q->ntargets];
         for (size_t ti = 0; ti < q->ntargets; ti++)
@@ -541,7 +331,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
                 q->segs[g].score_q[ti] = etacal_select(cand + jb->off, jb->cap, jb->rank);
         }
 
-    /* 5. The rows of the table. */
+    /* 4. The rows of the table. */
     size_t nrows = 0;
     for (size_t s = 0; s < nseg; s++)
         for (size_t ti = 0; ti < q->ntargets; ti++)
@@ -576,18 +366,13 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
 nomem:
     rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
 done:
-    segmap_free(&map);
-    free(first);
-    free(kc);
+    segset_free(&ss);
     free(hist);
     free(mn);
     free(mx);
     free(scale);
     free(cand);
     free(jobs);
-    free(remap);
-    free(order);
-    free(keyids);
     if (rc) {
         etacal_quotes_destroy(q);
         return rc;

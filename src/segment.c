@@ -1,0 +1,272 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* segment.c: segments of a table, the combinations of values of its key
+ * columns, numbered 1.. in the bytewise order of their key texts, with 0 for
+ * the global segment ("*" in every key).  A row's segment is found again
+ * from its key ids through a map from their mixed-radix code, so no
+ * per-row array is kept. */
+#include "internal.h"
+
+#include <stdlib.h>
+#include <string.h>
+
+/* Maps the mixed-radix code of a row's key ids to a dense segment number:
+ * a direct table when the code space is small, else open addressing. */
+
+
+#define DIRECT_MAX (UINT64_C(1) << 22)
+
+static int segmap_init(segmap *m, uint64_t space)
+{
+    memset(m, 0, sizeof *m);
+    if (space <= DIRECT_MAX) {
+        m->ndirect = (size_t)space;
+        m->direct = calloc(m->ndirect ? m->ndirect : 1, sizeof *m->direct);
+        return m->direct ? 0 : -1;
+    }
+    m->nslots = 1024;
+    m->hkeys = calloc(m->nslots, sizeof *m->hkeys);
+    m->hvals = calloc(m->nslots, sizeof *m->hvals);
+    return m->hkeys && m->hvals ? 0 : -1;
+}
+
+static void segmap_free(segmap *m)
+{
+    free(m->direct);
+    free(m->hkeys);
+    free(m->hvals);
+}
+
+static uint64_t mix64(uint64_t x)
+{
+    x ^= x >> 33;
+    x *= UINT64_C(0xff51afd7ed558ccd);
+    x ^= x >> 33;
+    return x;
+}
+
+static uint32_t *segmap_slot(segmap *m, uint64_t code)
+{
+    if (m->direct)
+        return &m->direct[code];
+    size_t mask = m->nslots - 1;
+    size_t i = (size_t)mix64(code) & mask;
+    while (m->hvals[i] && m->hkeys[i] != code)
+        i = (i + 1) & mask;
+    m->hkeys[i] = code;
+    return &m->hvals[i];
+}
+
+static int segmap_grow(segmap *m)
+{
+    if (m->direct || m->used * 2 < m->nslots)
+        return 0;
+    segmap n = {0};
+    n.nslots = m->nslots * 2;
+    n.hkeys = calloc(n.nslots, sizeof *n.hkeys);
+    n.hvals = calloc(n.nslots, sizeof *n.hvals);
+    if (!n.hkeys || !n.hvals) {
+        segmap_free(&n);
+        return -1;
+    }
+    for (size_t i = 0; i < m->nslots; i++)
+        if (m->hvals[i])
+            *segmap_slot(&n, m->hkeys[i]) = m->hvals[i];
+    n.used = m->used;
+    segmap_free(m);
+    *m = n;
+    return 0;
+}
+
+/* The mixed-radix code of row i's key ids. */
+
+
+static inline uint32_t key_at(const keycol *k, size_t i)
+{
+    return k->width == 2 ? ((const uint16_t *)k->ids)[i] : ((const uint32_t *)k->ids)[i];
+}
+
+static uint64_t row_code(const keycol *keyids, const size_t *kc, size_t nkeys, size_t i)
+{
+    uint64_t code = 0;
+    for (size_t j = 0; j < nkeys; j++)
+        code = code * (uint64_t)kc[j] + key_at(&keyids[j], i);
+    return code;
+}
+
+/* Segment numbers in the map become remap[number]. */
+static void segmap_renumber(segmap *m, const uint32_t *remap)
+{
+    uint32_t *v = m->direct ? m->direct : m->hvals;
+    size_t len = m->direct ? m->ndirect : m->nslots;
+    for (size_t i = 0; i < len; i++)
+        if (v[i])
+            v[i] = remap[v[i] - 1] + 1;
+}
+
+/* Row i's segment (0, the global one, when there are no keys). */
+static uint32_t row_seg(const segmap *m, const keycol *keyids, const size_t *kc, size_t nkeys,
+                        size_t i)
+{
+    if (nkeys == 0)
+        return 0;
+    uint64_t code = row_code(keyids, kc, nkeys, i);
+    if (m->direct)
+        return m->direct[code] - 1;
+    size_t mask = m->nslots - 1;
+    size_t s = (size_t)mix64(code) & mask;
+    while (m->hkeys[s] != code)
+        s = (s + 1) & mask;
+    return m->hvals[s] - 1;
+}
+
+typedef struct sortent {
+    char **keys;
+    size_t nkeys;
+    size_t idx;
+} sortent;
+
+static int cmp_sortent(const void *a, const void *b)
+{
+    const sortent *x = a, *y = b;
+    for (size_t j = 0; j < x->nkeys; j++) {
+        int c = strcmp(x->keys[j], y->keys[j]);
+        if (c)
+            return c;
+    }
+    return 0;
+}
+
+
+static char *dupn(const char *s, size_t n)
+{
+    char *d = malloc(n + 1);
+    if (d) {
+        memcpy(d, s, n);
+        d[n] = '\0';
+    }
+    return d;
+}
+
+void segset_free(segset *s)
+{
+    if (!s)
+        return;
+    if (s->keys)
+        for (size_t g = 0; g < s->nseg; g++) {
+            if (s->keys[g])
+                for (size_t j = 0; j < s->nkeys; j++)
+                    free(s->keys[g][j]);
+            free(s->keys[g]);
+        }
+    free(s->keys);
+    segmap_free(&s->map);
+    free(s->kcols);
+    free(s->kc);
+    memset(s, 0, sizeof *s);
+}
+
+uint32_t segset_row(const segset *s, size_t row)
+{
+    return row_seg(&s->map, s->kcols, s->kc, s->nkeys, row);
+}
+
+int segset_build(segset *s, const etacal_table *t, const size_t *key_cols, size_t nkeys, etacal_error *err)
+{
+    int rc = ETACAL_OK;
+    size_t *first = NULL, firstcap = 0;
+    uint32_t *remap = NULL;
+    sortent *order = NULL;
+    char ***sorted = NULL;
+    memset(s, 0, sizeof *s);
+    s->nkeys = nkeys;
+    s->kcols = calloc(nkeys ? nkeys : 1, sizeof *s->kcols);
+    s->kc = calloc(nkeys ? nkeys : 1, sizeof *s->kc);
+    if (!s->kcols || !s->kc)
+        goto nomem;
+    uint64_t space = 1;
+    for (size_t j = 0; j < nkeys; j++) {
+        s->kcols[j].ids = etacal_table_key_ids(t, key_cols[j], &s->kcols[j].width);
+        if (!s->kcols[j].ids) {
+            rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "'%s' is not a key column",
+                                  etacal_table_col_name(t, key_cols[j]));
+            goto done;
+        }
+        s->kc[j] = etacal_table_key_count(t, key_cols[j]);
+        uint64_t c = s->kc[j] ? s->kc[j] : 1;
+        if (space > UINT64_MAX / c) {
+            rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "too many combinations of key values");
+            goto done;
+        }
+        space *= c;
+    }
+    if (segmap_init(&s->map, space) != 0)
+        goto nomem;
+    /* numbered in order of first appearance, then renumbered sorted */
+    size_t n = etacal_table_rows(t), nseg = 1;
+    for (size_t i = 0; i < n && nkeys; i++) {
+        uint64_t code = row_code(s->kcols, s->kc, nkeys, i);
+        uint32_t *slot = segmap_slot(&s->map, code);
+        if (*slot == 0) {
+            if (nseg >= UINT32_MAX - 1) {
+                rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "too many segments");
+                goto done;
+            }
+            if (grow_array((void **)&first, &firstcap, nseg + 1, sizeof *first) != 0)
+                goto nomem;
+            first[nseg] = i;
+            *slot = (uint32_t)nseg++ + 1;
+            s->map.used++;
+            if (segmap_grow(&s->map) != 0)
+                goto nomem;
+        }
+    }
+    s->keys = calloc(nseg, sizeof *s->keys);
+    if (!s->keys)
+        goto nomem;
+    s->nseg = nseg;
+    for (size_t g = 0; g < nseg; g++) {
+        s->keys[g] = calloc(nkeys ? nkeys : 1, sizeof *s->keys[g]);
+        if (!s->keys[g])
+            goto nomem;
+        for (size_t j = 0; j < nkeys; j++) {
+            const char *txt = g == 0 ? "*"
+                                     : etacal_table_key_text(t, key_cols[j], key_at(&s->kcols[j], first[g]));
+            if (!(s->keys[g][j] = dupn(txt, strlen(txt))))
+                goto nomem;
+        }
+    }
+    remap = malloc(nseg * sizeof *remap);
+    if (!remap)
+        goto nomem;
+    for (size_t g = 0; g < nseg; g++)
+        remap[g] = (uint32_t)g;
+    if (nseg > 2) {
+        order = malloc((nseg - 1) * sizeof *order);
+        sorted = malloc(nseg * sizeof *sorted);
+        if (!order || !sorted)
+            goto nomem;
+        for (size_t g = 1; g < nseg; g++)
+            order[g - 1] = (sortent){s->keys[g], nkeys, g};
+        qsort(order, nseg - 1, sizeof *order, cmp_sortent);
+        sorted[0] = s->keys[0];
+        for (size_t g = 1; g < nseg; g++) {
+            sorted[g] = s->keys[order[g - 1].idx];
+            remap[order[g - 1].idx] = (uint32_t)g;
+        }
+        free(s->keys);
+        s->keys = sorted;
+        sorted = NULL;
+    }
+    segmap_renumber(&s->map, remap);
+    goto done;
+nomem:
+    rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+done:
+    free(first);
+    free(remap);
+    free(order);
+    free(sorted);
+    if (rc)
+        segset_free(s);
+    return rc;
+}
