@@ -12,9 +12,9 @@ PREFIX   ?= /usr/local
 DESTDIR  ?=
 PYTHON   ?= /usr/bin/python3
 
-PKGS      := gsl
+PKGS      := gsl jansson
 PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
-PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null || echo -lgsl -lgslcblas -lm)
+PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null || echo -lgsl -lgslcblas -ljansson -lm)
 CMOCKA_CFLAGS := $(shell pkg-config --cflags cmocka 2>/dev/null)
 CMOCKA_LIBS   := $(shell pkg-config --libs cmocka 2>/dev/null || echo -lcmocka)
 

@@ -124,8 +124,6 @@ static inline const char *rowbuf_get(const rowbuf *r, size_t i) { return r->buf 
 static inline size_t rowbuf_len(const rowbuf *r, size_t i) { return r->flen[i]; }
 void rowbuf_free(rowbuf *r);
 
-/* Writes one CSV field, quoted only when it must be. */
-void csv_put_field(FILE *fp, const char *s, size_t len, char delim);
 
 /* segset: the segments of a table (segment.c).  keys[g][j] is the text of
  * key j in segment g; segment 0 is the global one ("*"), the others come in

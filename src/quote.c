@@ -383,7 +383,7 @@ done:
 
 /* Writes s as one CSV field, quoted only when it must be. */
 
-void csv_put_field(FILE *fp, const char *s, size_t len, char delim)
+void etacal_csv_put_field(FILE *fp, const char *s, size_t len, char delim)
 {
     int need = len > 0 && (s[0] == ' ' || s[len - 1] == ' ');
     for (size_t i = 0; i < len && !need; i++)
@@ -405,7 +405,7 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
 {
     char num[ETACAL_NUM_BUFSZ];
     for (size_t j = 0; j < q->nkeys; j++) {
-        csv_put_field(fp, q->key_names[j], strlen(q->key_names[j]), ',');
+        etacal_csv_put_field(fp, q->key_names[j], strlen(q->key_names[j]), ',');
         putc(',', fp);
     }
     fputs("target,method,n,k,offset_s,slope\n", fp);
@@ -413,7 +413,7 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
         const etacal_quote *row = &q->rows[r];
         const etacal_segment *g = &q->segs[row->seg];
         for (size_t j = 0; j < q->nkeys; j++) {
-            csv_put_field(fp, g->keys[j], strlen(g->keys[j]), ',');
+            etacal_csv_put_field(fp, g->keys[j], strlen(g->keys[j]), ',');
             putc(',', fp);
         }
         etacal_num_format(q->targets[row->target], num);

@@ -15,5 +15,8 @@
 #include "etacal/table.h"
 #include "etacal/quote.h"
 #include "etacal/apply.h"
+#include "etacal/binom.h"
+#include "etacal/metrics.h"
+#include "etacal/check.h"
 
 #endif

@@ -32,6 +32,10 @@ int etacal_outfile_commit(etacal_outfile *o, etacal_error *err);
  * zeroed, committed or already aborted outfile. */
 void etacal_outfile_abort(etacal_outfile *o);
 
+/* Writes one CSV field (RFC 4180): quoted, with inner quotes doubled, only
+ * when it holds the delimiter, a quote, a line break or edge spaces. */
+void etacal_csv_put_field(FILE *fp, const char *s, size_t len, char delim);
+
 #ifdef __cplusplus
 }
 #endif

@@ -13,12 +13,14 @@ static const char usage[] =
     "Commands:\n"
     "  fit     fit a promise (quote) table from predictions and actual durations\n"
     "  apply   add promise times to a file of new orders using a quote table\n"
+    "  check   check that promises, intervals or quantiles cover what they claim\n"
     "\n"
     "Run 'etacal COMMAND --help' for a command's options.\n"
     "  -h, --help     show this help and exit\n"
     "  -V, --version  show the version and exit\n"
     "\n"
-    "Exit status: 0 success, 1 data or runtime error, 2 usage error.\n";
+    "Exit status: 0 success, 1 data or runtime error, 2 usage error,\n"
+    "3 a gate failed (etacal check --gate).\n";
 
 int main(int argc, char **argv)
 {
@@ -38,6 +40,8 @@ int main(int argc, char **argv)
         rc = cmd_fit(argc - 1, argv + 1);
     } else if (strcmp(cmd, "apply") == 0) {
         rc = cmd_apply(argc - 1, argv + 1);
+    } else if (strcmp(cmd, "check") == 0) {
+        rc = cmd_check(argc - 1, argv + 1);
     } else {
         return usage_error(NULL, "unknown command '%s'", cmd);
     }

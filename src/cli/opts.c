@@ -213,3 +213,5 @@ void tt_free(text_table *t)
     free(t->right);
     memset(t, 0, sizeof *t);
 }
+
+void csv_field(FILE *fp, const char *s) { etacal_csv_put_field(fp, s, strlen(s), ','); }

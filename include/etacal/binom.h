@@ -1,0 +1,34 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* binom.h: confidence intervals for a binomial proportion (an on-time rate
+ * or a coverage x/n). */
+#ifndef ETACAL_BINOM_H
+#define ETACAL_BINOM_H
+
+#include <stddef.h>
+
+#include "etacal/error.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+enum { ETACAL_CI_WILSON = 0, ETACAL_CI_EXACT = 1 };
+
+/* Wilson (1927) score interval for x successes in n trials at confidence
+ * conf in (0,1): centre (x + z^2/2)/(n + z^2), half-width
+ * z sqrt(x(n-x)/n + z^2/4)/(n + z^2), z = Phi^-1(1 - (1-conf)/2).
+ * Errors: n = 0, x > n, conf outside (0,1). */
+int etacal_binom_wilson(size_t x, size_t n, double conf, double *lo, double *hi, etacal_error *err);
+
+/* Clopper-Pearson (1934) exact interval: [B^-1(a/2; x, n-x+1),
+ * B^-1(1-a/2; x+1, n-x)] with a = 1 - conf, 0 at x = 0 and 1 at x = n,
+ * through GSL's beta quantile function. */
+int etacal_binom_exact(size_t x, size_t n, double conf, double *lo, double *hi, etacal_error *err);
+
+/* Either of the above by method (ETACAL_CI_WILSON or ETACAL_CI_EXACT). */
+int etacal_binom_ci(int method, size_t x, size_t n, double conf, double *lo, double *hi, etacal_error *err);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

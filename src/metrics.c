@@ -1,0 +1,19 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* metrics.c: pinball loss and interval score (formulas in metrics.h). */
+#include "internal.h"
+
+double etacal_pinball(double y, double q, double tau)
+{
+    double d = y - q;
+    return d >= 0 ? tau * d : (tau - 1) * d;
+}
+
+double etacal_interval_score(double y, double l, double u, double alpha)
+{
+    double s = u - l;
+    if (y < l)
+        s += 2 / alpha * (l - y);
+    if (y > u)
+        s += 2 / alpha * (y - u);
+    return s;
+}
