@@ -58,6 +58,10 @@ $(BUILD)/tests/%: tests/unit/%.c $(wildcard tests/unit/*.h) $(LIB)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(CMOCKA_CFLAGS) -Itests/unit -o $@ $< $(LIB) $(CMOCKA_LIBS) $(LDLIBS_ALL)
 
+$(BUILD)/quantgen: tests/tools/quantgen.c
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) -o $@ $< -lm
+
 $(BUILD)/tests/refcalc: tests/ref/refcalc.c $(LIB)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) -o $@ $< $(LIB) $(LDLIBS_ALL)
@@ -72,13 +76,13 @@ unit: $(UNIT_BIN)
 	  echo "== $$t"; $$t || fail=1; \
 	done; exit $$fail
 
-e2e: $(BIN) $(CITYGEN)
+e2e: $(BIN) $(CITYGEN) $(BUILD)/quantgen
 	@sh tests/e2e/run.sh $(BIN)
 
 ref: $(BIN) $(BUILD)/tests/refcalc $(CITYGEN)
 	@sh tests/ref/run.sh $(BUILD) $(PYTHON)
 
-golden: $(BIN)
+golden: $(BIN) $(CITYGEN) $(BUILD)/quantgen
 	@ETACAL_GOLDEN=1 sh tests/e2e/run.sh $(BIN)
 
 # The same suite built with AddressSanitizer and UndefinedBehaviorSanitizer.

@@ -3,8 +3,9 @@
 # demo.sh BUILD: the main job on the demo data of Veldmark's courier network
 # (an invented city; the data come from examples/citygen.c with a fixed
 # seed).  Fit a quote table on four weeks of delivered orders, promise the
-# next week's orders with it, and show the on-time rate reached next to that
-# of the bare prediction.
+# next week's orders with it, show the on-time rate reached next to that of
+# the bare prediction, and check the promises per zone with their
+# confidence intervals.
 set -eu
 build=${1:-build}
 etacal=$build/etacal
@@ -29,5 +30,10 @@ echo "\$ etacal apply $demo/quotes.csv $demo/fresh.csv --pred pred_s --round 60 
 echo
 echo "First promised orders ($demo/promised.csv):"
 head -4 "$demo/promised.csv"
+
+echo
+echo "== 4. etacal check: do the promises keep their word on the fresh week, per zone?"
+echo "\$ etacal check $demo/promised.csv --actual actual_s --upper promise_s=0.9 --by zone --gate"
+"$etacal" check "$demo/promised.csv" --actual actual_s --upper promise_s=0.9 --by zone --gate
 echo
 echo "Quote table: $demo/quotes.csv"

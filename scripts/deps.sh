@@ -5,9 +5,9 @@
 # prints the exact command to run and fails.
 #   scripts/deps.sh            build and test libraries (GSL, libcsv, cmocka)
 #   scripts/deps.sh --oracles  also the reference libraries the oracle tests
-#                              compare against (today numpy); missing ones
-#                              only make those tests skip, so failure to
-#                              install them is a warning.
+#                              compare against (numpy, scipy, scikit-learn);
+#                              missing ones only make those tests skip, so
+#                              failure to install them is a warning.
 set -u
 
 need=""
@@ -19,7 +19,7 @@ done
 
 oracles=""
 if [ "${1:-}" = "--oracles" ]; then
-    for p in python3-numpy; do
+    for p in python3-numpy python3-scipy python3-sklearn; do
         have_pkg "$p" || oracles="$oracles $p"
     done
 fi

@@ -32,14 +32,34 @@ int etacal_binom_wilson(size_t x, size_t n, double conf, double *lo, double *hi,
     return ETACAL_OK;
 }
 
+/* The p-quantile of Beta(a, b) by bisection on GSL's regularized incomplete
+ * beta function (gsl_cdf_beta_P), to the last bit of a double.
+ * gsl_cdf_beta_Pinv's Newton steps fail to converge for large a and b
+ * (n in the hundred thousands); bisection cannot fail and costs about 60
+ * evaluations. */
+static double beta_quantile(double p, double a, double b)
+{
+    double lo = 0, hi = 1;
+    for (int i = 0; i < 200; i++) {
+        double mid = lo + (hi - lo) / 2;
+        if (mid <= lo || mid >= hi)
+            break;
+        if (gsl_cdf_beta_P(mid, a, b) < p)
+            lo = mid;
+        else
+            hi = mid;
+    }
+    return lo + (hi - lo) / 2;
+}
+
 int etacal_binom_exact(size_t x, size_t n, double conf, double *lo, double *hi, etacal_error *err)
 {
     int rc = check_args(x, n, conf, err);
     if (rc)
         return rc;
     double a = 1 - conf;
-    *lo = x == 0 ? 0 : gsl_cdf_beta_Pinv(a / 2, (double)x, (double)(n - x + 1));
-    *hi = x == n ? 1 : gsl_cdf_beta_Pinv(1 - a / 2, (double)(x + 1), (double)(n - x));
+    *lo = x == 0 ? 0 : beta_quantile(a / 2, (double)x, (double)(n - x + 1));
+    *hi = x == n ? 1 : beta_quantile(1 - a / 2, (double)(x + 1), (double)(n - x));
     if (!isfinite(*lo) || !isfinite(*hi))
         return etacal_error_set(err, ETACAL_ENUM, NULL, "beta quantile failed for %zu/%zu", x, n);
     return ETACAL_OK;

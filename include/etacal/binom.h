@@ -21,8 +21,8 @@ enum { ETACAL_CI_WILSON = 0, ETACAL_CI_EXACT = 1 };
 int etacal_binom_wilson(size_t x, size_t n, double conf, double *lo, double *hi, etacal_error *err);
 
 /* Clopper-Pearson (1934) exact interval: [B^-1(a/2; x, n-x+1),
- * B^-1(1-a/2; x+1, n-x)] with a = 1 - conf, 0 at x = 0 and 1 at x = n,
- * through GSL's beta quantile function. */
+ * B^-1(1-a/2; x+1, n-x)] with a = 1 - conf, 0 at x = 0 and 1 at x = n;
+ * the beta quantiles by bisection on GSL's beta distribution function. */
 int etacal_binom_exact(size_t x, size_t n, double conf, double *lo, double *hi, etacal_error *err);
 
 /* Either of the above by method (ETACAL_CI_WILSON or ETACAL_CI_EXACT). */

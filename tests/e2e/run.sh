@@ -4,7 +4,8 @@
 # tests/data/<case>/ holds
 #   cmd       one shell command line, run in a scratch copy of the directory
 #             with $ETACAL set to the binary under test and $CITYGEN to the
-#             data generator (for cases that need a large file)
+#             data generator (for cases that need a large file), $QUANTGEN to
+#             the generator of forecasts with known coverage (tests/tools)
 #   stdout    expected standard output   (exact)
 #   stderr    expected standard error    (exact)
 #   status    expected exit status
@@ -16,6 +17,7 @@ set -u
 bin=$1
 case $bin in /*) ;; *) bin=$(pwd)/$bin ;; esac
 citygen=$(dirname "$bin")/citygen
+quantgen=$(dirname "$bin")/quantgen
 here=$(cd "$(dirname "$0")/../data" && pwd)
 pass=0
 fail=0
@@ -24,7 +26,7 @@ for dir in "$here"/*/; do
     [ -f "$dir/cmd" ] || continue
     work=$(mktemp -d)
     cp -R "$dir/." "$work/"
-    (cd "$work" && ETACAL="$bin" CITYGEN="$citygen" LC_ALL=C sh -c "$(cat cmd)" >"$work/.out" 2>"$work/.err" </dev/null
+    (cd "$work" && ETACAL="$bin" CITYGEN="$citygen" QUANTGEN="$quantgen" LC_ALL=C sh -c "$(cat cmd)" >"$work/.out" 2>"$work/.err" </dev/null
      echo $? >"$work/.status")
     if [ "${ETACAL_GOLDEN:-}" = 1 ]; then
         cp "$work/.out" "$dir/stdout"

@@ -4,10 +4,13 @@
  *   refcalc type1 P [P...]   < numbers   type-1 quantiles (Hyndman & Fan 1996)
  *   refcalc rank N TAU                    ceil((N+1) TAU)
  *   refcalc conformal TAU    < numbers   the one-sided split-conformal bound
+ *   refcalc wilson|exact CONF < "x n" lines   binomial intervals, "lo hi" per line
  * Numbers are read one per line; results print with %.17g, one per line. */
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+
+#include <gsl/gsl_errno.h>
 
 #include "etacal/etacal.h"
 
@@ -48,6 +51,7 @@ static double arg(const char *s)
 
 int main(int argc, char **argv)
 {
+    gsl_set_error_handler_off();
     if (argc >= 3 && strcmp(argv[1], "type1") == 0) {
         size_t n;
         double *x = read_all(&n);
@@ -67,6 +71,21 @@ int main(int argc, char **argv)
         free(x);
         return 0;
     }
-    fprintf(stderr, "usage: refcalc type1 P... | rank N TAU | conformal TAU\n");
+    if (argc == 3 && (strcmp(argv[1], "wilson") == 0 || strcmp(argv[1], "exact") == 0)) {
+        int method = strcmp(argv[1], "exact") == 0 ? ETACAL_CI_EXACT : ETACAL_CI_WILSON;
+        double conf = arg(argv[2]);
+        size_t x, n;
+        while (scanf("%zu %zu", &x, &n) == 2) {
+            double lo, hi;
+            etacal_error err;
+            if (etacal_binom_ci(method, x, n, conf, &lo, &hi, &err) != ETACAL_OK) {
+                fprintf(stderr, "refcalc: %s\n", err.msg);
+                return 1;
+            }
+            printf("%.17g %.17g\n", lo, hi);
+        }
+        return 0;
+    }
+    fprintf(stderr, "usage: refcalc type1 P... | rank N TAU | conformal TAU | wilson|exact CONF\n");
     return 2;
 }
