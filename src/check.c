@@ -160,7 +160,8 @@ int etacal_check_run(const etacal_table *t, const etacal_check_opts *o, etacal_c
 
     /* The measures. */
     r->measures = calloc(3 + o->nq, sizeof *r->measures);
-    qs = malloc((o->nq ? o->nq : 1) * sizeof *qs);
+    qs = malloc((o->nq + 2) * sizeof *qs);
+    size_t nqs = 0;
     if (!r->measures || !qs)
         goto nomem;
     size_t nm = 0;
@@ -185,21 +186,30 @@ int etacal_check_run(const etacal_table *t, const etacal_check_opts *o, etacal_c
         }
         r->measures[nm++] = (etacal_measure_def){ETACAL_MEASURE_INTERVAL, (size_t)o->upper_col,
                                                  (size_t)o->lower_col, cover, 1 - cover};
-        if (both) {
-            r->measures[nm++] = (etacal_measure_def){ETACAL_MEASURE_QUANTILE, (size_t)o->lower_col, 0,
-                                                     o->lower_level, o->lower_level};
-            r->measures[nm++] = (etacal_measure_def){ETACAL_MEASURE_QUANTILE, (size_t)o->upper_col, 0,
-                                                     o->upper_level, o->upper_level};
+        if (both) { /* the two bounds join the quantile forecast */
+            qs[nqs++] = (qsort_ent){o->lower_level, (size_t)o->lower_col};
+            qs[nqs++] = (qsort_ent){o->upper_level, (size_t)o->upper_col};
         }
     }
-    for (size_t i = 0; i < o->nq; i++)
-        qs[i] = (qsort_ent){o->q_taus[i], o->q_cols[i]};
-    qsort(qs, o->nq, sizeof *qs, cmp_q);
+    for (size_t i = 0; i < o->nq; i++) {
+        size_t j = 0;
+        while (j < nqs && qs[j].tau != o->q_taus[i])
+            j++;
+        if (j < nqs) {
+            if (qs[j].col == o->q_cols[i])
+                continue; /* the same column at the same level, given twice */
+            rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "two forecast columns at the same level %g",
+                                  o->q_taus[i]);
+            goto done;
+        }
+        qs[nqs++] = (qsort_ent){o->q_taus[i], o->q_cols[i]};
+    }
+    qsort(qs, nqs, sizeof *qs, cmp_q);
     size_t qfirst = nm;
-    for (size_t i = 0; i < o->nq; i++)
+    for (size_t i = 0; i < nqs; i++)
         r->measures[nm++] = (etacal_measure_def){ETACAL_MEASURE_QUANTILE, qs[i].col, 0, qs[i].tau, qs[i].tau};
     r->nmeasures = nm;
-    r->nq_sorted = o->nq;
+    r->nq_sorted = nqs;
 
     /* Column data of every measure, checked numeric. */
     const double *y = etacal_table_num(t, o->actual_col);

@@ -44,9 +44,9 @@ typedef struct etacal_check_opts {
 } etacal_check_opts;
 
 /* What is measured, in the order of etacal_check_result.measures:
- * the promise (--upper alone) or the interval (--upper with --lower); when
- * an interval's two bounds have levels, each bound as a quantile; then the
- * quantile columns in ascending tau. */
+ * the promise (--upper alone) or the interval (--upper with --lower); then
+ * the quantile forecast in ascending tau: the quantile columns and, when an
+ * interval's two bounds have levels, the two bounds as quantiles. */
 typedef struct etacal_measure_def {
     int kind;
     size_t col, col2;  /* forecast column (interval: upper, lower) */
@@ -79,7 +79,7 @@ typedef struct etacal_check_result {
     char **key_names;
     size_t nmeasures;
     etacal_measure_def *measures;
-    size_t nq_sorted;       /* quantile measures, for calibration and crossing */
+    size_t nq_sorted;       /* quantile measures (the last ones), for calibration and crossing */
     size_t nsegs;           /* segs[0]: all rows */
     etacal_check_segment *segs;
     double confidence;
@@ -91,7 +91,8 @@ typedef struct etacal_check_result {
 /* Runs the check over the rows of t (read with ETACAL_NUM_SKIP_MISSING on
  * every column used, so no NaN remains).  *out is new; free with
  * etacal_check_destroy.  Errors: no rows, no measure, levels outside (0,1),
- * an interval whose upper level is not above its lower level. */
+ * an interval whose upper level is not above its lower level, two columns
+ * at the same level. */
 int etacal_check_run(const etacal_table *t, const etacal_check_opts *opts, etacal_check_result **out,
                      etacal_error *err);
 void etacal_check_destroy(etacal_check_result *r);

@@ -189,10 +189,14 @@ void tt_print(const text_table *t, FILE *fp)
                 w[j] = l;
         }
     for (size_t i = 0; i < t->nrows; i++) {
-        for (size_t j = 0; j < t->ncols; j++) {
+        /* no trailing blanks: stop after the last non-empty cell */
+        size_t end = t->ncols;
+        while (end > 1 && !t->cells[i * t->ncols + end - 1][0])
+            end--;
+        for (size_t j = 0; j < end; j++) {
             const char *c = t->cells[i * t->ncols + j];
             size_t pad = w[j] - width(c);
-            int last = j + 1 == t->ncols;
+            int last = j + 1 == end;
             if (t->right[j])
                 fprintf(fp, "%*s%s", (int)pad, "", c);
             else
