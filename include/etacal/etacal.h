@@ -18,5 +18,6 @@
 #include "etacal/binom.h"
 #include "etacal/metrics.h"
 #include "etacal/check.h"
+#include "etacal/quantreg.h"
 
 #endif

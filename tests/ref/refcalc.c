@@ -5,6 +5,10 @@
  *   refcalc rank N TAU                    ceil((N+1) TAU)
  *   refcalc conformal TAU    < numbers   the one-sided split-conformal bound
  *   refcalc wilson|exact CONF < "x n" lines   binomial intervals, "lo hi" per line
+ *   refcalc qr TAU K SE [PRE] < "y x1 .. xK" lines   quantile regression: prints
+ *           "coef c0 .. cK", "se s0 .. sK", "objective", "iterations", "bandwidth";
+ *           SE is none, powell or boot (200 reps, seed 1); PRE 1 forces
+ *           preprocessing, 2 forbids it
  * Numbers are read one per line; results print with %.17g, one per line. */
 #include <stdio.h>
 #include <stdlib.h>
@@ -84,6 +88,64 @@ int main(int argc, char **argv)
             }
             printf("%.17g %.17g\n", lo, hi);
         }
+        return 0;
+    }
+    if (argc >= 5 && strcmp(argv[1], "qr") == 0) {
+        double tau = arg(argv[2]);
+        size_t k = (size_t)arg(argv[3]);
+        const char *sem = argv[4];
+        etacal_qr_opts o = {0};
+        if (argc >= 6)
+            o.preprocess = (int)arg(argv[5]);
+        size_t cap = 1024, n = 0;
+        double *y = malloc(cap * sizeof *y), *xs = malloc(cap * 16 * sizeof *xs);
+        double v[17];
+        for (;;) {
+            size_t got = 0;
+            for (size_t j = 0; j <= k; j++)
+                got += scanf("%lf", &v[j]) == 1;
+            if (got != k + 1)
+                break;
+            if (n == cap) {
+                cap *= 2;
+                y = realloc(y, cap * sizeof *y);
+                xs = realloc(xs, cap * 16 * sizeof *xs);
+            }
+            y[n] = v[0];
+            for (size_t j = 0; j < k; j++)
+                xs[j * 0 + n * 16 + j] = v[j + 1];
+            n++;
+        }
+        double *cols[16];
+        for (size_t j = 0; j < k; j++) {
+            cols[j] = malloc(n * sizeof(double));
+            for (size_t i = 0; i < n; i++)
+                cols[j][i] = xs[i * 16 + j];
+        }
+        etacal_qr_result r;
+        etacal_error err;
+        if (etacal_qr_fit(y, (const double *const *)cols, k, NULL, n, tau, NULL, &o, &r, &err) != ETACAL_OK) {
+            fprintf(stderr, "refcalc: %s\n", err.msg);
+            return 1;
+        }
+        int m = strcmp(sem, "powell") == 0 ? ETACAL_SE_POWELL : strcmp(sem, "boot") == 0 ? ETACAL_SE_BOOT : ETACAL_SE_NONE;
+        double se[17], bw;
+        if (etacal_qr_se(y, (const double *const *)cols, k, n, tau, &r, m, 200, 1, &o, se, &bw, &err) != ETACAL_OK) {
+            fprintf(stderr, "refcalc: %s\n", err.msg);
+            return 1;
+        }
+        printf("coef");
+        for (size_t j = 0; j < r.p; j++)
+            printf(" %.17g", r.coef[j]);
+        printf("\nse");
+        for (size_t j = 0; j < r.p; j++)
+            printf(" %.17g", se[j]);
+        printf("\nobjective %.17g\niterations %d\nbandwidth %.17g\nsolves %d\n", r.objective, r.iterations, bw,
+               r.solves);
+        for (size_t j = 0; j < k; j++)
+            free(cols[j]);
+        free(y);
+        free(xs);
         return 0;
     }
     fprintf(stderr, "usage: refcalc type1 P... | rank N TAU | conformal TAU | wilson|exact CONF\n");

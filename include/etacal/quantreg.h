@@ -1,0 +1,79 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* quantreg.h: linear quantile regression.
+ *
+ * Minimises sum_i w_i rho_tau(y_i - b0 - sum_j b_j x_ij), rho_tau(u) =
+ * u (tau - 1[u < 0]) (Koenker & Bassett 1978), exactly, as a linear program
+ * solved by the primal-dual interior-point (Frisch-Newton) method of
+ * Portnoy & Koenker (1997), with their preprocessing for large n.  Every
+ * Newton step is a p x p Cholesky solve (GSL).  Covariates are centred and
+ * scaled inside; coefficients are reported in the original units. */
+#ifndef ETACAL_QUANTREG_H
+#define ETACAL_QUANTREG_H
+
+#include <stddef.h>
+
+#include "etacal/error.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+typedef struct etacal_qr_opts {
+    double eps;          /* duality-gap tolerance (absolute); 0 means 1e-6 */
+    int maxit;           /* Newton iterations per solve; 0 means 50 */
+    int preprocess;      /* 0: auto (on for n > 20000), 1: on, 2: off */
+    unsigned long seed;  /* of the preprocessing subsamples */
+} etacal_qr_opts;
+
+typedef struct etacal_qr_result {
+    size_t p;             /* 1 + number of covariates */
+    double coef[17];      /* intercept, then one per covariate (original units) */
+    double objective;     /* sum w_i rho_tau(residual_i) at coef */
+    int iterations;       /* Newton iterations, all solves summed */
+    double gap;           /* duality gap of the last solve */
+    int solves;           /* interior-point solves (1 without preprocessing) */
+    size_t n;
+} etacal_qr_result;
+
+#define ETACAL_QR_MAX_COVARIATES 16
+
+/* Fits the tau-quantile regression of y[0..n) on an intercept and the k
+ * covariate columns x[0..k)[0..n) (k <= ETACAL_QR_MAX_COVARIATES), with
+ * optional non-negative weights w (NULL for none).  names[j] names covariate
+ * j in messages (may be NULL).  Errors: tau outside (0,1), n <= k, non-finite
+ * data or a negative weight, a constant covariate or one that is a linear
+ * combination of others (the message names it), no convergence. */
+int etacal_qr_fit(const double *y, const double *const *x, size_t k, const double *w, size_t n, double tau,
+                  const char *const *names, const etacal_qr_opts *opts, etacal_qr_result *out,
+                  etacal_error *err);
+
+/* Standard errors of the coefficients.  ETACAL_SE_POWELL: Powell's kernel
+ * sandwich tau(1-tau) H^-1 (X'X) H^-1, H = sum f_i x_i x_i', f_i =
+ * phi(u_i/h)/h, h = (Phi^-1(tau+hs) - Phi^-1(tau-hs)) min(sd(u), IQR(u)/1.34)
+ * with the Hall-Sheather (1988) bandwidth hs at alpha = 0.05 (Koenker 2005,
+ * sec. 3.4; as quantreg's summary.rq, se = "ker").  ETACAL_SE_BOOT: the
+ * standard deviation of the estimates over reps xy-pair bootstrap samples
+ * drawn with the seed.  Unweighted fits only.  se[0..p). */
+enum { ETACAL_SE_NONE = 0, ETACAL_SE_POWELL = 1, ETACAL_SE_BOOT = 2 };
+
+int etacal_qr_se(const double *y, const double *const *x, size_t k, size_t n, double tau,
+                 const etacal_qr_result *fit, int method, size_t reps, unsigned long seed,
+                 const etacal_qr_opts *opts, double *se, double *bandwidth, etacal_error *err);
+
+/* The Hall-Sheather bandwidth for n and tau, alpha = 0.05, halved while
+ * tau +- h leaves (0,1). */
+double etacal_qr_bandwidth_hs(size_t n, double tau);
+
+/* Two-sided p-value of t with df degrees of freedom (GSL's t law). */
+double etacal_t_pvalue(double t, double df);
+
+/* Monotone rearrangement (Chernozhukov, Fernandez-Val & Galichon 2010) of
+ * predicted quantiles q[0..m) at ascending levels: sorts them, so that the
+ * rearranged curve is the quantile function of the predictions on that grid
+ * of levels. */
+void etacal_rearrange(double *q, size_t m);
+
+#ifdef __cplusplus
+}
+#endif
+#endif
