@@ -51,6 +51,8 @@ typedef struct applier {
     size_t nfields;
     long c_pred, c_actual;
     long *c_keys;         /* order column of each table key */
+    long c_cov[ETACAL_QR_MAX_COVARIATES]; /* order column of each coef_ covariate */
+    double cov[ETACAL_QR_MAX_COVARIATES];
     strdict segs;         /* joined key texts -> table segment */
     long *segrow;         /* [seg * ntargets + ti] -> row index or -1 */
     size_t nsel;
@@ -98,6 +100,8 @@ static int header(applier *a, size_t line, const char *raw, size_t rawlen)
         return fail(a, line, ETACAL_ENOMEM, "out of memory%s", "");
     for (size_t j = 0; j < q->nkeys; j++)
         a->c_keys[j] = -1;
+    for (size_t j = 0; j < q->ncoef; j++)
+        a->c_cov[j] = -1;
     char name[ETACAL_NUM_BUFSZ + 16];
     for (size_t i = 0; i < b->nf; i++) {
         const char *h = rowbuf_get(b, i);
@@ -108,6 +112,9 @@ static int header(applier *a, size_t line, const char *raw, size_t rawlen)
         for (size_t j = 0; j < q->nkeys; j++)
             if (strcmp(h, q->key_names[j]) == 0)
                 a->c_keys[j] = (long)i;
+        for (size_t j = 0; j < q->ncoef; j++)
+            if (strcmp(h, q->coef_names[j]) == 0)
+                a->c_cov[j] = (long)i;
         for (size_t t = 0; t < a->nsel; t++) {
             if (a->nsel == 1) {
                 snprintf(name, sizeof name, "promise_s");
@@ -129,6 +136,11 @@ static int header(applier *a, size_t line, const char *raw, size_t rawlen)
             return fail(a, line, ETACAL_EINVAL,
                         "no column '%s' in the header (a key column of the quote table)",
                         q->key_names[j]);
+    for (size_t j = 0; j < q->ncoef; j++)
+        if (a->c_cov[j] < 0)
+            return fail(a, line, ETACAL_EINVAL,
+                        "no column '%s' in the header (a covariate of the quote table's regression)",
+                        q->coef_names[j]);
     a->nfields = b->nf;
     const char *term = put_record(a, raw, rawlen);
     for (size_t t = 0; t < a->nsel; t++) {
@@ -259,6 +271,17 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
             snprintf(msg, sizeof msg, "column '%s': method ratio needs a prediction > 0", a->o->pred_col);
             problem = msg;
         }
+        for (size_t j = 0; j < a->q->ncoef && !problem && !missing; j++) {
+            size_t cj = (size_t)a->c_cov[j];
+            k = etacal_num_parse(rowbuf_get(b, cj), rowbuf_len(b, cj), &a->cov[j]);
+            if (k == ETACAL_NUM_MISSING) {
+                missing = 1;
+            } else if (k == ETACAL_NUM_BAD || !isfinite(a->cov[j])) {
+                snprintf(msg, sizeof msg, "column '%s' is not a finite number: '%.40s'", a->q->coef_names[j],
+                         rowbuf_get(b, cj));
+                problem = msg;
+            }
+        }
         if (!problem && a->c_actual >= 0) {
             k = etacal_num_parse(rowbuf_get(b, (size_t)a->c_actual), rowbuf_len(b, (size_t)a->c_actual),
                                  &actual);
@@ -283,8 +306,10 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
     st->rows++;
     const char *term = put_record(a, raw, rawlen);
     int have_actual = !missing && isfinite(actual);
-    if (!missing)
+    if (!missing) {
         st->promised++;
+        st->pred_sum += pred;
+    }
     if (have_actual) {
         st->with_actual++;
         st->bare_hits += actual <= pred;
@@ -300,10 +325,14 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
             goto out;
         }
         const etacal_quote *row = &a->q->rows[r];
-        double v = etacal_promise_round(row->offset_s + row->slope * pred, a->o->round_s);
+        double raw_v = row->offset_s + row->slope * pred;
+        for (size_t j = 0; j < a->q->ncoef; j++)
+            raw_v += row->coef[j] * a->cov[j];
+        double v = etacal_promise_round(raw_v, a->o->round_s);
         if (t == 0 && level < a->q->nkeys)
             st->fallback++;
         put_promise(a, v);
+        st->promise_sum[t] += v;
         if (have_actual)
             st->hits[t] += actual <= v;
     }

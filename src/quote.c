@@ -10,6 +10,7 @@
  * contiguous slice: O(n) per segment and target, no full sort. */
 #include "internal.h"
 
+#include <gsl/gsl_rng.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -19,6 +20,7 @@ const char *etacal_method_name(int method)
     switch (method) {
     case ETACAL_METHOD_ADD: return "add";
     case ETACAL_METHOD_RATIO: return "ratio";
+    case ETACAL_METHOD_QR: return "qr";
     default: return NULL;
     }
 }
@@ -29,6 +31,8 @@ int etacal_method_parse(const char *name)
         return ETACAL_METHOD_ADD;
     if (strcmp(name, "ratio") == 0)
         return ETACAL_METHOD_RATIO;
+    if (strcmp(name, "qr") == 0)
+        return ETACAL_METHOD_QR;
     return -1;
 }
 
@@ -56,6 +60,11 @@ void etacal_quotes_destroy(etacal_quotes *q)
     free(q->key_names);
     free(q->targets);
     free(q->rows);
+    if (q->coef_names)
+        for (size_t j = 0; j < q->ncoef; j++)
+            free(q->coef_names[j]);
+    free(q->coef_names);
+    free(q->coefs);
     free(q);
 }
 
@@ -133,6 +142,196 @@ typedef struct job {
     size_t cap, used, off;
 } job;
 
+/* Method qr: conformalized quantile regression, one-sided (Romano,
+ * Patterson & Candes 2019).  Each segment's rows are split at random (seeded)
+ * into a fitting part and a calibration part.  On the first, the
+ * tau-quantile regression of the actual duration on the prediction and the
+ * extra covariates; on the second, the scores actual - q(x) and their
+ * conformal bound s_(k), k = ceil((n_cal + 1) tau).  The promise q(x) +
+ * s_(k) then covers at least tau of future orders of the segment, whatever
+ * the regression got wrong. */
+static int fit_qr(etacal_quotes *q, const etacal_table *t, const segset *ss, size_t actual_col, size_t pred_col,
+                  const etacal_fit_opts *o, size_t min_rows, etacal_error *err)
+{
+    int rc = ETACAL_OK;
+    size_t n = etacal_table_rows(t), nseg = ss->nseg, nx = o->nx, p = 2 + nx;
+    const double *y = etacal_table_num(t, actual_col), *pr = etacal_table_num(t, pred_col);
+    const double *xc[ETACAL_QR_MAX_COVARIATES];
+    const char *names[ETACAL_QR_MAX_COVARIATES];
+    names[0] = etacal_table_col_name(t, pred_col);
+    for (size_t j = 0; j < nx; j++) {
+        xc[j] = etacal_table_num(t, o->x_cols[j]);
+        names[j + 1] = etacal_table_col_name(t, o->x_cols[j]);
+    }
+    double split = o->split > 0 ? o->split : 0.5;
+    uint32_t *idx = malloc(n * sizeof *idx);
+    size_t *start = calloc(nseg + 1, sizeof *start), *fill = calloc(nseg, sizeof *fill);
+    unsigned char *fitpart = malloc(n);
+    double *buf = malloc(n * (p + 1) * sizeof *buf);
+    double *coef = malloc(nseg * q->ntargets * p * sizeof *coef);
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    if (!idx || !start || !fill || !fitpart || !buf || !coef || !rng) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+        goto done;
+    }
+    gsl_rng_set(rng, o->seed ? o->seed : 1);
+    for (size_t i = 0; i < n; i++) {
+        fitpart[i] = gsl_rng_uniform(rng) < split;
+        start[segset_row(ss, i) + 1]++;
+    }
+    for (size_t g = 0; g < nseg; g++)
+        start[g + 1] += start[g];
+    for (size_t i = 0; i < n; i++) {
+        uint32_t g = segset_row(ss, i);
+        idx[start[g] + fill[g]++] = (uint32_t)i;
+    }
+    for (size_t g = 0; g < nseg; g++) {
+        etacal_segment *sg = &q->segs[g];
+        int global = g == 0;
+        /* rows of the segment: all rows for the global one */
+        size_t lo = global ? 0 : start[g], hi = global ? n : start[g + 1];
+        size_t na = 0, nb = 0;
+        for (size_t r = lo; r < hi; r++)
+            na += fitpart[global ? r : idx[r]];
+        nb = (hi - lo) - na;
+        if (!global && (sg->n < min_rows || na <= p)) {
+            for (size_t ti = 0; ti < q->ntargets; ti++) {
+                sg->status[ti] = ETACAL_FALLBACK_FEW_ROWS;
+                sg->score_q[ti] = NAN;
+                sg->k[ti] = 0;
+            }
+            continue;
+        }
+        /* columns of the fitting part, then of the calibration part */
+        double *fy = buf, *fx = buf + na, *cy = buf + na * (p + 1), *cx = cy + nb;
+        size_t wa = 0, wb = 0;
+        for (size_t r = lo; r < hi; r++) {
+            size_t i = global ? r : idx[r];
+            if (fitpart[i]) {
+                fy[wa] = y[i];
+                fx[wa] = pr[i];
+                for (size_t j = 0; j < nx; j++)
+                    fx[(j + 1) * na + wa] = xc[j][i];
+                wa++;
+            } else {
+                cy[wb] = y[i];
+                cx[wb] = pr[i];
+                for (size_t j = 0; j < nx; j++)
+                    cx[(j + 1) * nb + wb] = xc[j][i];
+                wb++;
+            }
+        }
+        const double *fcols[ETACAL_QR_MAX_COVARIATES];
+        for (size_t j = 0; j <= nx; j++)
+            fcols[j] = fx + j * na;
+        for (size_t ti = 0; ti < q->ntargets; ti++) {
+            double tau = q->targets[ti];
+            double *b = coef + (g * q->ntargets + ti) * p;
+            etacal_qr_result res;
+            etacal_error e2;
+            etacal_qr_opts qo = {0};
+            qo.seed = o->seed;
+            int frc = na > p ? etacal_qr_fit(fy, fcols, nx + 1, NULL, na, tau, names, &qo, &res, &e2)
+                             : ETACAL_EINVAL;
+            if (frc != ETACAL_OK && !global) {
+                sg->status[ti] = ETACAL_FALLBACK_FEW_ROWS;
+                sg->score_q[ti] = NAN;
+                continue;
+            }
+            if (frc != ETACAL_OK) {
+                if (na <= p)
+                    etacal_error_set(&e2, ETACAL_ENUM, NULL, "%zu rows to fit the regression", na);
+                rc = etacal_error_set(err, e2.code, etacal_table_source(t), "method qr, all rows: %s", e2.msg);
+                goto done;
+            }
+            memcpy(b, res.coef, p * sizeof *b);
+            /* the conformal correction from the calibration part */
+            size_t k;
+            double *scores = malloc((nb ? nb : 1) * sizeof *scores);
+            if (!scores) {
+                rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+                goto done;
+            }
+            for (size_t r = 0; r < nb; r++) {
+                double f = b[0] + b[1] * cx[r];
+                for (size_t j = 0; j < nx; j++)
+                    f += b[j + 2] * cx[(j + 1) * nb + r];
+                scores[r] = cy[r] - f;
+            }
+            double corr = etacal_conformal_upper(scores, nb, tau, &k);
+            free(scores);
+            sg->k[ti] = k;
+            sg->score_q[ti] = corr;
+            sg->status[ti] = k > nb ? ETACAL_FALLBACK_RANK : ETACAL_OWN_ROW;
+            if (global && k > nb) {
+                rc = etacal_error_set(err, ETACAL_ENUM, etacal_table_source(t),
+                                      "method qr: %zu calibration rows; target %g needs at least %zu", nb, tau,
+                                      etacal_conformal_min_n(tau));
+                goto done;
+            }
+        }
+    }
+    /* rows of the table */
+    size_t nrows = 0;
+    for (size_t g = 0; g < nseg; g++)
+        for (size_t ti = 0; ti < q->ntargets; ti++)
+            nrows += q->segs[g].status[ti] == ETACAL_OWN_ROW;
+    q->rows = calloc(nrows ? nrows : 1, sizeof *q->rows);
+    q->ncoef = nx;
+    q->coef_names = calloc(nx ? nx : 1, sizeof *q->coef_names);
+    size_t ncoefs = nrows * nx;
+    q->coefs = calloc(ncoefs ? ncoefs : 1, sizeof *q->coefs);
+    if (!q->rows || !q->coef_names || !q->coefs) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+        goto done;
+    }
+    for (size_t j = 0; j < nx; j++) {
+        size_t len = strlen(names[j + 1]);
+        if (!(q->coef_names[j] = malloc(len + 1))) {
+            rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+            goto done;
+        }
+        memcpy(q->coef_names[j], names[j + 1], len + 1);
+    }
+    for (size_t g = 0; g < nseg; g++) {
+        const etacal_segment *sg = &q->segs[g];
+        for (size_t ti = 0; ti < q->ntargets; ti++) {
+            if (sg->status[ti] != ETACAL_OWN_ROW)
+                continue;
+            const double *b = coef + (g * q->ntargets + ti) * p;
+            etacal_quote *r = &q->rows[q->nrows];
+            r->seg = g;
+            r->target = ti;
+            r->method = ETACAL_METHOD_QR;
+            r->k = sg->k[ti];
+            r->n = 0; /* set below: the calibration rows */
+            r->offset_s = ceil_scaled(b[0] + sg->score_q[ti], 1e3);
+            r->slope = b[1];
+            r->coef = q->coefs + q->nrows * nx;
+            for (size_t j = 0; j < nx; j++)
+                r->coef[j] = b[j + 2];
+            q->nrows++;
+        }
+    }
+    /* n of a row: the calibration rows of its segment */
+    for (size_t rr = 0; rr < q->nrows; rr++) {
+        etacal_quote *r = &q->rows[rr];
+        size_t g = r->seg, lo = g == 0 ? 0 : start[g], hi = g == 0 ? n : start[g + 1], nb = 0;
+        for (size_t x = lo; x < hi; x++)
+            nb += !fitpart[g == 0 ? x : idx[x]];
+        r->n = nb;
+    }
+done:
+    free(idx);
+    free(start);
+    free(fill);
+    free(fitpart);
+    free(buf);
+    free(coef);
+    gsl_rng_free(rng);
+    return rc;
+}
+
 int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
                       const size_t *key_cols, size_t nkeys, const etacal_fit_opts *opts,
                       etacal_quotes **out, etacal_error *err)
@@ -152,8 +351,18 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     const double *p = etacal_table_num(t, pred_col);
     if (!y || !p)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "actual and prediction must be numeric columns");
-    if (opts->method != ETACAL_METHOD_ADD && opts->method != ETACAL_METHOD_RATIO)
+    if (opts->method != ETACAL_METHOD_ADD && opts->method != ETACAL_METHOD_RATIO &&
+        opts->method != ETACAL_METHOD_QR)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "unknown method %d", opts->method);
+    if (opts->method != ETACAL_METHOD_QR && opts->nx)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "covariates go with method qr only");
+    if (opts->nx > ETACAL_QR_MAX_COVARIATES - 1)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "at most %d covariates besides the prediction",
+                                ETACAL_QR_MAX_COVARIATES - 1);
+    for (size_t j = 0; j < opts->nx; j++)
+        if (!etacal_table_num(t, opts->x_cols[j]))
+            return etacal_error_set(err, ETACAL_EINVAL, NULL, "covariate '%s' is not a numeric column",
+                                    etacal_table_col_name(t, opts->x_cols[j]));
     size_t min_rows = opts->min_rows ? opts->min_rows : 200;
 
     etacal_quotes *q = calloc(1, sizeof *q);
@@ -240,6 +449,11 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     if (nkeys) {
         gl->n = n;
         gl->bare_hits = on_time;
+    }
+
+    if (q->method == ETACAL_METHOD_QR) {
+        rc = fit_qr(q, t, &ss, actual_col, pred_col, opts, min_rows, err);
+        goto done;
     }
 
     /* 3. The k-th smallest score of every (segment, target) by bucket
@@ -408,7 +622,14 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
         etacal_csv_put_field(fp, q->key_names[j], strlen(q->key_names[j]), ',');
         putc(',', fp);
     }
-    fputs("target,method,n,k,offset_s,slope\n", fp);
+    fputs("target,method,n,k,offset_s,slope", fp);
+    for (size_t j = 0; j < q->ncoef; j++) {
+        putc(',', fp);
+        char name[256];
+        snprintf(name, sizeof name, "coef_%s", q->coef_names[j]);
+        etacal_csv_put_field(fp, name, strlen(name), ',');
+    }
+    putc('\n', fp);
     for (size_t r = 0; r < q->nrows; r++) {
         const etacal_quote *row = &q->rows[r];
         const etacal_segment *g = &q->segs[row->seg];
@@ -423,6 +644,11 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
         putc(',', fp);
         etacal_num_format(row->slope, num);
         fputs(num, fp);
+        for (size_t j = 0; j < q->ncoef; j++) {
+            etacal_num_format(row->coef[j], num);
+            putc(',', fp);
+            fputs(num, fp);
+        }
         putc('\n', fp);
     }
     if (ferror(fp))

@@ -15,6 +15,7 @@ typedef struct qrow {
     int method;
     size_t n, k, line;
     double offset_s, slope;
+    size_t coef_off; /* into the reader's coefficient store */
 } qrow;
 
 typedef struct qreader {
@@ -31,6 +32,11 @@ typedef struct qreader {
     qrow *rows;
     size_t nrows, cap;
     int method;
+    size_t ncoef;
+    long coef_col[ETACAL_QR_MAX_COVARIATES];
+    char *coef_name[ETACAL_QR_MAX_COVARIATES];
+    double *coefs;
+    size_t ncoefs, coefcap;
 } qreader;
 
 static void on_field(void *ud, size_t col, const char *s, size_t len)
@@ -70,6 +76,21 @@ static int header(qreader *r, size_t line)
             if (*slot >= 0)
                 return fail(r, line, ETACAL_EPARSE, "column '%s' appears twice in the header", h);
             *slot = (long)i;
+        }
+        if (strncmp(h, "coef_", 5) == 0 && r->c_target >= 0) {
+            if (r->ncoef >= ETACAL_QR_MAX_COVARIATES)
+                return fail(r, line, ETACAL_EPARSE, "too many coef_ columns (at most 16)%s", "");
+            if (!h[5])
+                return fail(r, line, ETACAL_EPARSE, "column 'coef_' names no covariate%s", "");
+            for (size_t j = 0; j < r->ncoef; j++)
+                if (strcmp(r->coef_name[j], h + 5) == 0)
+                    return fail(r, line, ETACAL_EPARSE, "column '%s' appears twice in the header", h);
+            size_t len = strlen(h + 5);
+            r->coef_name[r->ncoef] = malloc(len + 1);
+            if (!r->coef_name[r->ncoef])
+                return fail(r, line, ETACAL_ENOMEM, "out of memory%s", "");
+            memcpy(r->coef_name[r->ncoef], h + 5, len + 1);
+            r->coef_col[r->ncoef++] = (long)i;
         }
     }
     static const char *req[] = {"target", "method", "n", "offset_s", "slope"};
@@ -152,7 +173,7 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
     }
     q.method = etacal_method_parse(rowbuf_get(b, (size_t)r->c_method));
     if (q.method < 0) {
-        stop = fail(r, line, ETACAL_EPARSE, "unknown method '%s' (expected add or ratio)",
+        stop = fail(r, line, ETACAL_EPARSE, "unknown method '%s' (expected add, ratio or qr)",
                     rowbuf_get(b, (size_t)r->c_method));
         goto out;
     }
@@ -169,10 +190,27 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
     if ((stop = number(r, line, r->c_offset, "offset_s", &q.offset_s)) ||
         (stop = number(r, line, r->c_slope, "slope", &q.slope)))
         goto out;
-    if (q.slope < 0) {
+    if (q.slope < 0 && q.method != ETACAL_METHOD_QR) {
         stop = fail(r, line, ETACAL_EPARSE, "slope must not be negative%s", "");
         goto out;
     }
+    if (r->ncoef && q.method != ETACAL_METHOD_QR) {
+        stop = fail(r, line, ETACAL_EPARSE, "coef_ columns belong to method qr, not '%s'",
+                    etacal_method_name(q.method));
+        goto out;
+    }
+    if (grow_array((void **)&r->coefs, &r->coefcap, r->ncoefs + r->ncoef + 1, sizeof *r->coefs) != 0) {
+        stop = fail(r, line, ETACAL_ENOMEM, "out of memory%s", "");
+        goto out;
+    }
+    q.coef_off = r->ncoefs;
+    for (size_t j = 0; j < r->ncoef; j++) {
+        char name[300];
+        snprintf(name, sizeof name, "coef_%s", r->coef_name[j]);
+        if ((stop = number(r, line, r->coef_col[j], name, &r->coefs[r->ncoefs + j])))
+            goto out;
+    }
+    r->ncoefs += r->ncoef;
     /* Key level: some values, then only "*". */
     int star = 0;
     rowbuf_reset(&r->joined);
@@ -315,6 +353,18 @@ int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, et
         }
     }
     qsort(r.rows, r.nrows, sizeof *r.rows, cmp_qrow);
+    q->ncoef = r.ncoef;
+    q->coef_names = calloc(r.ncoef ? r.ncoef : 1, sizeof *q->coef_names);
+    q->coefs = r.coefs;
+    r.coefs = NULL;
+    if (!q->coef_names) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+        goto done;
+    }
+    for (size_t j = 0; j < r.ncoef; j++) {
+        q->coef_names[j] = r.coef_name[j];
+        r.coef_name[j] = NULL;
+    }
     q->rows = calloc(r.nrows, sizeof *q->rows);
     if (!q->rows) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
@@ -337,11 +387,12 @@ int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, et
         o->k = x->k;
         o->offset_s = x->offset_s;
         o->slope = x->slope;
+        o->coef = q->coefs ? q->coefs + x->coef_off : NULL;
         etacal_segment *g = &q->segs[x->seg];
         g->n = x->n;
         g->k[o->target] = x->k;
         g->status[o->target] = ETACAL_OWN_ROW;
-        g->score_q[o->target] = x->method == ETACAL_METHOD_ADD ? x->offset_s : x->slope;
+        g->score_q[o->target] = x->method == ETACAL_METHOD_RATIO ? x->slope : x->offset_s;
     }
     for (size_t ti = 0; ti < q->ntargets; ti++)
         if (q->segs[0].status[ti] != ETACAL_OWN_ROW) {
@@ -355,6 +406,9 @@ done:
     rowbuf_free(&r.joined);
     strdict_free(&r.segs);
     free(r.rows);
+    free(r.coefs);
+    for (size_t j = 0; j < r.ncoef; j++)
+        free(r.coef_name[j]);
     if (r.key_names)
         for (size_t j = 0; j < r.nkeys; j++)
             free(r.key_names[j]);

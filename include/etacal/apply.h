@@ -39,6 +39,10 @@ typedef struct etacal_apply_stats {
     size_t hits[ETACAL_APPLY_MAX_TARGETS];
     size_t bare_hits;
     size_t first_bad_line;
+    /* Sums over promised rows, for the mean promise and the mean extra time
+     * over the bare prediction (per selected target). */
+    double promise_sum[ETACAL_APPLY_MAX_TARGETS];
+    double pred_sum;
 } etacal_apply_stats;
 
 /* Streams the orders in in_path ("-" for stdin) to out: every record is

@@ -22,7 +22,9 @@ extern "C" {
 
 enum {
     ETACAL_METHOD_ADD = 0,  /* score actual - pred; promise = pred + q */
-    ETACAL_METHOD_RATIO = 1 /* score actual / pred (pred > 0); promise = pred * q */
+    ETACAL_METHOD_RATIO = 1, /* score actual / pred (pred > 0); promise = pred * q */
+    ETACAL_METHOD_QR = 2     /* conformalized quantile regression: promise =
+                                offset_s + slope * pred + sum coef_j * x_j */
 };
 
 /* "add" / "ratio"; NULL for an unknown method. */
@@ -63,8 +65,9 @@ typedef struct etacal_quote {
     size_t seg;    /* index into segs */
     size_t target; /* index into targets */
     int method;
-    size_t n, k;
+    size_t n, k;   /* calibration rows behind the bound, and the rank used */
     double offset_s, slope;
+    double *coef;  /* ncoef coefficients of the extra covariates (method qr) */
 } etacal_quote;
 
 /* A quote table.  Read-only for callers; built by etacal_quotes_fit or
@@ -81,6 +84,9 @@ typedef struct etacal_quotes {
     etacal_segment *segs;
     size_t nrows;
     etacal_quote *rows; /* by segment, then target */
+    size_t ncoef;       /* extra covariates (method qr): columns coef_<name> */
+    char **coef_names;  /* the covariate names, without the coef_ prefix */
+    double *coefs;      /* storage of the rows' coef arrays */
     etacal_accuracy accuracy; /* fit only */
 } etacal_quotes;
 
@@ -89,6 +95,12 @@ typedef struct etacal_fit_opts {
     const double *targets;  /* on-time targets in (0,1) */
     size_t ntargets;
     size_t min_rows;        /* a segment with fewer rows falls back; 0 means 200 */
+    /* method qr only: */
+    const size_t *x_cols;   /* extra numeric covariates of the regression */
+    size_t nx;
+    double split;           /* share of each segment's rows for the regression
+                               fit, the rest calibrates; 0 means 0.5 */
+    unsigned long seed;     /* of the random split */
 } etacal_fit_opts;
 
 /* Fits a quote table from the rows of t: actual_col and pred_col are
@@ -102,13 +114,15 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
                       etacal_quotes **out, etacal_error *err);
 
 /* Writes the table as CSV: the key columns, then
- * target,method,n,k,offset_s,slope; one row per segment with a row of its
- * own and target, global rows first.  Numbers in shortest round-trip form. */
+ * target,method,n,k,offset_s,slope and, for method qr, one coef_<name>
+ * column per extra covariate; one row per segment with a row of its own and
+ * target, global rows first.  Numbers in shortest round-trip form. */
 int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err);
 
 /* Reads a table written by etacal_quotes_write_csv (or by hand, or by SQL):
  * the columns before 'target' are the key columns; 'target', 'method', 'n',
- * 'offset_s' and 'slope' are required, others are ignored.  Checks: numbers
+ * 'offset_s' and 'slope' are required, 'coef_<name>' columns are the
+ * coefficients of covariates, others are ignored.  Checks: numbers
  * finite, targets in (0,1), one method, no duplicate (segment, target), a
  * global row for every target.  Errors carry FILE:LINE. */
 int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, etacal_error *err);

@@ -135,6 +135,14 @@ int cmd_apply(int argc, char **argv)
         if (q->nkeys)
             fprintf(fp, "; %zu took a less specific row than their own segment", st.fallback);
         putc('\n', fp);
+        size_t nsel0 = ntargets ? ntargets : q->ntargets;
+        for (size_t t = 0; t < nsel0 && st.promised; t++) {
+            char p[ETACAL_NUM_BUFSZ];
+            etacal_percent_label(q->targets[ntargets ? sel[t] : t], p);
+            double mp = st.promise_sum[t] / (double)st.promised, mb = st.pred_sum / (double)st.promised;
+            fprintf(fp, "mean promise for target %s%%: %.1f s (%.2f min), %.1f s (%.2f min) above the prediction\n",
+                    p, mp, mp / 60, mp - mb, (mp - mb) / 60);
+        }
         if (ao.actual_col) {
             size_t nsel = ntargets ? ntargets : q->ntargets;
             fprintf(fp, "on time (actual <= promise) on the %zu promised orders with an actual duration:\n",

@@ -21,8 +21,14 @@ static const char help[] =
     "  --pred COL            column of predicted durations, seconds (required)\n"
     "  --by COL[,COL...]     key columns that define segments (default: one global segment)\n"
     "  --target T[,T...]     on-time targets in (0,1) (default 0.9); repeatable\n"
-    "  --method add|ratio    add: promise = pred + buffer (default);\n"
-    "                        ratio: promise = pred * factor (predictions must be > 0)\n"
+    "  --method add|ratio|qr add: promise = pred + buffer (default);\n"
+    "                        ratio: promise = pred * factor (predictions must be > 0);\n"
+    "                        qr: quantile regression of actual on pred (and --x), plus a\n"
+    "                        conformal correction from held-back rows\n"
+    "  --x COL[,COL...]      method qr: extra covariates of the regression\n"
+    "  --split F             method qr: share of each segment's rows for the regression,\n"
+    "                        the rest calibrates the correction (default 0.5)\n"
+    "  --seed S              method qr: seed of the random split (default 1)\n"
     "  --min-rows N          a segment with fewer rows uses the global row (default 200)\n"
     "  -o, --output FILE     write the table to FILE (atomically) and the summary to\n"
     "                        stdout; without -o the table goes to stdout, the summary to stderr\n"
@@ -55,8 +61,10 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
     fprintf(fp, "rows: %zu read, %zu used, %zu left out (missing actual or prediction), %zu malformed skipped\n",
             st->data_rows, st->kept, st->missing, st->bad);
     fprintf(fp, "method: %s (%s)\n", etacal_method_name(q->method),
-            q->method == ETACAL_METHOD_ADD ? "promise = prediction + buffer"
-                                           : "promise = prediction x factor");
+            q->method == ETACAL_METHOD_ADD     ? "promise = prediction + buffer"
+            : q->method == ETACAL_METHOD_RATIO ? "promise = prediction x factor"
+                                               : "promise = offset_s + slope x prediction + coefficients x covariates; "
+                                                 "the buffer column is the conformal correction");
     fmt_pct(pct, sizeof pct, a->on_time, a->n);
     fprintf(fp,
             "point accuracy of '%s': RMSE %.1f s, MAE %.1f s, mean error (actual - pred) %+.1f s, "
@@ -65,7 +73,7 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
     putc('\n', fp);
 
     size_t nk = q->nkeys, nt = q->ntargets;
-    int add = q->method == ETACAL_METHOD_ADD;
+    int add = q->method != ETACAL_METHOD_RATIO;
     size_t ncols = (nk ? nk : 1) + 2 + nt * (add ? 2 : 1) + 1;
     text_table tt;
     if (tt_init(&tt, ncols) != 0)
@@ -84,7 +92,8 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
     for (size_t ti = 0; ti < nt; ti++) {
         char p[ETACAL_NUM_BUFSZ];
         etacal_percent_label(q->targets[ti], p);
-        snprintf(buf[c], sizeof buf[c], add ? "buffer@%s%% s" : "factor@%s%%", p);
+        snprintf(buf[c], sizeof buf[c],
+                 q->method == ETACAL_METHOD_QR ? "corr@%s%% s" : add ? "buffer@%s%% s" : "factor@%s%%", p);
         cells[c] = buf[c];
         c++;
         if (add) {
@@ -123,12 +132,14 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
             }
             if (isinf(v))
                 snprintf(buf[c], sizeof buf[c], "unbounded");
+            else if (isnan(v))
+                snprintf(buf[c], sizeof buf[c], "-");
             else
                 snprintf(buf[c], sizeof buf[c], add ? "%.1f" : "%.4f", v);
             cells[c] = buf[c];
             c++;
             if (add) {
-                if (isinf(v))
+                if (!isfinite(v))
                     snprintf(buf[c], sizeof buf[c], "-");
                 else
                     snprintf(buf[c], sizeof buf[c], "%.2f", v / 60);
@@ -167,20 +178,24 @@ out:
 
 int cmd_fit(int argc, char **argv)
 {
-    enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_DELIM, O_BAD, O_MAXBAD, O_THREADS };
+    enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_DELIM, O_BAD, O_MAXBAD, O_THREADS,
+           O_X, O_SPLIT, O_SEED };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL}, {"pred", required_argument, 0, O_PRED},
         {"by", required_argument, 0, O_BY},         {"target", required_argument, 0, O_TARGET},
         {"method", required_argument, 0, O_METHOD}, {"min-rows", required_argument, 0, O_MINROWS},
         {"output", required_argument, 0, 'o'},      {"delim", required_argument, 0, O_DELIM},
         {"bad-rows", required_argument, 0, O_BAD},  {"max-bad-share", required_argument, 0, O_MAXBAD},
-        {"threads", required_argument, 0, O_THREADS},
+        {"threads", required_argument, 0, O_THREADS}, {"x", required_argument, 0, O_X},
+        {"split", required_argument, 0, O_SPLIT},     {"seed", required_argument, 0, O_SEED},
         {"quiet", no_argument, 0, 'q'},             {"help", no_argument, 0, 'h'},
         {0, 0, 0, 0}};
     const char *actual = NULL, *pred = NULL, *output = NULL;
     char *by = NULL;
     char *keys[MAX_KEYS];
-    size_t nkeys = 0, ntargets = 0, min_rows = 200;
+    char *xs[ETACAL_QR_MAX_COVARIATES];
+    size_t nkeys = 0, ntargets = 0, min_rows = 200, nx = 0, seed = 1;
+    double split = 0.5;
     double targets[MAX_TARGETS];
     int method = ETACAL_METHOD_ADD, quiet = 0;
     etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
@@ -205,7 +220,7 @@ int cmd_fit(int argc, char **argv)
         case O_METHOD:
             method = etacal_method_parse(optarg);
             if (method < 0)
-                return usage_error("fit", "--method must be add or ratio, not '%s'", optarg);
+                return usage_error("fit", "--method must be add, ratio or qr, not '%s'", optarg);
             break;
         case O_MINROWS:
             if (parse_size(optarg, &min_rows) != 0 || min_rows == 0)
@@ -223,6 +238,20 @@ int cmd_fit(int argc, char **argv)
         case O_MAXBAD:
             if (parse_share(optarg, &ro.max_bad_share) != 0)
                 return usage_error("fit", "--max-bad-share takes a share in [0,1]");
+            break;
+        case O_X:
+            nx = 0;
+            if (parse_names(optarg, xs, &nx, ETACAL_QR_MAX_COVARIATES - 1) != 0)
+                return usage_error("fit", "--x takes up to %d comma-separated column names",
+                                   ETACAL_QR_MAX_COVARIATES - 1);
+            break;
+        case O_SPLIT:
+            if (parse_share(optarg, &split) != 0 || !(split > 0 && split < 1))
+                return usage_error("fit", "--split takes a share in (0,1)");
+            break;
+        case O_SEED:
+            if (parse_size(optarg, &seed) != 0)
+                return usage_error("fit", "--seed takes a whole number");
             break;
         case O_THREADS:
             if (strcmp(optarg, "auto") == 0)
@@ -247,6 +276,10 @@ int cmd_fit(int argc, char **argv)
     if (strcmp(actual, pred) == 0)
         return usage_error("fit", "--actual and --pred name the same column");
     static const char *reserved[] = {"target", "method", "n", "k", "offset_s", "slope"};
+    for (size_t j = 0; j < nkeys; j++)
+        if (strncmp(keys[j], "coef_", 5) == 0)
+            return usage_error("fit", "a key column cannot be called '%s' (coef_ columns hold coefficients)",
+                               keys[j]);
     for (size_t j = 0; j < nkeys; j++) {
         if (strcmp(keys[j], actual) == 0 || strcmp(keys[j], pred) == 0)
             return usage_error("fit", "'%s' cannot be both a key and a duration column", keys[j]);
@@ -257,20 +290,37 @@ int cmd_fit(int argc, char **argv)
             if (strcmp(keys[i], keys[j]) == 0)
                 return usage_error("fit", "--by names '%s' twice", keys[j]);
     }
+    if (nx && method != ETACAL_METHOD_QR)
+        return usage_error("fit", "--x goes with --method qr");
+    for (size_t j = 0; j < nx; j++) {
+        if (strcmp(xs[j], actual) == 0 || strcmp(xs[j], pred) == 0)
+            return usage_error("fit", "--x '%s' is already the actual or the prediction", xs[j]);
+        for (size_t i = 0; i < nkeys; i++)
+            if (strcmp(xs[j], keys[i]) == 0)
+                return usage_error("fit", "'%s' cannot be both a key and a covariate", xs[j]);
+        for (size_t i = 0; i < j; i++)
+            if (strcmp(xs[i], xs[j]) == 0)
+                return usage_error("fit", "--x names '%s' twice", xs[j]);
+    }
     if (ntargets == 0)
         targets[ntargets++] = 0.9;
     const char *path = argv[optind];
 
-    etacal_colspec cols[2 + MAX_KEYS];
+    etacal_colspec cols[2 + MAX_KEYS + ETACAL_QR_MAX_COVARIATES];
     unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
     cols[0] = (etacal_colspec){actual, ETACAL_COL_NUM, flags, "duration"};
     cols[1] = (etacal_colspec){pred, ETACAL_COL_NUM,
                                flags | (method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u),
                                "prediction"};
-    size_t key_cols[MAX_KEYS];
+    size_t key_cols[MAX_KEYS], x_cols[ETACAL_QR_MAX_COVARIATES];
     for (size_t j = 0; j < nkeys; j++) {
         cols[2 + j] = (etacal_colspec){keys[j], ETACAL_COL_KEY, 0, NULL};
         key_cols[j] = 2 + j;
+    }
+    for (size_t j = 0; j < nx; j++) {
+        cols[2 + nkeys + j] =
+            (etacal_colspec){xs[j], ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE, "covariate"};
+        x_cols[j] = 2 + nkeys + j;
     }
     progress pg = {path, 0, -1};
     ro.progress = progress_cb;
@@ -281,11 +331,11 @@ int cmd_fit(int argc, char **argv)
     etacal_table *t = NULL;
     etacal_quotes *q = NULL;
     etacal_outfile of = {0};
-    int rc = etacal_table_read_csv(path, cols, 2 + nkeys, &ro, &t, &err);
+    int rc = etacal_table_read_csv(path, cols, 2 + nkeys + nx, &ro, &t, &err);
     progress_end(&pg);
     if (rc)
         return report_error(&err);
-    etacal_fit_opts fo = {method, targets, ntargets, min_rows};
+    etacal_fit_opts fo = {method, targets, ntargets, min_rows, x_cols, nx, split, (unsigned long)seed};
     rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err);
     if (rc)
         goto fail;

@@ -74,7 +74,7 @@ static int fit(fixture *f, size_t nkeys, int method, const double *targets, size
                size_t min_rows)
 {
     static const size_t keys[] = {2, 3};
-    etacal_fit_opts o = {method, targets, ntargets, min_rows};
+    etacal_fit_opts o = {method, targets, ntargets, min_rows, NULL, 0, 0, 0};
     etacal_quotes_destroy(f->q);
     f->q = NULL;
     etacal_error_clear(&f->err);
@@ -337,7 +337,7 @@ static void test_fit_errors(void **state)
 
     /* Columns of the wrong type. */
     load(f, calib_csv, 1);
-    etacal_fit_opts o = {ETACAL_METHOD_ADD, t8, 1, 5};
+    etacal_fit_opts o = {ETACAL_METHOD_ADD, t8, 1, 5, NULL, 0, 0, 0};
     const size_t notkey[] = {1};
     assert_int_equal(etacal_quotes_fit(f->t, 0, 1, notkey, 1, &o, &f->q, &f->err), ETACAL_EINVAL);
     assert_error(&f->err, ETACAL_EINVAL, "", "'pred_s' is not a key column");
@@ -665,7 +665,7 @@ static void test_read_errors(void **state)
     expect_read_error(f, HDR "*,*,90%,add,5000,4501,312.125,1\n", ETACAL_EPARSE, 2,
                       "'target' must be a finite number");
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,mult,900,811,250.25,1\n", ETACAL_EPARSE, 3,
-                      "unknown method 'mult' (expected add or ratio)");
+                      "unknown method 'mult' (expected add, ratio or qr)");
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,ratio,900,811,0,1.25\n", ETACAL_EPARSE, 3,
                       "method 'ratio' differs from the table's first row");
     expect_read_error(f,
@@ -716,7 +716,9 @@ static void test_method_names(void **state)
     (void)state;
     assert_string_equal(etacal_method_name(ETACAL_METHOD_ADD), "add");
     assert_string_equal(etacal_method_name(ETACAL_METHOD_RATIO), "ratio");
-    assert_null(etacal_method_name(2));
+    assert_string_equal(etacal_method_name(ETACAL_METHOD_QR), "qr");
+    assert_int_equal(etacal_method_parse("qr"), ETACAL_METHOD_QR);
+    assert_null(etacal_method_name(3));
     assert_null(etacal_method_name(-1));
     assert_int_equal(etacal_method_parse("add"), ETACAL_METHOD_ADD);
     assert_int_equal(etacal_method_parse("ratio"), ETACAL_METHOD_RATIO);
