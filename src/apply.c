@@ -75,21 +75,6 @@ static int fail(applier *a, size_t line, int code, const char *fmt, const char *
     return 1;
 }
 
-/* Writes the record without its line terminator, and returns the terminator. */
-static const char *put_record(applier *a, const char *raw, size_t len)
-{
-    const char *term = "\n";
-    if (len && raw[len - 1] == '\n') {
-        len--;
-        if (len && raw[len - 1] == '\r') {
-            len--;
-            term = "\r\n";
-        }
-    }
-    fwrite(raw, 1, len, a->out);
-    return term;
-}
-
 static int header(applier *a, size_t line, const char *raw, size_t rawlen)
 {
     rowbuf *b = &a->rb;
@@ -142,7 +127,7 @@ static int header(applier *a, size_t line, const char *raw, size_t rawlen)
                         "no column '%s' in the header (a covariate of the quote table's regression)",
                         q->coef_names[j]);
     a->nfields = b->nf;
-    const char *term = put_record(a, raw, rawlen);
+    const char *term = csv_put_record(a->out, raw, rawlen);
     for (size_t t = 0; t < a->nsel; t++) {
         putc(a->delim, a->out);
         if (a->nsel == 1) {
@@ -192,46 +177,7 @@ static long lookup(applier *a, size_t ti, size_t *level_out)
     return -1;
 }
 
-/* Writes a promise in seconds.  Promises are whole milliseconds (or
- * multiples of --round), so they print exactly from an integer count of
- * milliseconds, with trailing zeros of the fraction dropped; printf's float
- * formatting would cost more than the rest of apply. */
-static void put_promise(applier *a, double v)
-{
-    char buf[64];
-    double ms = v * 1000;
-    double r = nearbyint(ms);
-    if (fabs(ms - r) <= 1e-6 && fabs(r) < 9e15) {
-        long long m = (long long)r;
-        char *e = buf + sizeof buf, *p = e;
-        int neg = m < 0;
-        unsigned long long u = neg ? (unsigned long long)(-m) : (unsigned long long)m;
-        unsigned frac = (unsigned)(u % 1000);
-        u /= 1000;
-        if (frac) {
-            int digits = 3;
-            while (frac % 10 == 0) {
-                frac /= 10;
-                digits--;
-            }
-            for (int i = 0; i < digits; i++) {
-                *--p = (char)('0' + frac % 10);
-                frac /= 10;
-            }
-            *--p = '.';
-        }
-        do {
-            *--p = (char)('0' + u % 10);
-            u /= 10;
-        } while (u);
-        if (neg)
-            *--p = '-';
-        fwrite(p, 1, (size_t)(e - p), a->out);
-        return;
-    }
-    etacal_num_format(v, buf);
-    fputs(buf, a->out);
-}
+static void put_promise(applier *a, double v) { put_ms(a->out, v); }
 
 static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t rawlen)
 {
@@ -304,7 +250,7 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         st->missing_pred++;
     }
     st->rows++;
-    const char *term = put_record(a, raw, rawlen);
+    const char *term = csv_put_record(a->out, raw, rawlen);
     int have_actual = !missing && isfinite(actual);
     if (!missing) {
         st->promised++;

@@ -162,4 +162,11 @@ int segment_alloc(etacal_segment *s, size_t nkeys, size_t ntargets);
  * decimal noise of 1e-9 units. */
 double ceil_scaled(double x, double scale);
 
+/* Writes a raw record without its line terminator and returns the
+ * terminator ("\n" or "\r\n"; "\n" when there was none). */
+const char *csv_put_record(FILE *out, const char *raw, size_t len);
+/* A whole number of milliseconds as seconds, shortest form ("1420",
+ * "1480.5"); other values exactly. */
+void put_ms(FILE *out, double v);
+
 #endif

@@ -73,6 +73,19 @@ double etacal_t_pvalue(double t, double df);
  * of levels. */
 void etacal_rearrange(double *q, size_t m);
 
+/* Streams in_path ("-" for stdin) to out, copying each record byte for byte
+ * and appending q_<pct> (q_10, q_50, q_97.5) for each of the ntau levels:
+ * the fitted quantiles coef[t*p + 0] + sum_j coef[t*p + 1 + j] x_j, with p =
+ * k + 1, rearranged at each row so that they do not cross, to the nearest
+ * millisecond.  The k covariate columns are found by name.  A row with a
+ * missing covariate gets empty predictions (counted in *missing); a
+ * malformed one is an error at FILE:LINE, or with bad_rows =
+ * ETACAL_BAD_ROWS_SKIP is written with empty predictions and counted in
+ * *bad.  Memory does not grow with the number of rows. */
+int etacal_qr_predict_csv(const double *coef, const double *taus, size_t ntau, size_t k,
+                          const char *const *xnames, const char *in_path, FILE *out, char delim,
+                          int bad_rows, size_t *rows, size_t *missing, size_t *bad, etacal_error *err);
+
 #ifdef __cplusplus
 }
 #endif

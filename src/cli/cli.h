@@ -15,6 +15,7 @@ enum { EXIT_DATA = 1, EXIT_USAGE = 2 };
 int cmd_fit(int argc, char **argv);
 int cmd_apply(int argc, char **argv);
 int cmd_check(int argc, char **argv);
+int cmd_qr(int argc, char **argv);
 
 /* One CSV field with a comma delimiter. */
 void csv_field(FILE *fp, const char *s);

@@ -14,6 +14,7 @@ static const char usage[] =
     "  fit     fit a promise (quote) table from predictions and actual durations\n"
     "  apply   add promise times to a file of new orders using a quote table\n"
     "  check   check that promises, intervals or quantiles cover what they claim\n"
+    "  qr      linear quantile regression, with standard errors and predictions\n"
     "\n"
     "Run 'etacal COMMAND --help' for a command's options.\n"
     "  -h, --help     show this help and exit\n"
@@ -42,6 +43,8 @@ int main(int argc, char **argv)
         rc = cmd_apply(argc - 1, argv + 1);
     } else if (strcmp(cmd, "check") == 0) {
         rc = cmd_check(argc - 1, argv + 1);
+    } else if (strcmp(cmd, "qr") == 0) {
+        rc = cmd_qr(argc - 1, argv + 1);
     } else {
         return usage_error(NULL, "unknown command '%s'", cmd);
     }
