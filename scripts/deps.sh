@@ -5,7 +5,8 @@
 # prints the exact command to run and fails.
 #   scripts/deps.sh            build and test libraries (GSL, libcsv, cmocka)
 #   scripts/deps.sh --oracles  also the reference libraries the oracle tests
-#                              compare against (numpy, scipy, scikit-learn);
+#                              compare against (numpy, scipy, scikit-learn,
+#                              statsmodels, R's quantreg);
 #                              missing ones only make those tests skip, so
 #                              failure to install them is a warning.
 set -u
@@ -19,7 +20,7 @@ done
 
 oracles=""
 if [ "${1:-}" = "--oracles" ]; then
-    for p in python3-numpy python3-scipy python3-sklearn; do
+    for p in python3-numpy python3-scipy python3-sklearn python3-statsmodels r-cran-quantreg; do
         have_pkg "$p" || oracles="$oracles $p"
     done
 fi

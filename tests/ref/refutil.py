@@ -1,6 +1,7 @@
 # SPDX-License-Identifier: GPL-3.0-or-later
 """Helpers for the reference checks: run the binaries, skip visibly when an
 oracle is missing (exit status 77, counted as skipped by run.sh)."""
+import importlib
 import os
 import subprocess
 import sys
@@ -11,7 +12,7 @@ SKIP = 77
 def need(module, package):
     """Import module or skip the whole script, naming the Debian package."""
     try:
-        return __import__(module)
+        return importlib.import_module(module)
     except ImportError:
         print(f"SKIP: oracle {module} not installed (Debian package {package})")
         sys.exit(SKIP)
