@@ -280,6 +280,20 @@ static void test_rearrange_and_p(void **state)
     double q[] = {1200.5, 980.25, 1500, 1100};
     etacal_rearrange(q, 4);
     assert_true(q[0] == 980.25 && q[1] == 1100 && q[2] == 1200.5 && q[3] == 1500);
+    /* Chernozhukov, Fernandez-Val & Galichon (2010): the rearranged curve is
+     * monotone, and a monotone curve is left as it is.  Crossing fits: the
+     * Engel lines at tau .1 and .9 evaluated far outside the data cross. */
+    etacal_qr_result lo = fit_engel(0.1, 2), hi = fit_engel(0.9, 2);
+    for (double x = -20000; x <= 20000; x += 97.3) {
+        double v[2] = {lo.coef[0] + lo.coef[1] * x, hi.coef[0] + hi.coef[1] * x};
+        double before[2] = {v[0], v[1]};
+        etacal_rearrange(v, 2);
+        assert_true(v[0] <= v[1]);
+        if (before[0] <= before[1])
+            assert_true(v[0] == before[0] && v[1] == before[1]);
+        else
+            assert_true(v[0] == before[1] && v[1] == before[0]);
+    }
     /* two-sided p of t = 2.0 with 10 df: 0.07338803 (t tables; R: 2*pt(-2, 10)) */
     close_rel(etacal_t_pvalue(2.0, 10), 0.07338803, 1e-6);
     close_rel(etacal_t_pvalue(-2.0, 10), 0.07338803, 1e-6);
