@@ -9,19 +9,20 @@
 #include <stdint.h>
 #include <stdio.h>
 
-/* Kahan-Neumaier compensated sum: long sums of durations stay exact to a
- * few ulps whatever their order. */
+/* Compensated sum (as Kahan-Neumaier, with Knuth's TwoSum for the error
+ * term): long sums of durations stay exact to a few ulps whatever their
+ * order. */
 typedef struct {
     double s, c;
 } ksum;
 
 static inline void ksum_add(ksum *k, double x)
 {
+    /* TwoSum (Knuth, TAOCP 4.2.2): the exact rounding error of s + x,
+     * without a data-dependent branch */
     double t = k->s + x;
-    if ((k->s >= 0 ? k->s : -k->s) >= (x >= 0 ? x : -x))
-        k->c += (k->s - t) + x;
-    else
-        k->c += (x - t) + k->s;
+    double z = t - k->s;
+    k->c += (k->s - (t - z)) + (x - z);
     k->s = t;
 }
 

@@ -30,7 +30,7 @@ typedef struct design {
     const double *const *x;
     const double *w;
     size_t n, k, p;
-    double mean[PMAX], scale[PMAX];
+    double mean[PMAX], scale[PMAX], inv[PMAX];
 } design;
 
 /* Row i of the scaled design (1, (x_ij - m_j)/s_j) and its response, both
@@ -41,7 +41,7 @@ static inline double design_row(const design *d, size_t i, double *row)
     double wi = d->w ? d->w[i] : 1;
     row[0] = wi;
     for (size_t j = 0; j < d->k; j++)
-        row[j + 1] = wi * (d->x[j][i] - d->mean[j + 1]) / d->scale[j + 1];
+        row[j + 1] = wi * (d->x[j][i] - d->mean[j + 1]) * d->inv[j + 1];
     return wi * d->y[i];
 }
 
@@ -81,6 +81,7 @@ static int design_init(design *d, const double *y, const double *const *x, size_
     d->p = k + 1;
     d->mean[0] = 0;
     d->scale[0] = 1;
+    d->inv[0] = 1;
     for (size_t i = 0; i < n; i++) {
         if (!isfinite(y[i]))
             return etacal_error_set(err, ETACAL_EINVAL, NULL, "response of data row %zu is not finite", i + 1);
@@ -106,22 +107,31 @@ static int design_init(design *d, const double *y, const double *const *x, size_
                                     names && names[j] ? names[j] : "?");
         d->mean[j + 1] = m;
         d->scale[j + 1] = sd;
+        d->inv[j + 1] = 1 / sd;
     }
-    /* Collinearity: Cholesky of the scaled X'X (unweighted). */
+    /* Collinearity: Cholesky of the scaled X'X (unweighted), first on at
+     * most 50,000 evenly spaced rows; exact collinearity shows on any set
+     * of rows, and only when those look singular are all rows checked (a
+     * rare value may make a subset singular when the whole is not). */
     size_t p = d->p;
-    double g[PMAX * PMAX] = {0}, row[PMAX];
     design unw = *d;
     unw.w = NULL;
-    for (size_t i = 0; i < n; i++) {
-        design_row(&unw, i, row);
+    long bad = -1;
+    for (size_t stride = n > 50000 ? (n + 49999) / 50000 : 1;; stride = 1) {
+        double g[PMAX * PMAX] = {0}, row[PMAX];
+        for (size_t i = 0; i < n; i += stride) {
+            design_row(&unw, i, row);
+            for (size_t a = 0; a < p; a++)
+                for (size_t b = 0; b <= a; b++)
+                    g[a * p + b] += row[a] * row[b];
+        }
         for (size_t a = 0; a < p; a++)
-            for (size_t b = 0; b <= a; b++)
-                g[a * p + b] += row[a] * row[b];
+            for (size_t b = a + 1; b < p; b++)
+                g[a * p + b] = g[b * p + a];
+        bad = small_cholesky(g, p);
+        if (bad < 0 || stride == 1)
+            break;
     }
-    for (size_t a = 0; a < p; a++)
-        for (size_t b = a + 1; b < p; b++)
-            g[a * p + b] = g[b * p + a];
-    long bad = small_cholesky(g, p);
     if (bad > 0)
         return etacal_error_set(err, ETACAL_EINVAL, NULL,
                                 "covariate '%s' is a linear combination of the intercept and the covariates before it (collinear)",
@@ -374,6 +384,31 @@ static double type7(double *v, size_t n, double prob)
     return lo + g * (hi - lo);
 }
 
+/* Two type-7 quantiles at p1 <= p2: the second selection runs only on the
+ * part of the array that the first left above its rank. */
+static void type7_pair(double *v, size_t n, double p1, double p2, double *q1, double *q2)
+{
+    double h = (double)(n - 1) * p1 + 1;
+    size_t j = (size_t)floor(h);
+    if (j < 1)
+        j = 1;
+    *q1 = type7(v, n, p1);
+    if (j >= n) {
+        *q2 = *q1;
+        return;
+    }
+    /* v[j-1] is x_(j) and v[j..n) hold x_(j+1) .. x_(n) in some order */
+    double h2 = (double)(n - 1) * p2 + 1;
+    size_t j2 = (size_t)floor(h2);
+    if (j2 <= j) {
+        *q2 = type7(v, n, p2);
+        return;
+    }
+    size_t off = j - 1;
+    double q = (double)(n - 1 - off) > 0 ? (h2 - 1 - (double)off) / (double)(n - 1 - off) : 0;
+    *q2 = type7(v + off, n - off, q < 0 ? 0 : q > 1 ? 1 : q);
+}
+
 /* Builds the dense scaled matrix of the rows with flag 0 (or all rows when
  * flags is NULL), plus glob rows for flag 1 (below) and flag 2 (above). */
 static int gather(const design *d, const unsigned char *flags, double **Xo, double **Yo, size_t *mo)
@@ -442,12 +477,12 @@ static int fit_preprocessed(const design *d, double tau, double eps, int maxit, 
 {
     int rc = ETACAL_OK;
     size_t n = d->n, p = d->p;
-    double *ratio = malloc(n * sizeof *ratio);
+    double *ratio = malloc(n * sizeof *ratio), *sel = malloc(n * sizeof *sel);
     unsigned char *flags = malloc(n);
     unsigned char *insub = malloc(n);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     double *X = NULL, *Y = NULL;
-    if (!ratio || !flags || !insub || !rng) {
+    if (!ratio || !sel || !flags || !insub || !rng) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
         goto done;
     }
@@ -507,39 +542,44 @@ static int fit_preprocessed(const design *d, double tau, double eps, int maxit, 
             rc = etacal_error_set(err, ETACAL_ENUM, NULL, "the subsample's design is singular");
             goto done;
         }
+        /* Linv = L^-1 (lower triangular), so that band_i = |Linv x_i| takes
+         * multiplications only */
+        double Linv[PMAX * PMAX] = {0};
+        for (size_t c = 0; c < p; c++) {
+            Linv[c * p + c] = 1 / g[c * p + c];
+            for (size_t a = c + 1; a < p; a++) {
+                double t = 0;
+                for (size_t e = c; e < a; e++)
+                    t -= g[a * p + e] * Linv[e * p + c];
+                Linv[a * p + c] = t / g[a * p + a];
+            }
+        }
         for (size_t i = 0; i < n; i++) {
-            double yi = design_row(d, i, row), band = 0, v[PMAX];
-            for (size_t a = 0; a < p; a++) { /* forward solve L v = x_i */
-                double t = row[a];
-                for (size_t c = 0; c < a; c++)
-                    t -= g[a * p + c] * v[c];
-                v[a] = t / g[a * p + a];
-                band += v[a] * v[a];
+            double yi = design_row(d, i, row), band = 0;
+            for (size_t a = 0; a < p; a++) {
+                const double *la = Linv + a * p;
+                double t = 0;
+                for (size_t c = 0; c <= a; c++)
+                    t += la[c] * row[c];
+                band += t * t;
             }
             band = sqrt(band);
             double ri = yi - dot_row(row, bs, p);
             ratio[i] = ri / (band > eps ? band : eps);
         }
+        memcpy(sel, ratio, n * sizeof *sel);
         double M = 0.8 * (double)m;
         double loq = tau - M / (2 * (double)n), hiq = tau + M / (2 * (double)n);
         if (loq < 1.0 / (double)n)
             loq = 1.0 / (double)n;
         if (hiq > (double)(n - 1) / (double)n)
             hiq = (double)(n - 1) / (double)n;
-        double klo = type7(ratio, n, loq), khi = type7(ratio, n, hiq);
-        for (size_t i = 0; i < n; i++) {
-            double yi = design_row(d, i, row), band = 0, v[PMAX];
-            for (size_t a = 0; a < p; a++) {
-                double t = row[a];
-                for (size_t c = 0; c < a; c++)
-                    t -= g[a * p + c] * v[c];
-                v[a] = t / g[a * p + a];
-                band += v[a] * v[a];
-            }
-            band = sqrt(band);
-            double ri = yi - dot_row(row, bs, p);
-            flags[i] = ri < band * klo ? 1 : ri > band * khi ? 2 : 0;
-        }
+        double klo, khi;
+        type7_pair(sel, n, loq, hiq, &klo, &khi);
+        /* below, above, or near the fit: residual over band against the
+         * two quantiles (quantreg compares r with band * kappa) */
+        for (size_t i = 0; i < n; i++)
+            flags[i] = ratio[i] < klo ? 1 : ratio[i] > khi ? 2 : 0;
         int grow = 0;
         for (int fix = 0; fix < 3; fix++) {
             double *Xr, *Yr;
@@ -587,6 +627,7 @@ done:
     free(X);
     free(Y);
     free(ratio);
+    free(sel);
     free(flags);
     free(insub);
     gsl_rng_free(rng);
