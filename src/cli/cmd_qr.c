@@ -114,7 +114,7 @@ static void write_csv(FILE *fp, char **xs, const fitset *f)
             etacal_num_format(f->taus[ti], tau);
             fprintf(fp, "%s,", tau);
             csv_field(fp, j == 0 ? "(intercept)" : xs[j - 1]);
-            fprintf(fp, ",%.17g,", r->coef[j]);
+            fprintf(fp, ",%.12g,", r->coef[j]);
             double se = f->se[ti][j];
             if (!isnan(se)) {
                 double tv = tval(r->coef[j], se);
@@ -122,7 +122,7 @@ static void write_csv(FILE *fp, char **xs, const fitset *f)
             } else {
                 fputs(",,", fp);
             }
-            fprintf(fp, ",%zu,%.17g,%d,%.6g\n", r->n, r->objective, r->iterations, r->gap);
+            fprintf(fp, ",%zu,%.12g,%d,%.3g\n", r->n, r->objective, r->iterations, r->gap);
         }
     }
 }
@@ -337,7 +337,7 @@ int cmd_qr(int argc, char **argv)
     } else {
         if (strcmp(format, "json") == 0) {
             json_t *j = build_json(path, yname, xs, t, &f, sem, reps);
-            if (!j || json_dumpf(j, of.fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(17)) != 0) {
+            if (!j || json_dumpf(j, of.fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(12)) != 0) {
                 json_decref(j);
                 etacal_outfile_abort(&of);
                 rc = etacal_error_set(&err, ETACAL_EIO, output ? output : "stdout", "cannot write JSON");
