@@ -32,7 +32,7 @@ LIB      := $(BUILD)/libetacal.a
 BIN      := $(BUILD)/etacal
 CITYGEN  := $(BUILD)/citygen
 
-.PHONY: all deps demo check unit e2e ref asan install uninstall clean golden bench format
+.PHONY: all deps demo check unit e2e ref asan install uninstall clean golden bench bench-qr format
 
 all: $(BIN) $(LIB)
 
@@ -100,6 +100,9 @@ demo:
 
 bench: $(BIN)
 	bash bench/run.sh
+
+bench-qr: $(LIB)
+	bash bench/qr_run.sh
 
 # ---- install -------------------------------------------------------------
 install: $(BIN) $(LIB)
