@@ -31,6 +31,7 @@ typedef struct design {
     const double *w;
     size_t n, k, p;
     double mean[PMAX], scale[PMAX], inv[PMAX];
+    double *Z, *Zy; /* the scaled rows and responses, when materialised */
 } design;
 
 /* Row i of the scaled design (1, (x_ij - m_j)/s_j) and its response, both
@@ -43,6 +44,18 @@ static inline double design_row(const design *d, size_t i, double *row)
     for (size_t j = 0; j < d->k; j++)
         row[j + 1] = wi * (d->x[j][i] - d->mean[j + 1]) * d->inv[j + 1];
     return wi * d->y[i];
+}
+
+/* Row i as a pointer: into the materialised rows when there are some,
+ * else built in tmp.  *yi gets the (weighted) response. */
+static inline const double *zrow(const design *d, size_t i, double *tmp, double *yi)
+{
+    if (d->Z) {
+        *yi = d->Zy[i];
+        return d->Z + i * d->p;
+    }
+    *yi = design_row(d, i, tmp);
+    return tmp;
 }
 
 /* Cholesky of a small SPD matrix in place (lower triangle), with a relative
@@ -69,6 +82,40 @@ static long small_cholesky(double *a, size_t p)
     return -1;
 }
 
+/* Mean of v[0..n) (center NULL), or mean of (v - c)^2 (center given),
+ * summed in blocks of 256 with a compensated sum across blocks. */
+static double block_mean(const double *v, size_t n, double c, const double *center)
+{
+    ksum tot = {0, 0};
+    for (size_t i = 0; i < n; i += 256) {
+        size_t e = i + 256 < n ? i + 256 : n;
+        double s0 = 0, s1 = 0, s2 = 0, s3 = 0;
+        size_t j = i;
+        if (center) {
+            for (; j + 4 <= e; j += 4) {
+                double a = v[j] - c, b = v[j + 1] - c, cc = v[j + 2] - c, dd = v[j + 3] - c;
+                s0 += a * a;
+                s1 += b * b;
+                s2 += cc * cc;
+                s3 += dd * dd;
+            }
+            for (; j < e; j++)
+                s0 += (v[j] - c) * (v[j] - c);
+        } else {
+            for (; j + 4 <= e; j += 4) {
+                s0 += v[j];
+                s1 += v[j + 1];
+                s2 += v[j + 2];
+                s3 += v[j + 3];
+            }
+            for (; j < e; j++)
+                s0 += v[j];
+        }
+        ksum_add(&tot, (s0 + s1) + (s2 + s3));
+    }
+    return ksum_value(&tot) / (double)n;
+}
+
 static int design_init(design *d, const double *y, const double *const *x, size_t k, const double *w, size_t n,
                        const char *const *names, etacal_error *err)
 {
@@ -90,18 +137,16 @@ static int design_init(design *d, const double *y, const double *const *x, size_
                                     i + 1);
     }
     for (size_t j = 0; j < k; j++) {
-        ksum s = {0, 0};
-        for (size_t i = 0; i < n; i++) {
-            if (!isfinite(x[j][i]))
-                return etacal_error_set(err, ETACAL_EINVAL, NULL, "covariate '%s' of data row %zu is not finite",
-                                        names && names[j] ? names[j] : "?", i + 1);
-            ksum_add(&s, x[j][i]);
+        /* The centre and scale only condition the problem (the answer is
+         * mapped back exactly), so plain sums in blocks are accurate enough. */
+        double m = block_mean(x[j], n, 0, NULL);
+        if (!isfinite(m)) {
+            for (size_t i = 0; i < n; i++)
+                if (!isfinite(x[j][i]))
+                    return etacal_error_set(err, ETACAL_EINVAL, NULL, "covariate '%s' of data row %zu is not finite",
+                                            names && names[j] ? names[j] : "?", i + 1);
         }
-        double m = ksum_value(&s) / (double)n;
-        ksum v = {0, 0};
-        for (size_t i = 0; i < n; i++)
-            ksum_add(&v, (x[j][i] - m) * (x[j][i] - m));
-        double sd = sqrt(ksum_value(&v) / (double)n);
+        double sd = sqrt(block_mean(x[j], n, m, &m));
         if (!(sd > 1e-12 * (fabs(m) > 1 ? fabs(m) : 1)))
             return etacal_error_set(err, ETACAL_EINVAL, NULL, "covariate '%s' is constant: it cannot be told apart from the intercept",
                                     names && names[j] ? names[j] : "?");
@@ -433,14 +478,15 @@ static int gather(const design *d, const unsigned char *flags, double **Xo, doub
     size_t w = 0;
     double row[PMAX];
     for (size_t i = 0; i < d->n; i++) {
-        double yi = design_row(d, i, row);
+        double yi;
+        const double *rw = zrow(d, i, row, &yi);
         unsigned f = flags ? flags[i] : 0;
         if (f == 0) {
-            memcpy(X + w * p, row, p * sizeof *row);
+            memcpy(X + w * p, rw, p * sizeof *rw);
             Y[w++] = yi;
         } else {
             for (size_t j = 0; j < p; j++)
-                gx[f][j] += row[j];
+                gx[f][j] += rw[j];
             gy[f] += yi;
         }
     }
@@ -472,11 +518,12 @@ static int fit_full(const design *d, double tau, double eps, int maxit, fnwork *
  * subsample, keep the rows whose residuals may lie on either side of the
  * fit, and replace the others by two glob rows; verify the signs on all
  * rows and repair, or start again with a larger subsample. */
-static int fit_preprocessed(const design *d, double tau, double eps, int maxit, unsigned long seed, fnwork *W,
+static int fit_preprocessed(design *d, double tau, double eps, int maxit, unsigned long seed, fnwork *W,
                             double *b, int *it_total, double *gap, int *solves, etacal_error *err)
 {
     int rc = ETACAL_OK;
     size_t n = d->n, p = d->p;
+    double *Zmem = NULL, *Zy = NULL;
     double *ratio = malloc(n * sizeof *ratio), *sel = malloc(n * sizeof *sel);
     unsigned char *flags = malloc(n);
     unsigned char *insub = malloc(n);
@@ -487,6 +534,19 @@ static int fit_preprocessed(const design *d, double tau, double eps, int maxit, 
         goto done;
     }
     gsl_rng_set(rng, seed ? seed : 5489);
+    /* The scaled rows once, contiguous: every pass below reads them. */
+    Zmem = malloc(n * p * sizeof *Zmem);
+    Zy = malloc(n * sizeof *Zy);
+    if (Zmem && Zy) {
+        for (size_t i = 0; i < n; i++)
+            Zy[i] = design_row(d, i, Zmem + i * p);
+        d->Z = Zmem;
+        d->Zy = Zy;
+    } else {
+        free(Zmem);
+        free(Zy);
+        Zmem = Zy = NULL; /* fall back to building rows on the fly */
+    }
     double mm = round(sqrt((double)p) * pow((double)n, 2.0 / 3.0));
     size_t m = (size_t)mm;
     *it_total = 0;
@@ -519,8 +579,8 @@ static int fit_preprocessed(const design *d, double tau, double eps, int maxit, 
         double row[PMAX];
         for (size_t i = 0; i < n; i++)
             if (insub[i]) {
-                Y[ms] = design_row(d, i, row);
-                memcpy(X + ms * p, row, p * sizeof *row);
+                const double *rw = zrow(d, i, row, &Y[ms]);
+                memcpy(X + ms * p, rw, p * sizeof *rw);
                 ms++;
             }
         int it;
@@ -555,16 +615,17 @@ static int fit_preprocessed(const design *d, double tau, double eps, int maxit, 
             }
         }
         for (size_t i = 0; i < n; i++) {
-            double yi = design_row(d, i, row), band = 0;
+            double yi, band = 0;
+            const double *rw = zrow(d, i, row, &yi);
             for (size_t a = 0; a < p; a++) {
                 const double *la = Linv + a * p;
                 double t = 0;
                 for (size_t c = 0; c <= a; c++)
-                    t += la[c] * row[c];
+                    t += la[c] * rw[c];
                 band += t * t;
             }
             band = sqrt(band);
-            double ri = yi - dot_row(row, bs, p);
+            double ri = yi - dot_row(rw, bs, p);
             ratio[i] = ri / (band > eps ? band : eps);
         }
         memcpy(sel, ratio, n * sizeof *sel);
@@ -599,8 +660,9 @@ static int fit_preprocessed(const design *d, double tau, double eps, int maxit, 
             for (size_t i = 0; i < n; i++) {
                 if (!flags[i])
                     continue;
-                double yi = design_row(d, i, row);
-                double ri = yi - dot_row(row, b, p);
+                double yi;
+                const double *rw = zrow(d, i, row, &yi);
+                double ri = yi - dot_row(rw, b, p);
                 if ((flags[i] == 2 && ri < 0) || (flags[i] == 1 && ri > 0))
                     bad++;
             }
@@ -613,8 +675,9 @@ static int fit_preprocessed(const design *d, double tau, double eps, int maxit, 
             for (size_t i = 0; i < n; i++) {
                 if (!flags[i])
                     continue;
-                double yi = design_row(d, i, row);
-                double ri = yi - dot_row(row, b, p);
+                double yi;
+                const double *rw = zrow(d, i, row, &yi);
+                double ri = yi - dot_row(rw, b, p);
                 if ((flags[i] == 2 && ri < 0) || (flags[i] == 1 && ri > 0))
                     flags[i] = 0;
             }
@@ -624,6 +687,11 @@ static int fit_preprocessed(const design *d, double tau, double eps, int maxit, 
     }
     rc = etacal_error_set(err, ETACAL_ENUM, NULL, "preprocessing did not settle after 20 subsamples");
 done:
+    if (Zmem) {
+        d->Z = d->Zy = NULL;
+        free(Zmem);
+        free(Zy);
+    }
     free(X);
     free(Y);
     free(ratio);
@@ -680,12 +748,17 @@ int etacal_qr_fit(const double *y, const double *const *x, size_t k, const doubl
     out->gap = gap;
     out->solves = solves;
     ksum obj = {0, 0};
-    for (size_t i = 0; i < n; i++) {
-        double fit = out->coef[0];
-        for (size_t j = 0; j < k; j++)
-            fit += out->coef[j + 1] * x[j][i];
-        double wi = w ? w[i] : 1;
-        ksum_add(&obj, wi * etacal_pinball(y[i], fit, tau));
+    for (size_t i0 = 0; i0 < n; i0 += 256) {
+        size_t e = i0 + 256 < n ? i0 + 256 : n;
+        double blk = 0;
+        for (size_t i = i0; i < e; i++) {
+            double fit = out->coef[0];
+            for (size_t j = 0; j < k; j++)
+                fit += out->coef[j + 1] * x[j][i];
+            double u = y[i] - fit, wi = w ? w[i] : 1;
+            blk += wi * (u >= 0 ? tau * u : (tau - 1) * u);
+        }
+        ksum_add(&obj, blk);
     }
     out->objective = ksum_value(&obj);
     return ETACAL_OK;

@@ -154,7 +154,9 @@ static json_t *build_json(const char *path, const char *yname, char **xs, const 
         json_object_set_new(o, "n", json_integer((json_int_t)r->n));
         json_object_set_new(o, "objective", json_real(r->objective));
         json_object_set_new(o, "iterations", json_integer(r->iterations));
-        json_object_set_new(o, "gap", json_real(r->gap));
+        char g[32]; /* the gap matters to 3 digits; more would be rounding noise */
+        snprintf(g, sizeof g, "%.3g", r->gap);
+        json_object_set_new(o, "gap", json_real(strtod(g, NULL)));
         json_object_set_new(o, "bandwidth", jnum(f->bw[ti]));
         json_t *terms = json_array();
         for (size_t j = 0; j < r->p; j++) {
