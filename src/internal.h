@@ -155,6 +155,29 @@ int segset_build(segset *s, const etacal_table *t, const size_t *key_cols, size_
 uint32_t segset_row(const segset *s, size_t row);
 void segset_free(segset *s);
 
+/* seghier: the segments of every level of the keys (segment.c): with
+ * levels, (k1..kK), (k1..kK-1, *), ..., down to the global segment 0; without,
+ * the full key combinations and the global segment.  keys[g][j] is "*" for
+ * the keys that segment g leaves open; level[g] is how many it fixes;
+ * parent[g] is the segment one level up (0 at level 1). */
+typedef struct seghier {
+    size_t nkeys, nseg;
+    char ***keys;
+    size_t *level, *parent;
+    segset *lv;     /* lv[L-1]: the segments of the first L keys */
+    uint32_t **uni; /* uni[L-1][segset index] -> segment number */
+} seghier;
+
+int seghier_build(seghier *h, const etacal_table *t, const size_t *key_cols, size_t nkeys, int levels,
+                  etacal_error *err);
+void seghier_free(seghier *h);
+/* The segment of row i at level L (0 <= L <= nkeys): 0 for L = 0.  Without
+ * levels only L = 0 and L = nkeys are defined. */
+static inline uint32_t seghier_row(const seghier *h, size_t L, size_t i)
+{
+    return L == 0 ? 0 : h->uni[L - 1][segset_row(&h->lv[L - 1], i)];
+}
+
 /* Shared by the table fitter and reader. */
 int quotes_set_targets(etacal_quotes *q, const double *targets, size_t n, etacal_error *err);
 int segment_alloc(etacal_segment *s, size_t nkeys, size_t ntargets);

@@ -150,11 +150,11 @@ typedef struct job {
  * conformal bound s_(k), k = ceil((n_cal + 1) tau).  The promise q(x) +
  * s_(k) then covers at least tau of future orders of the segment, whatever
  * the regression got wrong. */
-static int fit_qr(etacal_quotes *q, const etacal_table *t, const segset *ss, size_t actual_col, size_t pred_col,
+static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, size_t actual_col, size_t pred_col,
                   const etacal_fit_opts *o, size_t min_rows, etacal_error *err)
 {
     int rc = ETACAL_OK;
-    size_t n = etacal_table_rows(t), nseg = ss->nseg, nx = o->nx, p = 2 + nx;
+    size_t n = etacal_table_rows(t), nseg = hs->nseg, nx = o->nx, p = 2 + nx, nk = q->nkeys;
     const double *y = etacal_table_num(t, actual_col), *pr = etacal_table_num(t, pred_col);
     const double *xc[ETACAL_QR_MAX_COVARIATES];
     const char *names[ETACAL_QR_MAX_COVARIATES];
@@ -164,36 +164,46 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const segset *ss, siz
         names[j + 1] = etacal_table_col_name(t, o->x_cols[j]);
     }
     double split = o->split > 0 ? o->split : 0.5;
-    uint32_t *idx = malloc(n * sizeof *idx);
+    /* the rows of each segment: one counting sort per level */
+    uint32_t *idx = malloc((nk ? nk : 1) * n * sizeof *idx);
     size_t *start = calloc(nseg + 1, sizeof *start), *fill = calloc(nseg, sizeof *fill);
+    size_t *count = calloc(nseg, sizeof *count), *nbseg = calloc(nseg, sizeof *nbseg);
+    size_t lvl_off[ETACAL_QR_MAX_COVARIATES + 1] = {0};
     unsigned char *fitpart = malloc(n);
     double *buf = malloc(n * (p + 1) * sizeof *buf);
     double *coef = malloc(nseg * q->ntargets * p * sizeof *coef);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    if (!idx || !start || !fill || !fitpart || !buf || !coef || !rng) {
+    if (!idx || !start || !fill || !count || !nbseg || !fitpart || !buf || !coef || !rng) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
         goto done;
     }
     gsl_rng_set(rng, o->seed ? o->seed : 1);
     for (size_t i = 0; i < n; i++) {
         fitpart[i] = gsl_rng_uniform(rng) < split;
-        start[segset_row(ss, i) + 1]++;
+        for (size_t L = 1; L <= nk; L++)
+            count[seghier_row(hs, L, i)]++;
     }
-    for (size_t g = 0; g < nseg; g++)
-        start[g + 1] += start[g];
-    for (size_t i = 0; i < n; i++) {
-        uint32_t g = segset_row(ss, i);
-        idx[start[g] + fill[g]++] = (uint32_t)i;
+    for (size_t g = 1; g < nseg; g++) {
+        size_t L = hs->level[g];
+        start[g] = lvl_off[L];
+        lvl_off[L] += count[g];
     }
+    for (size_t i = 0; i < n; i++)
+        for (size_t L = 1; L <= nk; L++) {
+            uint32_t g = seghier_row(hs, L, i);
+            idx[(L - 1) * n + start[g] + fill[g]++] = (uint32_t)i;
+        }
     for (size_t g = 0; g < nseg; g++) {
         etacal_segment *sg = &q->segs[g];
         int global = g == 0;
         /* rows of the segment: all rows for the global one */
-        size_t lo = global ? 0 : start[g], hi = global ? n : start[g + 1];
+        const uint32_t *rows = global ? NULL : idx + (hs->level[g] - 1) * n + start[g];
+        size_t lo = 0, hi = global ? n : count[g];
         size_t na = 0, nb = 0;
         for (size_t r = lo; r < hi; r++)
-            na += fitpart[global ? r : idx[r]];
+            na += fitpart[global ? r : rows[r]];
         nb = (hi - lo) - na;
+        nbseg[g] = nb;
         if (!global && (sg->n < min_rows || na <= p)) {
             for (size_t ti = 0; ti < q->ntargets; ti++) {
                 sg->status[ti] = ETACAL_FALLBACK_FEW_ROWS;
@@ -206,7 +216,7 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const segset *ss, siz
         double *fy = buf, *fx = buf + na, *cy = buf + na * (p + 1), *cx = cy + nb;
         size_t wa = 0, wb = 0;
         for (size_t r = lo; r < hi; r++) {
-            size_t i = global ? r : idx[r];
+            size_t i = global ? r : rows[r];
             if (fitpart[i]) {
                 fy[wa] = y[i];
                 fx[wa] = pr[i];
@@ -314,17 +324,14 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const segset *ss, siz
         }
     }
     /* n of a row: the calibration rows of its segment */
-    for (size_t rr = 0; rr < q->nrows; rr++) {
-        etacal_quote *r = &q->rows[rr];
-        size_t g = r->seg, lo = g == 0 ? 0 : start[g], hi = g == 0 ? n : start[g + 1], nb = 0;
-        for (size_t x = lo; x < hi; x++)
-            nb += !fitpart[g == 0 ? x : idx[x]];
-        r->n = nb;
-    }
+    for (size_t rr = 0; rr < q->nrows; rr++)
+        q->rows[rr].n = nbseg[q->rows[rr].seg];
 done:
     free(idx);
     free(start);
     free(fill);
+    free(count);
+    free(nbseg);
     free(fitpart);
     free(buf);
     free(coef);
@@ -340,7 +347,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     size_t *hist = NULL;
     double *mn = NULL, *mx = NULL, *scale = NULL, *cand = NULL;
     job *jobs = NULL;
-    segset ss = {0};
+    seghier hs = {0};
     *out = NULL;
 
     size_t n = etacal_table_rows(t);
@@ -381,10 +388,11 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
             goto nomem;
     }
 
-    /* 1. Segments: global first, the others sorted by their key texts. */
-    if ((rc = segset_build(&ss, t, key_cols, nkeys, err)) != 0)
+    /* 1. Segments of every level: global first, the others sorted by their
+     *    key texts. */
+    if ((rc = seghier_build(&hs, t, key_cols, nkeys, 1, err)) != 0)
         goto done;
-    size_t nseg = ss.nseg;
+    size_t nseg = hs.nseg;
     q->segs = calloc(nseg, sizeof *q->segs);
     if (!q->segs)
         goto nomem;
@@ -393,8 +401,10 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         if (segment_alloc(&q->segs[g], nkeys, q->ntargets) != 0)
             goto nomem;
         free(q->segs[g].keys);
-        q->segs[g].keys = ss.keys[g]; /* ownership moves to the table */
-        ss.keys[g] = NULL;
+        q->segs[g].keys = hs.keys[g]; /* ownership moves to the table */
+        hs.keys[g] = NULL;
+        q->segs[g].level = hs.level[g];
+        q->segs[g].parent = hs.parent[g];
     }
 
     /* 2. Pass over the rows: validation, accuracy, per-segment n, bare
@@ -428,17 +438,15 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         ksum_add(&me, e);
         int hit = a <= pr;
         on_time += (size_t)hit;
-        uint32_t g = segset_row(&ss, i);
-        q->segs[g].n++;
-        q->segs[g].bare_hits += (size_t)hit;
-        if (sc < mn[g])
-            mn[g] = sc;
-        if (sc > mx[g])
-            mx[g] = sc;
-        if (sc < mn[0])
-            mn[0] = sc;
-        if (sc > mx[0])
-            mx[0] = sc;
+        for (size_t L = 0; L <= nkeys; L++) { /* the row's segment at every level */
+            uint32_t g = seghier_row(&hs, L, i);
+            q->segs[g].n++;
+            q->segs[g].bare_hits += (size_t)hit;
+            if (sc < mn[g])
+                mn[g] = sc;
+            if (sc > mx[g])
+                mx[g] = sc;
+        }
     }
     q->accuracy.n = n;
     q->accuracy.rmse = sqrt(ksum_value(&sq) / (double)n);
@@ -446,13 +454,9 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     q->accuracy.mean_error = ksum_value(&me) / (double)n;
     q->accuracy.on_time = on_time;
     etacal_segment *gl = &q->segs[0];
-    if (nkeys) {
-        gl->n = n;
-        gl->bare_hits = on_time;
-    }
 
     if (q->method == ETACAL_METHOD_QR) {
-        rc = fit_qr(q, t, &ss, actual_col, pred_col, opts, min_rows, err);
+        rc = fit_qr(q, t, &hs, actual_col, pred_col, opts, min_rows, err);
         goto done;
     }
 
@@ -478,10 +482,10 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     }
     for (size_t i = 0; i < n; i++) {
         double sc = ratio ? y[i] / p[i] : y[i] - p[i];
-        uint32_t g = segset_row(&ss, i);
-        hist[(size_t)g * B + bucket(sc, mn[g], scale[g], B)]++;
-        if (g)
-            hist[bucket(sc, mn[0], scale[0], B)]++;
+        for (size_t L = 0; L <= nkeys; L++) {
+            uint32_t g = seghier_row(&hs, L, i);
+            hist[(size_t)g * B + bucket(sc, mn[g], scale[g], B)]++;
+        }
     }
     size_t ncand = 0;
     for (size_t g = 0; g < nseg; g++) {
@@ -525,17 +529,13 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         goto nomem;
     for (size_t i = 0; i < n; i++) {
         double sc = ratio ? y[i] / p[i] : y[i] - p[i];
-        uint32_t g = segset_row(&ss, i);
-        size_t bg = bucket(sc, mn[g], scale[g], B);
-        job *jg = &jobs[(size_t)g * q->ntargets];
-        for (size_t ti = 0; ti < q->ntargets; ti++)
-            if (jg[ti].bucket == bg)
-                cand[jg[ti].off + jg[ti].used++] = sc;
-        if (g) {
-            size_t b0 = bucket(sc, mn[0], scale[0], B);
+        for (size_t L = 0; L <= nkeys; L++) {
+            uint32_t g = seghier_row(&hs, L, i);
+            size_t bg = bucket(sc, mn[g], scale[g], B);
+            job *jg = &jobs[(size_t)g * q->ntargets];
             for (size_t ti = 0; ti < q->ntargets; ti++)
-                if (jobs[ti].bucket == b0)
-                    cand[jobs[ti].off + jobs[ti].used++] = sc;
+                if (jg[ti].bucket == bg)
+                    cand[jg[ti].off + jg[ti].used++] = sc;
         }
     }
     for (size_t g = 0; g < nseg; g++)
@@ -580,7 +580,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
 nomem:
     rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
 done:
-    segset_free(&ss);
+    seghier_free(&hs);
     free(hist);
     free(mn);
     free(mx);

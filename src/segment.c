@@ -270,3 +270,131 @@ done:
         segset_free(s);
     return rc;
 }
+
+/* ---- the hierarchy of levels ------------------------------------------
+ * --by k1,k2,...,kK defines levels from the most specific to the global
+ * one: (k1..kK), (k1..kK-1, *), ..., (*, ..., *).  Every level's segments
+ * get one number in a single space (0: the global segment), ordered by
+ * their key texts with "*" for the keys a level leaves open. */
+
+void seghier_free(seghier *h)
+{
+    if (!h)
+        return;
+    if (h->keys)
+        for (size_t g = 0; g < h->nseg; g++) {
+            if (h->keys[g])
+                for (size_t j = 0; j < h->nkeys; j++)
+                    free(h->keys[g][j]);
+            free(h->keys[g]);
+        }
+    free(h->keys);
+    free(h->level);
+    free(h->parent);
+    if (h->lv)
+        for (size_t L = 0; L < h->nkeys; L++) {
+            segset_free(&h->lv[L]);
+            free(h->uni[L]);
+        }
+    free(h->lv);
+    free(h->uni);
+    memset(h, 0, sizeof *h);
+}
+
+typedef struct hent {
+    char **keys;
+    size_t nkeys;
+    size_t level, idx; /* level L (1..nkeys) and index in that level's segset */
+} hent;
+
+static int cmp_hent(const void *a, const void *b)
+{
+    const hent *x = a, *y = b;
+    for (size_t j = 0; j < x->nkeys; j++) {
+        int c = strcmp(x->keys[j], y->keys[j]);
+        if (c)
+            return c;
+    }
+    return 0;
+}
+
+int seghier_build(seghier *h, const etacal_table *t, const size_t *key_cols, size_t nkeys, int levels,
+                  etacal_error *err)
+{
+    int rc = ETACAL_OK;
+    hent *ent = NULL;
+    size_t ne = 0;
+    memset(h, 0, sizeof *h);
+    h->nkeys = nkeys;
+    size_t first_level = levels ? 1 : nkeys; /* without levels: the full keys only */
+    if (nkeys) {
+        h->lv = calloc(nkeys, sizeof *h->lv);
+        h->uni = calloc(nkeys, sizeof *h->uni);
+        if (!h->lv || !h->uni)
+            goto nomem;
+    }
+    size_t total = 1;
+    for (size_t L = first_level; L <= nkeys && nkeys; L++) {
+        if ((rc = segset_build(&h->lv[L - 1], t, key_cols, L, err)) != 0)
+            goto done;
+        total += h->lv[L - 1].nseg - 1;
+    }
+    h->keys = calloc(total, sizeof *h->keys);
+    h->level = calloc(total, sizeof *h->level);
+    h->parent = calloc(total, sizeof *h->parent);
+    ent = malloc(total * sizeof *ent);
+    if (!h->keys || !h->level || !h->parent || !ent)
+        goto nomem;
+    h->nseg = total;
+    for (size_t L = first_level; L <= nkeys && nkeys; L++) {
+        segset *s = &h->lv[L - 1];
+        if (!(h->uni[L - 1] = calloc(s->nseg, sizeof *h->uni[L - 1])))
+            goto nomem;
+        for (size_t g = 1; g < s->nseg; g++) {
+            char **k = calloc(nkeys, sizeof *k);
+            if (!k)
+                goto nomem;
+            ent[ne] = (hent){k, nkeys, L, g};
+            ne++;
+            for (size_t j = 0; j < nkeys; j++) {
+                const char *txt = j < L ? s->keys[g][j] : "*";
+                if (!(k[j] = dupn(txt, strlen(txt))))
+                    goto nomem;
+            }
+        }
+    }
+    qsort(ent, ne, sizeof *ent, cmp_hent);
+    if (!(h->keys[0] = calloc(nkeys ? nkeys : 1, sizeof *h->keys[0])))
+        goto nomem;
+    for (size_t j = 0; j < nkeys; j++)
+        if (!(h->keys[0][j] = dupn("*", 1)))
+            goto nomem;
+    for (size_t e = 0; e < ne; e++) {
+        size_t g = e + 1;
+        h->keys[g] = ent[e].keys;
+        ent[e].keys = NULL;
+        h->level[g] = ent[e].level;
+        h->uni[ent[e].level - 1][ent[e].idx] = (uint32_t)g;
+    }
+    /* parents: the segment one level up that holds the same rows */
+    size_t n = etacal_table_rows(t);
+    for (size_t L = first_level + 1; L <= nkeys; L++)
+        for (size_t i = 0; i < n; i++)
+            h->parent[seghier_row(h, L, i)] = seghier_row(h, L - 1, i);
+    goto done;
+nomem:
+    rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+done:
+    if (ent) {
+        for (size_t e = 0; e < ne; e++)
+            if (ent[e].keys) {
+                for (size_t j = 0; j < nkeys; j++)
+                    free(ent[e].keys[j]);
+                free(ent[e].keys);
+            }
+        free(ent);
+    }
+    if (rc)
+        seghier_free(h);
+    return rc;
+}

@@ -48,7 +48,10 @@ typedef struct etacal_accuracy {
 } etacal_accuracy;
 
 /* One segment of a fitted or read table.  keys[j] is the value of key column
- * j, "*" for the global segment. */
+ * j, or "*" where the segment's level leaves key j open: --by zone,band gives
+ * the levels (zone, band), (zone, *) and (*, *), the global segment.  A
+ * segment without a row of its own for a target uses the nearest level
+ * above it that has one. */
 typedef struct etacal_segment {
     char **keys;
     size_t n;          /* calibration rows (fit), or the table's n (read) */
@@ -58,6 +61,8 @@ typedef struct etacal_segment {
     double *score_q;   /* the k-th smallest score: seconds (add) or a factor
                           (ratio); +inf when k > n */
     int *status;       /* ETACAL_OWN_ROW or a fallback reason */
+    size_t level;      /* keys it fixes: nkeys for a full combination, 0 global */
+    size_t parent;     /* the segment one level up (fit only; 0 = global) */
 } etacal_segment;
 
 /* One row of the quote table. */
@@ -72,8 +77,9 @@ typedef struct etacal_quote {
 
 /* A quote table.  Read-only for callers; built by etacal_quotes_fit or
  * etacal_quotes_read_csv and freed by etacal_quotes_destroy.  segs[0] is the
- * global segment.  A fitted table has the other segments sorted by their key
- * texts (bytewise); a table read from a file keeps the file's order. */
+ * global segment.  A fitted table has the other segments of every level
+ * sorted by their key texts (bytewise, "*" included); a table read from a
+ * file keeps the file's order. */
 typedef struct etacal_quotes {
     size_t nkeys;
     char **key_names;

@@ -51,6 +51,20 @@ static void fmt_pct(char *buf, size_t n, size_t hits, size_t total)
         snprintf(buf, n, "%.2f%%", 100.0 * (double)hits / (double)total);
 }
 
+/* "global" or "(harbour, *)": how the summary names a segment. */
+static void segment_label(char *buf, size_t n, const etacal_quotes *q, size_t g)
+{
+    if (g == 0) {
+        snprintf(buf, n, "global");
+        return;
+    }
+    size_t w = (size_t)snprintf(buf, n, "(");
+    for (size_t j = 0; j < q->nkeys && w < n; j++)
+        w += (size_t)snprintf(buf + w, n - w, "%s%s", j ? ", " : "", q->segs[g].keys[j]);
+    if (w < n)
+        snprintf(buf + w, n - w, ")");
+}
+
 static void print_summary(FILE *fp, const char *path, const char *pred, const etacal_table *t,
                           const etacal_quotes *q, size_t min_rows)
 {
@@ -79,7 +93,7 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
     if (tt_init(&tt, ncols) != 0)
         return;
     const char **cells = calloc(ncols, sizeof *cells);
-    char (*buf)[64] = calloc(ncols, sizeof *buf);
+    char (*buf)[96] = calloc(ncols, sizeof *buf);
     if (!cells || !buf)
         goto out;
     size_t c = 0;
@@ -147,14 +161,33 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
                 c++;
             }
         }
-        if (s == 0)
+        if (s == 0) {
             snprintf(buf[c], sizeof buf[c], "global");
-        else if (few)
-            snprintf(buf[c], sizeof buf[c], "uses global (n < %zu)", min_rows);
-        else if (rankmsg[0])
-            snprintf(buf[c], sizeof buf[c], "uses global at %s (k > n)", rankmsg);
-        else
+        } else if (!few && !rankmsg[0]) {
             snprintf(buf[c], sizeof buf[c], "own");
+        } else {
+            /* the nearest level above with a row, per target */
+            size_t first = SIZE_MAX;
+            int same = 1;
+            for (size_t ti = 0; ti < nt; ti++) {
+                if (g->status[ti] == ETACAL_OWN_ROW)
+                    continue;
+                size_t up = s;
+                while (up != 0 && q->segs[up].status[ti] != ETACAL_OWN_ROW)
+                    up = q->segs[up].parent;
+                if (first == SIZE_MAX)
+                    first = up;
+                same &= up == first;
+            }
+            char who[64];
+            segment_label(who, sizeof who, q, first);
+            if (few)
+                snprintf(buf[c], sizeof buf[c], "uses %s (n < %zu)", who, min_rows);
+            else if (same)
+                snprintf(buf[c], sizeof buf[c], "uses %s at %s (k > n)", who, rankmsg);
+            else
+                snprintf(buf[c], sizeof buf[c], "uses a coarser level at %s (k > n)", rankmsg);
+        }
         cells[c] = buf[c];
         c++;
         tt_add(&tt, cells);
@@ -168,7 +201,7 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
                 break;
             }
     if (nk)
-        fprintf(fp, "\n%zu segment%s: %zu with rows of their own for every target, %zu using the global row for some; table rows: %zu\n",
+        fprintf(fp, "\n%zu segment%s: %zu with rows of their own for every target, %zu using a coarser level for some; table rows: %zu\n",
                 q->nsegs - 1, q->nsegs == 2 ? "" : "s", q->nsegs - 1 - fell, fell, q->nrows);
 out:
     free(cells);

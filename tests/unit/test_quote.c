@@ -406,29 +406,48 @@ static void test_fit_random_against_brute_force(void **state)
     const uint64_t tnum[] = {8, 9, 95}, tden[] = {10, 10, 100}; /* sorted: .8 .9 .95 */
     assert_int_equal(fit(f, 2, ETACAL_METHOD_ADD, targets, 3, 10), ETACAL_OK);
     const etacal_quotes *q = f->q;
-    assert_int_equal(q->nsegs, 7);
+    /* the levels of --by zone,vehicle: 6 (zone, vehicle) segments, 3
+     * (zone, *) segments and the global one */
+    assert_int_equal(q->nsegs, 10);
     assert_int_equal(q->nkeys, 2);
     assert_string_equal(q->key_names[0], "zone");
     assert_string_equal(q->key_names[1], "vehicle");
-    /* sorted by (zone, vehicle) text */
-    static const int order[6][2] = {{2, 1}, {2, 0}, {1, 1}, {1, 0}, {0, 1}, {0, 0}};
+    /* sorted by key text, "*" (0x2a) before letters: per zone in the order
+     * east, north, west, first (zone, *), then bike, car */
+    static const int zorder[3] = {2, 1, 0};
     assert_string_equal(q->segs[0].keys[0], "*");
     assert_string_equal(q->segs[0].keys[1], "*");
     size_t expect_rows = 0;
-    for (size_t s = 0; s <= 6; s++) {
+    for (size_t s = 0; s < 10; s++) {
         const etacal_segment *g = &q->segs[s];
         double *v;
         size_t m;
+        int level;
         if (s == 0) {
             v = all;
             m = total;
+            level = 0;
         } else {
-            int z = order[s - 1][0], ve = order[s - 1][1];
+            int z = zorder[(s - 1) / 3], slot = (int)((s - 1) % 3);
             assert_string_equal(g->keys[0], zones[z]);
-            assert_string_equal(g->keys[1], veh[ve]);
-            v = sc[z][ve];
-            m = sizes[z][ve];
+            if (slot == 0) { /* (zone, *): both vehicles' scores */
+                assert_string_equal(g->keys[1], "*");
+                m = sizes[z][0] + sizes[z][1];
+                v = malloc(m * sizeof *v);
+                memcpy(v, sc[z][0], sizes[z][0] * sizeof *v);
+                memcpy(v + sizes[z][0], sc[z][1], sizes[z][1] * sizeof *v);
+                level = 1;
+                assert_int_equal(g->parent, 0);
+            } else {
+                int ve = slot == 1 ? 1 : 0; /* bike, then car */
+                assert_string_equal(g->keys[1], veh[ve]);
+                v = sc[z][ve];
+                m = sizes[z][ve];
+                level = 2;
+                assert_int_equal(g->parent, s - (size_t)slot); /* its (zone, *) */
+            }
         }
+        assert_int_equal(g->level, (size_t)level);
         assert_int_equal(g->n, m);
         qsort(v, m, sizeof *v, cmp_double);
         for (size_t ti = 0; ti < 3; ti++) {
@@ -445,6 +464,8 @@ static void test_fit_random_against_brute_force(void **state)
                 assert_true(isinf(g->score_q[ti]));
             expect_rows += want_status == ETACAL_OWN_ROW;
         }
+        if (level == 1)
+            free(v);
     }
     assert_int_equal(q->nrows, expect_rows);
     for (size_t i = 0; i < q->nrows; i++) {
@@ -530,29 +551,34 @@ static void test_write_quotes_key_fields(void **state)
     load(f, text, 2);
     const double targets[] = {0.9};
     assert_int_equal(fit(f, 2, ETACAL_METHOD_ADD, targets, 1, 5), ETACAL_OK);
-    assert_int_equal(f->q->nrows, 3);
+    /* global, and per zone the (zone, *) level and the (zone, vehicle)
+     * segment (here the same rows: one vehicle per zone) */
+    assert_int_equal(f->q->nrows, 5);
     char *buf = NULL;
     size_t len = 0;
     FILE *fp = open_memstream(&buf, &len);
     assert_non_null(fp);
     assert_int_equal(etacal_quotes_write_csv(f->q, fp, &f->err), ETACAL_OK);
     fclose(fp);
-    /* " padded " sorts before "Old..." (space < 'O').  Scores: "Old Town"
-     * 9.75 + 4 i (i = 0..9), " padded " 39.75 - 16 i.  Each segment has
-     * n = 10, k = ceil(11 * .9) = 10: its largest score, 45.75 and 39.75.
-     * Global: k = ceil(21 * .9) = 19 of 20, the second largest of all:
-     * 41.75 ("Old Town", i = 8). */
+    /* " padded " sorts before "Old..." (space < 'O'), and "*" before the
+     * vehicles.  Scores: "Old Town" 9.75 + 4 i (i = 0..9), " padded "
+     * 39.75 - 16 i.  Each segment has n = 10, k = ceil(11 * .9) = 10: its
+     * largest score, 45.75 and 39.75.  Global: k = ceil(21 * .9) = 19 of
+     * 20, the second largest of all: 41.75 ("Old Town", i = 8). */
     assert_string_equal(buf, "zone,vehicle,target,method,n,k,offset_s,slope\n"
                              "*,*,0.9,add,20,19,41.75,1\n"
+                             "\" padded \",*,0.9,add,10,10,39.75,1\n"
                              "\" padded \",car,0.9,add,10,10,39.75,1\n"
+                             "\"Old Town, \"\"North\"\"\",*,0.9,add,10,10,45.75,1\n"
                              "\"Old Town, \"\"North\"\"\",e-bike,0.9,add,10,10,45.75,1\n");
     tu_write_text(&f->dir, "q.csv", buf, f->path, sizeof f->path);
     free(buf);
     assert_int_equal(etacal_quotes_read_csv(f->path, 0, &f->q2, &f->err), ETACAL_OK);
-    assert_int_equal(f->q2->nsegs, 3);
+    assert_int_equal(f->q2->nsegs, 5);
     assert_string_equal(f->q2->segs[1].keys[0], " padded ");
-    assert_string_equal(f->q2->segs[2].keys[0], "Old Town, \"North\"");
-    assert_string_equal(f->q2->segs[2].keys[1], "e-bike");
+    assert_string_equal(f->q2->segs[1].keys[1], "*");
+    assert_string_equal(f->q2->segs[4].keys[0], "Old Town, \"North\"");
+    assert_string_equal(f->q2->segs[4].keys[1], "e-bike");
 }
 
 /* ---- the reader ------------------------------------------------------- */
