@@ -345,7 +345,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
 {
     int rc = ETACAL_OK;
     size_t *hist = NULL;
-    double *mn = NULL, *mx = NULL, *scale = NULL, *cand = NULL;
+    double *cand = NULL;
     job *jobs = NULL;
     seghier hs = {0};
     *out = NULL;
@@ -407,19 +407,12 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         q->segs[g].parent = hs.parent[g];
     }
 
-    /* 2. Pass over the rows: validation, accuracy, per-segment n, bare
-     *    hits and score range. */
-    mn = malloc(nseg * sizeof *mn);
-    mx = malloc(nseg * sizeof *mx);
-    if (!mn || !mx)
-        goto nomem;
-    for (size_t g = 0; g < nseg; g++) {
-        mn[g] = INFINITY;
-        mx[g] = -INFINITY;
-    }
+    /* 2. Pass over the rows without segments: validation, accuracy and
+     *    the range of the scores. */
     int ratio = q->method == ETACAL_METHOD_RATIO;
     ksum sq = {0, 0}, ab = {0, 0}, me = {0, 0};
     size_t on_time = 0;
+    double lo_s = INFINITY, hi_s = -INFINITY;
     for (size_t i = 0; i < n; i++) {
         double a = y[i], pr = p[i];
         if (!isfinite(a) || !isfinite(pr)) {
@@ -436,17 +429,9 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         ksum_add(&sq, e * e);
         ksum_add(&ab, fabs(e));
         ksum_add(&me, e);
-        int hit = a <= pr;
-        on_time += (size_t)hit;
-        for (size_t L = 0; L <= nkeys; L++) { /* the row's segment at every level */
-            uint32_t g = seghier_row(&hs, L, i);
-            q->segs[g].n++;
-            q->segs[g].bare_hits += (size_t)hit;
-            if (sc < mn[g])
-                mn[g] = sc;
-            if (sc > mx[g])
-                mx[g] = sc;
-        }
+        on_time += (size_t)(a <= pr);
+        lo_s = sc < lo_s ? sc : lo_s;
+        hi_s = sc > hi_s ? sc : hi_s;
     }
     q->accuracy.n = n;
     q->accuracy.rmse = sqrt(ksum_value(&sq) / (double)n);
@@ -456,35 +441,45 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     etacal_segment *gl = &q->segs[0];
 
     if (q->method == ETACAL_METHOD_QR) {
+        for (size_t i = 0; i < n; i++) {
+            size_t hit = y[i] <= p[i];
+            for (uint32_t g = seghier_row(&hs, nkeys, i), L = (uint32_t)nkeys + 1; L-- > 0;
+                 g = (uint32_t)hs.parent[g]) {
+                q->segs[g].n++;
+                q->segs[g].bare_hits += hit;
+            }
+        }
         rc = fit_qr(q, t, &hs, actual_col, pred_col, opts, min_rows, err);
         goto done;
     }
 
     /* 3. The k-th smallest score of every (segment, target) by bucket
      *    selection, without copying or reordering the rows: a histogram of
-     *    each segment's scores over B equal-width buckets of its range
-     *    finds the bucket that holds rank k; a second pass gathers only
-     *    that bucket's scores, and an exact selection among them gives the
-     *    order statistic.  The bucket index is a monotone function of the
-     *    score, so this is exact; only the work depends on the spread. */
+     *    each segment's scores over B equal-width buckets of the scores'
+     *    range finds the bucket that holds rank k; a second pass gathers
+     *    only that bucket's scores, and an exact selection among them gives
+     *    the order statistic.  The bucket index is a monotone function of
+     *    the score, so this is exact; only the work depends on the spread.
+     *    Each row counts in its segment at every level, found from its
+     *    full-key segment through the parents. */
     size_t B = 4096;
     while (B > 16 && (double)B * (double)nseg * sizeof(size_t) > 64.0 * 1024 * 1024)
         B /= 2;
     hist = calloc(nseg * B, sizeof *hist);
-    scale = malloc(nseg * sizeof *scale);
     size_t njobs = nseg * q->ntargets;
     jobs = calloc(njobs, sizeof *jobs);
-    if (!hist || !scale || !jobs)
+    if (!hist || !jobs)
         goto nomem;
-    for (size_t g = 0; g < nseg; g++) {
-        double w = mx[g] - mn[g];
-        scale[g] = w > 0 && isfinite(w) ? (double)B / w : 0;
-    }
+    double width = hi_s - lo_s;
+    double scale0 = width > 0 && isfinite(width) ? (double)B / width : 0;
     for (size_t i = 0; i < n; i++) {
         double sc = ratio ? y[i] / p[i] : y[i] - p[i];
-        for (size_t L = 0; L <= nkeys; L++) {
-            uint32_t g = seghier_row(&hs, L, i);
-            hist[(size_t)g * B + bucket(sc, mn[g], scale[g], B)]++;
+        size_t hit = y[i] <= p[i], b = bucket(sc, lo_s, scale0, B);
+        for (uint32_t g = seghier_row(&hs, nkeys, i), L = (uint32_t)nkeys + 1; L-- > 0;
+             g = (uint32_t)hs.parent[g]) {
+            q->segs[g].n++;
+            q->segs[g].bare_hits += hit;
+            hist[(size_t)g * B + b]++;
         }
     }
     size_t ncand = 0;
@@ -529,9 +524,9 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         goto nomem;
     for (size_t i = 0; i < n; i++) {
         double sc = ratio ? y[i] / p[i] : y[i] - p[i];
-        for (size_t L = 0; L <= nkeys; L++) {
-            uint32_t g = seghier_row(&hs, L, i);
-            size_t bg = bucket(sc, mn[g], scale[g], B);
+        size_t bg = bucket(sc, lo_s, scale0, B);
+        for (uint32_t g = seghier_row(&hs, nkeys, i), L = (uint32_t)nkeys + 1; L-- > 0;
+             g = (uint32_t)hs.parent[g]) {
             job *jg = &jobs[(size_t)g * q->ntargets];
             for (size_t ti = 0; ti < q->ntargets; ti++)
                 if (jg[ti].bucket == bg)
@@ -582,9 +577,6 @@ nomem:
 done:
     seghier_free(&hs);
     free(hist);
-    free(mn);
-    free(mx);
-    free(scale);
     free(cand);
     free(jobs);
     if (rc) {

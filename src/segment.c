@@ -376,11 +376,27 @@ int seghier_build(seghier *h, const etacal_table *t, const size_t *key_cols, siz
         h->level[g] = ent[e].level;
         h->uni[ent[e].level - 1][ent[e].idx] = (uint32_t)g;
     }
-    /* parents: the segment one level up that holds the same rows */
+    /* parents: the segment one level up that holds the same rows; one row
+     * of each segment tells (the first of each full-key segment) */
     size_t n = etacal_table_rows(t);
-    for (size_t L = first_level + 1; L <= nkeys; L++)
-        for (size_t i = 0; i < n; i++)
-            h->parent[seghier_row(h, L, i)] = seghier_row(h, L - 1, i);
+    if (nkeys && first_level == 1) {
+        unsigned char *seen = calloc(h->nseg, 1);
+        if (!seen)
+            goto nomem;
+        for (size_t i = 0; i < n; i++) {
+            uint32_t g = seghier_row(h, nkeys, i);
+            if (seen[g])
+                continue;
+            for (size_t L = nkeys; L >= 2; L--) {
+                uint32_t up = seghier_row(h, L - 1, i);
+                seen[g] = 1;
+                h->parent[g] = up;
+                g = up;
+            }
+            seen[g] = 1; /* level 1: parent 0 */
+        }
+        free(seen);
+    }
     goto done;
 nomem:
     rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
