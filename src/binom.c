@@ -37,7 +37,7 @@ int etacal_binom_wilson(size_t x, size_t n, double conf, double *lo, double *hi,
  * gsl_cdf_beta_Pinv's Newton steps fail to converge for large a and b
  * (n in the hundred thousands); bisection cannot fail and costs about 60
  * evaluations. */
-static double beta_quantile(double p, double a, double b)
+double beta_quantile(double p, double a, double b)
 {
     double lo = 0, hi = 1;
     for (int i = 0; i < 200; i++) {

@@ -7,6 +7,7 @@
  * level tau of the scores together with one score at +infinity. */
 #include "internal.h"
 
+#include <gsl/gsl_cdf.h>
 #include <math.h>
 
 size_t etacal_ceil_mul(size_t m, double tau)
@@ -51,4 +52,33 @@ double etacal_conformal_upper(double *x, size_t n, double tau, size_t *k_out)
     if (k > n)
         return INFINITY;
     return etacal_select(x, n, k);
+}
+
+size_t etacal_conformal_rank_conf(size_t n, double tau, double conf)
+{
+    double delta = 1 - conf;
+    /* P(Bin(n, tau) >= k) = gsl_cdf_binomial_Q(k - 1, tau, n), decreasing
+     * in k: the smallest k with it <= delta, by bisection on [1, n]. */
+    if (n == 0 || gsl_cdf_binomial_Q((unsigned)(n - 1), tau, (unsigned)n) > delta)
+        return n + 1;
+    size_t lo = 1, hi = n; /* hi qualifies */
+    while (lo < hi) {
+        size_t mid = lo + (hi - lo) / 2;
+        if (gsl_cdf_binomial_Q((unsigned)(mid - 1), tau, (unsigned)n) <= delta)
+            hi = mid;
+        else
+            lo = mid + 1;
+    }
+    /* never below the average-case rank */
+    size_t k0 = etacal_conformal_rank(n, tau);
+    return lo > k0 ? lo : k0;
+}
+
+double etacal_coverage_mean(size_t n, size_t k) { return (double)k / (double)(n + 1); }
+
+double etacal_coverage_low(size_t n, size_t k, double conf)
+{
+    if (k == 0 || k > n)
+        return k > n ? 1 : 0;
+    return beta_quantile(1 - conf, (double)k, (double)(n + 1 - k));
 }

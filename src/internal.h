@@ -178,6 +178,9 @@ static inline uint32_t seghier_row(const seghier *h, size_t L, size_t i)
     return L == 0 ? 0 : h->uni[L - 1][segset_row(&h->lv[L - 1], i)];
 }
 
+/* The p-quantile of Beta(a, b) by bisection (binom.c). */
+double beta_quantile(double p, double a, double b);
+
 /* Shared by the table fitter and reader. */
 int quotes_set_targets(etacal_quotes *q, const double *targets, size_t n, etacal_error *err);
 int segment_alloc(etacal_segment *s, size_t nkeys, size_t ntargets);

@@ -142,6 +142,23 @@ typedef struct job {
     size_t cap, used, off;
 } job;
 
+/* The rank of the bound for n scores at tau: average case, or with
+ * confidence. */
+static size_t rank_rule(size_t n, double tau, double conf)
+{
+    size_t k = conf > 0 ? etacal_conformal_rank_conf(n, tau, conf) : etacal_conformal_rank(n, tau);
+    return k < 1 ? 1 : k;
+}
+
+/* The smallest n for which the rule gives a finite bound. */
+static size_t rule_min_n(double tau, double conf)
+{
+    size_t n = etacal_conformal_min_n(tau);
+    while (conf > 0 && rank_rule(n, tau, conf) > n)
+        n++;
+    return n;
+}
+
 /* Method qr: conformalized quantile regression, one-sided (Romano,
  * Patterson & Candes 2019).  Each segment's rows are split at random (seeded)
  * into a fitting part and a calibration part.  On the first, the
@@ -268,7 +285,8 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
                     f += b[j + 2] * cx[(j + 1) * nb + r];
                 scores[r] = cy[r] - f;
             }
-            double corr = etacal_conformal_upper(scores, nb, tau, &k);
+            k = rank_rule(nb, tau, o->confidence);
+            double corr = k <= nb ? etacal_select(scores, nb, k) : INFINITY;
             free(scores);
             sg->k[ti] = k;
             sg->score_q[ti] = corr;
@@ -276,7 +294,7 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
             if (global && k > nb) {
                 rc = etacal_error_set(err, ETACAL_ENUM, etacal_table_source(t),
                                       "method qr: %zu calibration rows; target %g needs at least %zu", nb, tau,
-                                      etacal_conformal_min_n(tau));
+                                      rule_min_n(tau, o->confidence));
                 goto done;
             }
         }
@@ -377,6 +395,11 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
     q->method = opts->method;
     q->nkeys = nkeys;
+    if (!(opts->confidence == 0 || (opts->confidence > 0 && opts->confidence < 1))) {
+        etacal_quotes_destroy(q);
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "confidence must be in (0,1), got %g", opts->confidence);
+    }
+    q->confidence = opts->confidence;
     if ((rc = quotes_set_targets(q, opts->targets, opts->ntargets, err)) != 0)
         goto done;
     q->key_names = calloc(nkeys ? nkeys : 1, sizeof *q->key_names);
@@ -486,9 +509,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     for (size_t g = 0; g < nseg; g++) {
         etacal_segment *sg = &q->segs[g];
         for (size_t ti = 0; ti < q->ntargets; ti++) {
-            size_t k = etacal_conformal_rank(sg->n, q->targets[ti]);
-            if (k < 1)
-                k = 1;
+            size_t k = rank_rule(sg->n, q->targets[ti], opts->confidence);
             sg->k[ti] = k;
             sg->status[ti] = g == 0                 ? ETACAL_OWN_ROW
                              : sg->n < min_rows     ? ETACAL_FALLBACK_FEW_ROWS
@@ -515,8 +536,9 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         if (gl->k[ti] > n) {
             rc = etacal_error_set(err, ETACAL_ENUM, src,
                                   "only %zu rows: a promise for target %g needs at least %zu "
-                                  "calibration rows (rank ceil((n+1)*tau) must not exceed n)",
-                                  n, q->targets[ti], etacal_conformal_min_n(q->targets[ti]));
+                                  "calibration rows (%s must not exceed n)",
+                                  n, q->targets[ti], rule_min_n(q->targets[ti], opts->confidence),
+                                  opts->confidence > 0 ? "the rank with confidence" : "rank ceil((n+1)*tau)");
             goto done;
         }
     cand = malloc((ncand ? ncand : 1) * sizeof *cand);
@@ -621,6 +643,8 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
         snprintf(name, sizeof name, "coef_%s", q->coef_names[j]);
         etacal_csv_put_field(fp, name, strlen(name), ',');
     }
+    if (q->confidence > 0)
+        fputs(",confidence,coverage_mean,coverage_low", fp);
     putc('\n', fp);
     for (size_t r = 0; r < q->nrows; r++) {
         const etacal_quote *row = &q->rows[r];
@@ -640,6 +664,12 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
             etacal_num_format(row->coef[j], num);
             putc(',', fp);
             fputs(num, fp);
+        }
+        if (q->confidence > 0) {
+            etacal_num_format(q->confidence, num);
+            /* the bound rounded down, so that it never claims too much */
+            fprintf(fp, ",%s,%.6f,%.6f", num, etacal_coverage_mean(row->n, row->k),
+                    floor(etacal_coverage_low(row->n, row->k, q->confidence) * 1e6) / 1e6);
         }
         putc('\n', fp);
     }

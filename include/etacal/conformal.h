@@ -44,6 +44,20 @@ double etacal_quantile_type1(double *x, size_t n, double p);
  * for n = 0).  Reorders x.  Stores k in *k_out when not NULL. */
 double etacal_conformal_upper(double *x, size_t n, double tau, size_t *k_out);
 
+/* The rank with confidence (Vovk 2012, "Conditional validity of inductive
+ * conformal predictors"; Angelopoulos & Bates 2021): given the calibration
+ * set, the coverage of s_(k) is Beta(k, n+1-k) distributed, so the smallest
+ * k with P(Bin(n, tau) >= k) <= 1 - conf makes P(coverage >= tau) >= conf
+ * over calibration draws.  Returns n + 1 when no k <= n qualifies (then
+ * tau^n > 1 - conf).  conf in (0,1). */
+size_t etacal_conformal_rank_conf(size_t n, double tau, double conf);
+
+/* The coverage law of s_(k) among n scores, Beta(k, n+1-k): its mean
+ * k/(n+1), and its (1-conf)-quantile, the coverage reached with
+ * probability conf (computed by bisection on GSL's beta distribution). */
+double etacal_coverage_mean(size_t n, size_t k);
+double etacal_coverage_low(size_t n, size_t k, double conf);
+
 #ifdef __cplusplus
 }
 #endif

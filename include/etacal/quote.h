@@ -93,6 +93,7 @@ typedef struct etacal_quotes {
     size_t ncoef;       /* extra covariates (method qr): columns coef_<name> */
     char **coef_names;  /* the covariate names, without the coef_ prefix */
     double *coefs;      /* storage of the rows' coef arrays */
+    double confidence;  /* of the rank rule; 0 for the average-case rank */
     etacal_accuracy accuracy; /* fit only */
 } etacal_quotes;
 
@@ -107,6 +108,10 @@ typedef struct etacal_fit_opts {
     double split;           /* share of each segment's rows for the regression
                                fit, the rest calibrates; 0 means 0.5 */
     unsigned long seed;     /* of the random split */
+    /* 0: the average-case rank ceil((n+1) tau).  In (0,1): the rank that
+     * makes the coverage at least tau with this probability over the
+     * calibration draw (etacal_conformal_rank_conf). */
+    double confidence;
 } etacal_fit_opts;
 
 /* Fits a quote table from the rows of t: actual_col and pred_col are
@@ -121,7 +126,9 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
 
 /* Writes the table as CSV: the key columns, then
  * target,method,n,k,offset_s,slope and, for method qr, one coef_<name>
- * column per extra covariate; one row per segment with a row of its own and
+ * column per extra covariate; with a confidence, also confidence,
+ * coverage_mean and coverage_low (the mean of the coverage law of the bound
+ * and the coverage reached with that confidence); one row per segment with a row of its own and
  * target, global rows first.  Numbers in shortest round-trip form. */
 int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err);
 

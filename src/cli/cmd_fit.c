@@ -29,7 +29,11 @@ static const char help[] =
     "  --split F             method qr: share of each segment's rows for the regression,\n"
     "                        the rest calibrates the correction (default 0.5)\n"
     "  --seed S              method qr: seed of the random split (default 1)\n"
-    "  --min-rows N          a segment with fewer rows uses the global row (default 200)\n"
+    "  --min-rows N          a segment with fewer rows uses the nearest level above\n"
+    "                        (default 200)\n"
+    "  --confidence C        choose each rank so that the on-time rate is at least the\n"
+    "                        target with probability C over the calibration draw, not\n"
+    "                        only on average (Beta law of the coverage)\n"
     "  -o, --output FILE     write the table to FILE (atomically) and the summary to\n"
     "                        stdout; without -o the table goes to stdout, the summary to stderr\n"
     "  --delim D             comma (default), semicolon, tab or pipe\n"
@@ -88,7 +92,8 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
 
     size_t nk = q->nkeys, nt = q->ntargets;
     int add = q->method != ETACAL_METHOD_RATIO;
-    size_t ncols = (nk ? nk : 1) + 2 + nt * (add ? 2 : 1) + 1;
+    int conf = q->confidence > 0;
+    size_t ncols = (nk ? nk : 1) + 2 + nt * ((add ? 2 : 1) + (conf ? 2 : 0)) + 1;
     text_table tt;
     if (tt_init(&tt, ncols) != 0)
         return;
@@ -112,6 +117,16 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
         c++;
         if (add) {
             snprintf(buf[c], sizeof buf[c], "min");
+            cells[c] = buf[c];
+            c++;
+        }
+        if (conf) {
+            char cp[ETACAL_NUM_BUFSZ];
+            etacal_percent_label(q->confidence, cp);
+            snprintf(buf[c], sizeof buf[c], "E cover");
+            cells[c] = buf[c];
+            c++;
+            snprintf(buf[c], sizeof buf[c], "cover@%s%%", cp);
             cells[c] = buf[c];
             c++;
         }
@@ -157,6 +172,23 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
                     snprintf(buf[c], sizeof buf[c], "-");
                 else
                     snprintf(buf[c], sizeof buf[c], "%.2f", v / 60);
+                cells[c] = buf[c];
+                c++;
+            }
+            if (conf) {
+                /* the coverage law of the bound: its mean, and what it
+                 * reaches with the chosen confidence */
+                size_t kk = g->k[ti], nn = g->n;
+                if (q->method == ETACAL_METHOD_QR)
+                    for (size_t r = 0; r < q->nrows; r++)
+                        if (q->rows[r].seg == s && q->rows[r].target == ti)
+                            nn = q->rows[r].n;
+                int fin = kk >= 1 && kk <= nn && isfinite(v);
+                snprintf(buf[c], sizeof buf[c], fin ? "%.4f" : "-", fin ? etacal_coverage_mean(nn, kk) : 0.0);
+                cells[c] = buf[c];
+                c++;
+                snprintf(buf[c], sizeof buf[c], fin ? "%.4f" : "-",
+                         fin ? floor(etacal_coverage_low(nn, kk, q->confidence) * 1e4) / 1e4 : 0.0);
                 cells[c] = buf[c];
                 c++;
             }
@@ -212,7 +244,7 @@ out:
 int cmd_fit(int argc, char **argv)
 {
     enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_DELIM, O_BAD, O_MAXBAD, O_THREADS,
-           O_X, O_SPLIT, O_SEED };
+           O_X, O_SPLIT, O_SEED, O_CONF };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL}, {"pred", required_argument, 0, O_PRED},
         {"by", required_argument, 0, O_BY},         {"target", required_argument, 0, O_TARGET},
@@ -221,6 +253,7 @@ int cmd_fit(int argc, char **argv)
         {"bad-rows", required_argument, 0, O_BAD},  {"max-bad-share", required_argument, 0, O_MAXBAD},
         {"threads", required_argument, 0, O_THREADS}, {"x", required_argument, 0, O_X},
         {"split", required_argument, 0, O_SPLIT},     {"seed", required_argument, 0, O_SEED},
+        {"confidence", required_argument, 0, O_CONF},
         {"quiet", no_argument, 0, 'q'},             {"help", no_argument, 0, 'h'},
         {0, 0, 0, 0}};
     const char *actual = NULL, *pred = NULL, *output = NULL;
@@ -228,7 +261,7 @@ int cmd_fit(int argc, char **argv)
     char *keys[MAX_KEYS];
     char *xs[ETACAL_QR_MAX_COVARIATES];
     size_t nkeys = 0, ntargets = 0, min_rows = 200, nx = 0, seed = 1;
-    double split = 0.5;
+    double split = 0.5, confidence = 0;
     double targets[MAX_TARGETS];
     int method = ETACAL_METHOD_ADD, quiet = 0;
     etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
@@ -285,6 +318,10 @@ int cmd_fit(int argc, char **argv)
         case O_SEED:
             if (parse_size(optarg, &seed) != 0)
                 return usage_error("fit", "--seed takes a whole number");
+            break;
+        case O_CONF:
+            if (parse_share(optarg, &confidence) != 0 || !(confidence > 0 && confidence < 1))
+                return usage_error("fit", "--confidence takes a probability in (0,1), such as 0.95");
             break;
         case O_THREADS:
             if (strcmp(optarg, "auto") == 0)
@@ -368,7 +405,7 @@ int cmd_fit(int argc, char **argv)
     progress_end(&pg);
     if (rc)
         return report_error(&err);
-    etacal_fit_opts fo = {method, targets, ntargets, min_rows, x_cols, nx, split, (unsigned long)seed};
+    etacal_fit_opts fo = {method, targets, ntargets, min_rows, x_cols, nx, split, (unsigned long)seed, confidence};
     rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err);
     if (rc)
         goto fail;
