@@ -5,6 +5,7 @@
  *   refcalc rank N TAU                    ceil((N+1) TAU)
  *   refcalc conformal TAU    < numbers   the one-sided split-conformal bound
  *   refcalc wilson|exact CONF < "x n" lines   binomial intervals, "lo hi" per line
+ *   refcalc rankconf CONF < "n tau" lines    the rank with confidence, "k mean low"
  *   refcalc qr TAU K SE [PRE] < "y x1 .. xK" lines   quantile regression: prints
  *           "coef c0 .. cK", "se s0 .. sK", "objective", "iterations", "bandwidth";
  *           SE is none, powell or boot (200 reps, seed 1); PRE 1 forces
@@ -87,6 +88,16 @@ int main(int argc, char **argv)
                 return 1;
             }
             printf("%.17g %.17g\n", lo, hi);
+        }
+        return 0;
+    }
+    if (argc == 3 && strcmp(argv[1], "rankconf") == 0) {
+        double conf = arg(argv[2]), tau;
+        size_t n;
+        while (scanf("%zu %lf", &n, &tau) == 2) {
+            size_t k = etacal_conformal_rank_conf(n, tau, conf);
+            printf("%zu %.17g %.17g\n", k, k <= n ? etacal_coverage_mean(n, k) : 1.0,
+                   k <= n ? etacal_coverage_low(n, k, conf) : 1.0);
         }
         return 0;
     }
