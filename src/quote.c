@@ -182,7 +182,7 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
     }
     double split = o->split > 0 ? o->split : 0.5;
     /* the rows of each segment: one counting sort per level */
-    uint32_t *idx = malloc((nk ? nk : 1) * n * sizeof *idx);
+    uint32_t *idx = malloc((nk ? nk : 1) * n * sizeof *idx), *gidx = malloc(n * sizeof *gidx);
     size_t *start = calloc(nseg + 1, sizeof *start), *fill = calloc(nseg, sizeof *fill);
     size_t *count = calloc(nseg, sizeof *count), *nbseg = calloc(nseg, sizeof *nbseg);
     size_t lvl_off[ETACAL_QR_MAX_COVARIATES + 1] = {0};
@@ -190,13 +190,17 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
     double *buf = malloc(n * (p + 1) * sizeof *buf);
     double *coef = malloc(nseg * q->ntargets * p * sizeof *coef);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    if (!idx || !start || !fill || !count || !nbseg || !fitpart || !buf || !coef || !rng) {
+    if (!idx || !gidx || !start || !fill || !count || !nbseg || !fitpart || !buf || !coef || !rng) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
         goto done;
     }
     gsl_rng_set(rng, o->seed ? o->seed : 1);
+    size_t nall = 0;
     for (size_t i = 0; i < n; i++) {
         fitpart[i] = gsl_rng_uniform(rng) < split;
+        if (o->mask && !o->mask[i])
+            continue;
+        gidx[nall++] = (uint32_t)i;
         for (size_t L = 1; L <= nk; L++)
             count[seghier_row(hs, L, i)]++;
     }
@@ -205,20 +209,23 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
         start[g] = lvl_off[L];
         lvl_off[L] += count[g];
     }
-    for (size_t i = 0; i < n; i++)
+    for (size_t i = 0; i < n; i++) {
+        if (o->mask && !o->mask[i])
+            continue;
         for (size_t L = 1; L <= nk; L++) {
             uint32_t g = seghier_row(hs, L, i);
             idx[(L - 1) * n + start[g] + fill[g]++] = (uint32_t)i;
         }
+    }
     for (size_t g = 0; g < nseg; g++) {
         etacal_segment *sg = &q->segs[g];
         int global = g == 0;
         /* rows of the segment: all rows for the global one */
-        const uint32_t *rows = global ? NULL : idx + (hs->level[g] - 1) * n + start[g];
-        size_t lo = 0, hi = global ? n : count[g];
+        const uint32_t *rows = global ? gidx : idx + (hs->level[g] - 1) * n + start[g];
+        size_t lo = 0, hi = global ? nall : count[g];
         size_t na = 0, nb = 0;
         for (size_t r = lo; r < hi; r++)
-            na += fitpart[global ? r : rows[r]];
+            na += fitpart[rows[r]];
         nb = (hi - lo) - na;
         nbseg[g] = nb;
         if (!global && (sg->n < min_rows || na <= p)) {
@@ -233,7 +240,7 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
         double *fy = buf, *fx = buf + na, *cy = buf + na * (p + 1), *cx = cy + nb;
         size_t wa = 0, wb = 0;
         for (size_t r = lo; r < hi; r++) {
-            size_t i = global ? r : rows[r];
+            size_t i = rows[r];
             if (fitpart[i]) {
                 fy[wa] = y[i];
                 fx[wa] = pr[i];
@@ -346,6 +353,7 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
         q->rows[rr].n = nbseg[q->rows[rr].seg];
 done:
     free(idx);
+    free(gidx);
     free(start);
     free(fill);
     free(count);
@@ -370,7 +378,14 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
 
     size_t n = etacal_table_rows(t);
     const char *src = etacal_table_source(t);
-    if (n == 0)
+    const unsigned char *mask = opts->mask;
+    size_t nfit = n;
+    if (mask) {
+        nfit = 0;
+        for (size_t i = 0; i < n; i++)
+            nfit += mask[i] != 0;
+    }
+    if (nfit == 0)
         return etacal_error_set(err, ETACAL_ENUM, src, "no data rows with both an actual and a prediction");
     const double *y = etacal_table_num(t, actual_col);
     const double *p = etacal_table_num(t, pred_col);
@@ -437,6 +452,8 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     size_t on_time = 0;
     double lo_s = INFINITY, hi_s = -INFINITY;
     for (size_t i = 0; i < n; i++) {
+        if (mask && !mask[i])
+            continue;
         double a = y[i], pr = p[i];
         if (!isfinite(a) || !isfinite(pr)) {
             rc = etacal_error_set(err, ETACAL_EINVAL, src, "non-finite actual or prediction in data row %zu", i + 1);
@@ -456,15 +473,17 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         lo_s = sc < lo_s ? sc : lo_s;
         hi_s = sc > hi_s ? sc : hi_s;
     }
-    q->accuracy.n = n;
-    q->accuracy.rmse = sqrt(ksum_value(&sq) / (double)n);
-    q->accuracy.mae = ksum_value(&ab) / (double)n;
-    q->accuracy.mean_error = ksum_value(&me) / (double)n;
+    q->accuracy.n = nfit;
+    q->accuracy.rmse = sqrt(ksum_value(&sq) / (double)nfit);
+    q->accuracy.mae = ksum_value(&ab) / (double)nfit;
+    q->accuracy.mean_error = ksum_value(&me) / (double)nfit;
     q->accuracy.on_time = on_time;
     etacal_segment *gl = &q->segs[0];
 
     if (q->method == ETACAL_METHOD_QR) {
         for (size_t i = 0; i < n; i++) {
+            if (mask && !mask[i])
+                continue;
             size_t hit = y[i] <= p[i];
             for (uint32_t g = seghier_row(&hs, nkeys, i), L = (uint32_t)nkeys + 1; L-- > 0;
                  g = (uint32_t)hs.parent[g]) {
@@ -496,6 +515,8 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     double width = hi_s - lo_s;
     double scale0 = width > 0 && isfinite(width) ? (double)B / width : 0;
     for (size_t i = 0; i < n; i++) {
+        if (mask && !mask[i])
+            continue;
         double sc = ratio ? y[i] / p[i] : y[i] - p[i];
         size_t hit = y[i] <= p[i], b = bucket(sc, lo_s, scale0, B);
         for (uint32_t g = seghier_row(&hs, nkeys, i), L = (uint32_t)nkeys + 1; L-- > 0;
@@ -533,11 +554,11 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         }
     }
     for (size_t ti = 0; ti < q->ntargets; ti++)
-        if (gl->k[ti] > n) {
+        if (gl->k[ti] > nfit) {
             rc = etacal_error_set(err, ETACAL_ENUM, src,
                                   "only %zu rows: a promise for target %g needs at least %zu "
                                   "calibration rows (%s must not exceed n)",
-                                  n, q->targets[ti], rule_min_n(q->targets[ti], opts->confidence),
+                                  nfit, q->targets[ti], rule_min_n(q->targets[ti], opts->confidence),
                                   opts->confidence > 0 ? "the rank with confidence" : "rank ceil((n+1)*tau)");
             goto done;
         }
@@ -545,6 +566,8 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     if (!cand)
         goto nomem;
     for (size_t i = 0; i < n; i++) {
+        if (mask && !mask[i])
+            continue;
         double sc = ratio ? y[i] / p[i] : y[i] - p[i];
         size_t bg = bucket(sc, lo_s, scale0, B);
         for (uint32_t g = seghier_row(&hs, nkeys, i), L = (uint32_t)nkeys + 1; L-- > 0;

@@ -10,6 +10,7 @@
 
 #include "etacal/error.h"
 #include "etacal/numparse.h"
+#include "etacal/timeparse.h"
 #include "etacal/io.h"
 #include "etacal/conformal.h"
 #include "etacal/table.h"

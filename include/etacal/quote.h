@@ -112,7 +112,37 @@ typedef struct etacal_fit_opts {
      * makes the coverage at least tau with this probability over the
      * calibration draw (etacal_conformal_rank_conf). */
     double confidence;
+    /* Rows to fit on: mask[i] != 0 (NULL: every row), say to hold the other
+     * rows out for etacal_quotes_holdout. */
+    const unsigned char *mask;
 } etacal_fit_opts;
+
+/* On-time rates of a quote table on held-out rows, overall (segs[0]) and
+ * per segment of the table at its most specific level (the row's own
+ * combination of keys).  n[g] rows, hits[g * ntargets + t] on time with
+ * the promise of target t, bare[g] on time with the bare prediction.
+ * Rows whose combination is not a segment of the table count overall only. */
+typedef struct etacal_holdout {
+    size_t nsegs, ntargets;
+    size_t *n, *hits, *bare;
+} etacal_holdout;
+
+/* Applies q to the rows of t with mask[i] != 0 (as etacal_apply_csv would,
+ * without rounding) and counts who arrives by the promise.  key_cols,
+ * x_cols as for the fit (the table's key and covariate columns, in q's
+ * order).  Fills *out (free with etacal_holdout_free). */
+int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t actual_col, size_t pred_col,
+                          const size_t *key_cols, const size_t *x_cols, const unsigned char *mask,
+                          etacal_holdout *out, etacal_error *err);
+void etacal_holdout_free(etacal_holdout *h);
+
+/* Which rows to hold out: with time_col >= 0 (a numeric column, such as
+ * one read with ETACAL_NUM_TIME) the latest share of rows by time (rows at
+ * the cut-off time stay in the fit), else a seeded random share.  mask[i]
+ * = 1 for the rows to fit on, 0 for the held-out ones; returns how many
+ * are held out (0 if none could be, as with share 0). */
+size_t etacal_holdout_mask(const etacal_table *t, long time_col, double share, unsigned long seed,
+                           unsigned char *mask);
 
 /* Fits a quote table from the rows of t: actual_col and pred_col are
  * numeric columns of t (no NaN: read them with ETACAL_NUM_SKIP_MISSING),

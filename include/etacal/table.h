@@ -27,7 +27,9 @@ enum {
     ETACAL_NUM_SKIP_MISSING = 1, /* a missing value leaves the row out (counted) */
     ETACAL_NUM_NONNEG = 2,       /* a negative value is a data error */
     ETACAL_NUM_POSITIVE = 4,     /* a value <= 0 is a data error */
-    ETACAL_NUM_FINITE = 8        /* inf is a data error */
+    ETACAL_NUM_FINITE = 8,       /* inf is a data error */
+    ETACAL_NUM_TIME = 16         /* a timestamp (etacal_time_parse): stored as
+                                    seconds since the Unix epoch */
 };
 
 typedef struct etacal_colspec {

@@ -31,6 +31,10 @@ static const char help[] =
     "  --seed S              method qr: seed of the random split (default 1)\n"
     "  --min-rows N          a segment with fewer rows uses the nearest level above\n"
     "                        (default 200)\n"
+    "  --holdout F           fit on the other rows and report the on-time rate reached\n"
+    "                        on this share of them, overall and per segment (Wilson 95%)\n"
+    "  --time COL            timestamps (ISO 8601 or Unix seconds): --holdout takes the\n"
+    "                        latest rows instead of a random share (--seed)\n"
     "  --confidence C        choose each rank so that the on-time rate is at least the\n"
     "                        target with probability C over the calibration draw, not\n"
     "                        only on average (Beta law of the coverage)\n"
@@ -241,10 +245,73 @@ out:
     tt_free(&tt);
 }
 
+static void rate_cell(char *buf, size_t n, size_t hits, size_t total)
+{
+    double lo, hi;
+    etacal_error e;
+    if (total == 0 || etacal_binom_wilson(hits, total, 0.95, &lo, &hi, &e) != ETACAL_OK)
+        snprintf(buf, n, "-");
+    else
+        snprintf(buf, n, "%.2f%% (%zu/%zu) %.4f-%.4f", 100.0 * (double)hits / (double)total, hits, total, lo, hi);
+}
+
+static void print_holdout(FILE *fp, const etacal_quotes *q, const etacal_holdout *h, size_t held, size_t n,
+                          double share, const char *timecol)
+{
+    char sh[ETACAL_NUM_BUFSZ];
+    etacal_percent_label(share, sh);
+    fprintf(fp, "\nholdout: %zu of %zu rows held out (%s %s%%%s%s), the table fitted on the other %zu\n", held, n,
+            timecol ? "the latest" : "a random", sh, timecol ? " by " : "", timecol ? timecol : "", n - held);
+    fprintf(fp, "on time on the held-out rows, with Wilson 95%% intervals:\n");
+    size_t nk = q->nkeys ? q->nkeys : 1, nt = q->ntargets;
+    size_t ncols = nk + 1 + nt + 1;
+    text_table tt;
+    if (tt_init(&tt, ncols) != 0)
+        return;
+    const char *cells[MAX_KEYS + ETACAL_APPLY_MAX_TARGETS + 3];
+    char buf[ETACAL_APPLY_MAX_TARGETS + 2][96];
+    size_t c = 0;
+    for (size_t j = 0; j < q->nkeys; j++)
+        cells[c++] = q->key_names[j];
+    if (!q->nkeys)
+        cells[c++] = "segment";
+    cells[c++] = "n";
+    for (size_t ti = 0; ti < nt; ti++) {
+        char p[ETACAL_NUM_BUFSZ];
+        etacal_percent_label(q->targets[ti], p);
+        snprintf(buf[ti], sizeof buf[ti], "promise@%s%%", p);
+        cells[c++] = buf[ti];
+    }
+    cells[c++] = "bare prediction";
+    tt_add(&tt, cells);
+    tt.right[nk] = 1;
+    for (size_t g = 0; g < h->nsegs; g++) {
+        if (g && (q->segs[g].level != q->nkeys || h->n[g] == 0))
+            continue; /* the most specific segments, and the overall figure */
+        c = 0;
+        for (size_t j = 0; j < q->nkeys; j++)
+            cells[c++] = q->segs[g].keys[j];
+        if (!q->nkeys)
+            cells[c++] = "*";
+        char nb[32];
+        snprintf(nb, sizeof nb, "%zu", h->n[g]);
+        cells[c++] = nb;
+        for (size_t ti = 0; ti < nt; ti++) {
+            rate_cell(buf[ti], sizeof buf[ti], h->hits[g * nt + ti], h->n[g]);
+            cells[c++] = buf[ti];
+        }
+        rate_cell(buf[nt], sizeof buf[nt], h->bare[g], h->n[g]);
+        cells[c++] = buf[nt];
+        tt_add(&tt, cells);
+    }
+    tt_print(&tt, fp);
+    tt_free(&tt);
+}
+
 int cmd_fit(int argc, char **argv)
 {
     enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_DELIM, O_BAD, O_MAXBAD, O_THREADS,
-           O_X, O_SPLIT, O_SEED, O_CONF };
+           O_X, O_SPLIT, O_SEED, O_CONF, O_HOLDOUT, O_TIME };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL}, {"pred", required_argument, 0, O_PRED},
         {"by", required_argument, 0, O_BY},         {"target", required_argument, 0, O_TARGET},
@@ -253,7 +320,8 @@ int cmd_fit(int argc, char **argv)
         {"bad-rows", required_argument, 0, O_BAD},  {"max-bad-share", required_argument, 0, O_MAXBAD},
         {"threads", required_argument, 0, O_THREADS}, {"x", required_argument, 0, O_X},
         {"split", required_argument, 0, O_SPLIT},     {"seed", required_argument, 0, O_SEED},
-        {"confidence", required_argument, 0, O_CONF},
+        {"confidence", required_argument, 0, O_CONF}, {"holdout", required_argument, 0, O_HOLDOUT},
+        {"time", required_argument, 0, O_TIME},
         {"quiet", no_argument, 0, 'q'},             {"help", no_argument, 0, 'h'},
         {0, 0, 0, 0}};
     const char *actual = NULL, *pred = NULL, *output = NULL;
@@ -261,7 +329,8 @@ int cmd_fit(int argc, char **argv)
     char *keys[MAX_KEYS];
     char *xs[ETACAL_QR_MAX_COVARIATES];
     size_t nkeys = 0, ntargets = 0, min_rows = 200, nx = 0, seed = 1;
-    double split = 0.5, confidence = 0;
+    double split = 0.5, confidence = 0, holdout = 0;
+    const char *timecol = NULL;
     double targets[MAX_TARGETS];
     int method = ETACAL_METHOD_ADD, quiet = 0;
     etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
@@ -319,6 +388,11 @@ int cmd_fit(int argc, char **argv)
             if (parse_size(optarg, &seed) != 0)
                 return usage_error("fit", "--seed takes a whole number");
             break;
+        case O_HOLDOUT:
+            if (parse_share(optarg, &holdout) != 0 || !(holdout > 0 && holdout < 1))
+                return usage_error("fit", "--holdout takes a share in (0,1), such as 0.2");
+            break;
+        case O_TIME: timecol = optarg; break;
         case O_CONF:
             if (parse_share(optarg, &confidence) != 0 || !(confidence > 0 && confidence < 1))
                 return usage_error("fit", "--confidence takes a probability in (0,1), such as 0.95");
@@ -376,12 +450,24 @@ int cmd_fit(int argc, char **argv)
         targets[ntargets++] = 0.9;
     const char *path = argv[optind];
 
-    etacal_colspec cols[2 + MAX_KEYS + ETACAL_QR_MAX_COVARIATES];
+    etacal_colspec cols[3 + MAX_KEYS + ETACAL_QR_MAX_COVARIATES];
     unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
     cols[0] = (etacal_colspec){actual, ETACAL_COL_NUM, flags, "duration"};
     cols[1] = (etacal_colspec){pred, ETACAL_COL_NUM,
                                flags | (method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u),
                                "prediction"};
+    if (timecol && !holdout)
+        return usage_error("fit", "--time goes with --holdout");
+    if (timecol) {
+        if (strcmp(timecol, actual) == 0 || strcmp(timecol, pred) == 0)
+            return usage_error("fit", "--time '%s' is already the actual or the prediction", timecol);
+        for (size_t i = 0; i < nkeys; i++)
+            if (strcmp(timecol, keys[i]) == 0)
+                return usage_error("fit", "'%s' cannot be both a key and the time", timecol);
+        for (size_t i = 0; i < nx; i++)
+            if (strcmp(timecol, xs[i]) == 0)
+                return usage_error("fit", "'%s' cannot be both a covariate and the time", timecol);
+    }
     size_t key_cols[MAX_KEYS], x_cols[ETACAL_QR_MAX_COVARIATES];
     for (size_t j = 0; j < nkeys; j++) {
         cols[2 + j] = (etacal_colspec){keys[j], ETACAL_COL_KEY, 0, NULL};
@@ -401,14 +487,47 @@ int cmd_fit(int argc, char **argv)
     etacal_table *t = NULL;
     etacal_quotes *q = NULL;
     etacal_outfile of = {0};
-    int rc = etacal_table_read_csv(path, cols, 2 + nkeys + nx, &ro, &t, &err);
+    size_t ncol = 2 + nkeys + nx;
+    long time_col = -1;
+    if (timecol) {
+        cols[ncol] = (etacal_colspec){timecol, ETACAL_COL_NUM,
+                                      ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_TIME, "timestamp"};
+        time_col = (long)ncol++;
+    }
+    unsigned char *mask = NULL;
+    int rc = etacal_table_read_csv(path, cols, ncol, &ro, &t, &err);
     progress_end(&pg);
     if (rc)
         return report_error(&err);
-    etacal_fit_opts fo = {method, targets, ntargets, min_rows, x_cols, nx, split, (unsigned long)seed, confidence};
+    etacal_fit_opts fo = {method, targets, ntargets, min_rows, x_cols, nx, split, (unsigned long)seed, confidence, NULL};
+    size_t held = 0;
+    etacal_holdout ho = {0};
+    if (holdout > 0) {
+        size_t n = etacal_table_rows(t);
+        mask = malloc(n ? n : 1);
+        if (!mask) {
+            etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+            goto fail;
+        }
+        held = etacal_holdout_mask(t, time_col, holdout, (unsigned long)seed, mask);
+        if (held == 0 || held == n) {
+            etacal_error_set(&err, ETACAL_ENUM, path, "--holdout %g leaves %s rows to %s", holdout,
+                             held == 0 ? "no" : "all", held == 0 ? "hold out" : "fit on");
+            goto fail;
+        }
+        fo.mask = mask;
+    }
     rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err);
     if (rc)
         goto fail;
+    if (mask) {
+        size_t n = etacal_table_rows(t);
+        for (size_t i = 0; i < n; i++)
+            mask[i] = !mask[i];
+        rc = etacal_quotes_holdout(q, t, 0, 1, key_cols, x_cols, mask, &ho, &err);
+        if (rc)
+            goto fail;
+    }
     rc = etacal_outfile_open(&of, output ? output : "-", &err);
     if (rc)
         goto fail;
@@ -419,12 +538,19 @@ int cmd_fit(int argc, char **argv)
         etacal_outfile_abort(&of);
         goto fail;
     }
-    if (!quiet)
-        print_summary(output ? stdout : stderr, path, pred, t, q, min_rows);
+    if (!quiet) {
+        FILE *fp = output ? stdout : stderr;
+        print_summary(fp, path, pred, t, q, min_rows);
+        if (mask)
+            print_holdout(fp, q, &ho, held, etacal_table_rows(t), holdout, timecol);
+    }
+    etacal_holdout_free(&ho);
+    free(mask);
     etacal_quotes_destroy(q);
     etacal_table_destroy(t);
     return 0;
 fail:
+    free(mask);
     etacal_quotes_destroy(q);
     etacal_table_destroy(t);
     return report_error(&err);

@@ -1,0 +1,24 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* timeparse.h: timestamps as seconds since the Unix epoch. */
+#ifndef ETACAL_TIMEPARSE_H
+#define ETACAL_TIMEPARSE_H
+
+#include <stddef.h>
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* Parses the len bytes at s as Unix seconds (a decimal number) or an ISO
+ * 8601 date-time: YYYY-MM-DD, optionally followed by 'T' or a space and
+ * hh:mm, hh:mm:ss or hh:mm:ss.fff, and by 'Z' or an offset +hh:mm, +hhmm or
+ * +hh (also '-').  Without a zone the time is taken as UTC.  Fields are
+ * checked (month 1-12, the day within its month, leap years, hour 0-23,
+ * minute 0-59, second 0-60).  Returns ETACAL_NUM_VALUE with the seconds in
+ * *out, ETACAL_NUM_MISSING for an empty/NA cell, or ETACAL_NUM_BAD. */
+int etacal_time_parse(const char *s, size_t len, double *out);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

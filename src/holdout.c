@@ -1,0 +1,156 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* holdout.c: how a quote table does on rows it was not fitted on: each
+ * held-out row gets the promise that etacal apply would give it (the most
+ * specific matching row), and the rows on time are counted overall and per
+ * segment. */
+#include "internal.h"
+
+#include <gsl/gsl_rng.h>
+#include <stdlib.h>
+#include <string.h>
+
+void etacal_holdout_free(etacal_holdout *h)
+{
+    if (!h)
+        return;
+    free(h->n);
+    free(h->hits);
+    free(h->bare);
+    memset(h, 0, sizeof *h);
+}
+
+/* "k1\x1fk2\x1f" of the first `level` keys of a segment, "*" for the rest. */
+static size_t join(char *buf, size_t cap, const char *const *keys, size_t nkeys, size_t level)
+{
+    size_t w = 0;
+    for (size_t j = 0; j < nkeys; j++) {
+        const char *k = j < level ? keys[j] : "*";
+        size_t len = strlen(k);
+        if (w + len + 1 >= cap)
+            return SIZE_MAX;
+        memcpy(buf + w, k, len);
+        w += len;
+        buf[w++] = '\x1f';
+    }
+    return w;
+}
+
+int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t actual_col, size_t pred_col,
+                          const size_t *key_cols, const size_t *x_cols, const unsigned char *mask,
+                          etacal_holdout *out, etacal_error *err)
+{
+    int rc = ETACAL_OK;
+    memset(out, 0, sizeof *out);
+    strdict d;
+    strdict_init(&d);
+    long *segrow = NULL;
+    size_t nt = q->ntargets, ns = q->nsegs;
+    out->nsegs = ns;
+    out->ntargets = nt;
+    out->n = calloc(ns, sizeof *out->n);
+    out->hits = calloc(ns * nt, sizeof *out->hits);
+    out->bare = calloc(ns, sizeof *out->bare);
+    segrow = malloc(ns * nt * sizeof *segrow);
+    char key[4096];
+    if (!out->n || !out->hits || !out->bare || !segrow)
+        goto nomem;
+    for (size_t i = 0; i < ns * nt; i++)
+        segrow[i] = -1;
+    for (size_t g = 0; g < ns; g++) {
+        size_t len = join(key, sizeof key, (const char *const *)q->segs[g].keys, q->nkeys, q->nkeys);
+        uint32_t id;
+        if (len == SIZE_MAX || strdict_intern(&d, key, len, &id) != 0)
+            goto nomem;
+    }
+    for (size_t r = 0; r < q->nrows; r++)
+        segrow[q->rows[r].seg * nt + q->rows[r].target] = (long)r;
+    const double *y = etacal_table_num(t, actual_col), *p = etacal_table_num(t, pred_col);
+    const char *texts[ETACAL_QR_MAX_COVARIATES + 1];
+    size_t n = etacal_table_rows(t);
+    for (size_t i = 0; i < n; i++) {
+        if (mask && !mask[i])
+            continue;
+        for (size_t j = 0; j < q->nkeys; j++)
+            texts[j] = etacal_table_key_text(t, key_cols[j], etacal_table_key_id(t, key_cols[j], i));
+        /* the row's own segment, if the table has it */
+        uint32_t own = 0;
+        size_t len = join(key, sizeof key, texts, q->nkeys, q->nkeys);
+        int has_own = len != SIZE_MAX && q->nkeys && strdict_find(&d, key, len, &own);
+        size_t hit_bare = y[i] <= p[i];
+        out->n[0]++;
+        out->bare[0] += hit_bare;
+        if (has_own && own) {
+            out->n[own]++;
+            out->bare[own] += hit_bare;
+        }
+        for (size_t ti = 0; ti < nt; ti++) {
+            long row = -1;
+            for (size_t level = q->nkeys + 1; level-- > 0 && row < 0;) {
+                uint32_t g;
+                len = join(key, sizeof key, texts, q->nkeys, level);
+                if (len != SIZE_MAX && strdict_find(&d, key, len, &g))
+                    row = segrow[(size_t)g * nt + ti];
+            }
+            if (row < 0) {
+                rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "the quote table has no global row");
+                goto done;
+            }
+            const etacal_quote *qr = &q->rows[row];
+            double v = qr->offset_s + qr->slope * p[i];
+            for (size_t j = 0; j < q->ncoef; j++)
+                v += qr->coef[j] * etacal_table_num(t, x_cols[j])[i];
+            size_t hit = y[i] <= v;
+            out->hits[ti] += hit;
+            if (has_own && own)
+                out->hits[(size_t)own * nt + ti] += hit;
+        }
+    }
+    goto done;
+nomem:
+    rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+done:
+    strdict_free(&d);
+    free(segrow);
+    if (rc)
+        etacal_holdout_free(out);
+    return rc;
+}
+
+size_t etacal_holdout_mask(const etacal_table *t, long time_col, double share, unsigned long seed,
+                           unsigned char *mask)
+{
+    size_t n = etacal_table_rows(t), held = 0;
+    for (size_t i = 0; i < n; i++)
+        mask[i] = 1;
+    if (!(share > 0 && share < 1) || n < 2)
+        return 0;
+    if (time_col >= 0) {
+        const double *tm = etacal_table_num(t, (size_t)time_col);
+        double *c = malloc(n * sizeof *c);
+        if (!tm || !c) {
+            free(c);
+            return 0;
+        }
+        memcpy(c, tm, n * sizeof *c);
+        /* the cut-off: the type-1 quantile at 1 - share */
+        double cut = etacal_quantile_type1(c, n, 1 - share);
+        free(c);
+        for (size_t i = 0; i < n; i++)
+            if (tm[i] > cut) {
+                mask[i] = 0;
+                held++;
+            }
+        return held;
+    }
+    gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+    if (!r)
+        return 0;
+    gsl_rng_set(r, seed ? seed : 1);
+    for (size_t i = 0; i < n; i++)
+        if (gsl_rng_uniform(r) < share) {
+            mask[i] = 0;
+            held++;
+        }
+    gsl_rng_free(r);
+    return held;
+}
