@@ -138,9 +138,25 @@ static size_t bucket(double x, double lo, double scale, size_t B)
 /* One order statistic to find: segment g, target ti. */
 typedef struct job {
     size_t bucket; /* SIZE_MAX: k > n, no finite bound */
-    size_t rank;   /* rank within the bucket */
+    size_t rank;   /* rank within the bucket (weighted: rows below the bucket) */
     size_t cap, used, off;
+    double need;   /* weighted: the weight still needed within the bucket */
 } job;
+
+typedef struct wpair {
+    double s, w;
+} wpair;
+
+static int cmp_wpair(const void *a, const void *b)
+{
+    double x = ((const wpair *)a)->s, y = ((const wpair *)b)->s;
+    return (x > y) - (x < y);
+}
+
+/* Sums of weights are compared with a relative slack of 1e-12, so that
+ * equal weights give exactly the unweighted rank (tau (n+1) in floating
+ * point can exceed the whole number it stands for). */
+#define WSLACK 1e-12
 
 /* The rank of the bound for n scores at tau: average case, or with
  * confidence. */
@@ -371,7 +387,8 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
 {
     int rc = ETACAL_OK;
     size_t *hist = NULL;
-    double *cand = NULL;
+    double *cand = NULL, *whist = NULL, *wseg = NULL;
+    wpair *wcand = NULL;
     job *jobs = NULL;
     seghier hs = {0};
     *out = NULL;
@@ -415,6 +432,12 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "confidence must be in (0,1), got %g", opts->confidence);
     }
     q->confidence = opts->confidence;
+    const double *wts = opts->weights;
+    if (wts && (opts->confidence > 0 || opts->method == ETACAL_METHOD_QR)) {
+        etacal_quotes_destroy(q);
+        return etacal_error_set(err, ETACAL_EINVAL, NULL,
+                                "recency weights go with methods add and ratio, without a confidence");
+    }
     if ((rc = quotes_set_targets(q, opts->targets, opts->ntargets, err)) != 0)
         goto done;
     q->key_names = calloc(nkeys ? nkeys : 1, sizeof *q->key_names);
@@ -512,6 +535,12 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     jobs = calloc(njobs, sizeof *jobs);
     if (!hist || !jobs)
         goto nomem;
+    if (wts) {
+        whist = calloc(nseg * B, sizeof *whist);
+        wseg = calloc(nseg, sizeof *wseg);
+        if (!whist || !wseg)
+            goto nomem;
+    }
     double width = hi_s - lo_s;
     double scale0 = width > 0 && isfinite(width) ? (double)B / width : 0;
     for (size_t i = 0; i < n; i++) {
@@ -524,6 +553,10 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
             q->segs[g].n++;
             q->segs[g].bare_hits += hit;
             hist[(size_t)g * B + b]++;
+            if (wts) {
+                whist[(size_t)g * B + b] += wts[i];
+                wseg[g] += wts[i];
+            }
         }
     }
     size_t ncand = 0;
@@ -531,6 +564,37 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         etacal_segment *sg = &q->segs[g];
         for (size_t ti = 0; ti < q->ntargets; ti++) {
             size_t k = rank_rule(sg->n, q->targets[ti], opts->confidence);
+            if (wts) {
+                /* weighted: the mass tau (1 + W) must be reached by the
+                 * calibration weights, else the bound is +infinity */
+                double need = q->targets[ti] * (1 + wseg[g]);
+                job *jw = &jobs[g * q->ntargets + ti];
+                if (sg->n == 0 || wseg[g] < need * (1 - WSLACK)) {
+                    sg->k[ti] = sg->n + 1;
+                    sg->status[ti] = g == 0 ? ETACAL_OWN_ROW
+                                     : sg->n < min_rows ? ETACAL_FALLBACK_FEW_ROWS
+                                                        : ETACAL_FALLBACK_RANK;
+                    jw->bucket = SIZE_MAX;
+                    sg->score_q[ti] = INFINITY;
+                    continue;
+                }
+                const double *wh = whist + g * B;
+                const size_t *h = hist + g * B;
+                double cumw = 0;
+                size_t cum = 0, b = 0;
+                while (b + 1 < B && cumw + wh[b] < need * (1 - WSLACK)) {
+                    cumw += wh[b];
+                    cum += h[b++];
+                }
+                jw->bucket = b;
+                jw->rank = cum;
+                jw->need = need - cumw;
+                jw->cap = h[b];
+                jw->off = ncand;
+                ncand += h[b];
+                sg->status[ti] = g == 0 ? ETACAL_OWN_ROW : sg->n < min_rows ? ETACAL_FALLBACK_FEW_ROWS : ETACAL_OWN_ROW;
+                continue;
+            }
             sg->k[ti] = k;
             sg->status[ti] = g == 0                 ? ETACAL_OWN_ROW
                              : sg->n < min_rows     ? ETACAL_FALLBACK_FEW_ROWS
@@ -554,6 +618,14 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         }
     }
     for (size_t ti = 0; ti < q->ntargets; ti++)
+        if (wts && isinf(gl->score_q[ti])) {
+            rc = etacal_error_set(err, ETACAL_ENUM, src,
+                                  "the recency weights of the %zu rows add up to %g, too little for a "
+                                  "finite promise at target %g (they must reach tau/(1-tau))",
+                                  nfit, wseg[0], q->targets[ti]);
+            goto done;
+        }
+    for (size_t ti = 0; ti < q->ntargets && !wts; ti++)
         if (gl->k[ti] > nfit) {
             rc = etacal_error_set(err, ETACAL_ENUM, src,
                                   "only %zu rows: a promise for target %g needs at least %zu "
@@ -563,7 +635,9 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
             goto done;
         }
     cand = malloc((ncand ? ncand : 1) * sizeof *cand);
-    if (!cand)
+    if (wts)
+        wcand = malloc((ncand ? ncand : 1) * sizeof *wcand);
+    if (!cand || (wts && !wcand))
         goto nomem;
     for (size_t i = 0; i < n; i++) {
         if (mask && !mask[i])
@@ -574,15 +648,31 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
              g = (uint32_t)hs.parent[g]) {
             job *jg = &jobs[(size_t)g * q->ntargets];
             for (size_t ti = 0; ti < q->ntargets; ti++)
-                if (jg[ti].bucket == bg)
+                if (jg[ti].bucket == bg) {
+                    if (wts)
+                        wcand[jg[ti].off + jg[ti].used] = (wpair){sc, wts[i]};
                     cand[jg[ti].off + jg[ti].used++] = sc;
+                }
         }
     }
     for (size_t g = 0; g < nseg; g++)
         for (size_t ti = 0; ti < q->ntargets; ti++) {
             job *jb = &jobs[g * q->ntargets + ti];
-            if (jb->bucket != SIZE_MAX)
+            if (jb->bucket == SIZE_MAX)
+                continue;
+            if (!wts) {
                 q->segs[g].score_q[ti] = etacal_select(cand + jb->off, jb->cap, jb->rank);
+                continue;
+            }
+            /* weighted: walk the bucket's scores in order until the mass */
+            wpair *c = wcand + jb->off;
+            qsort(c, jb->cap, sizeof *c, cmp_wpair);
+            double cw = 0;
+            size_t r = 0;
+            while (r + 1 < jb->cap && cw + c[r].w < jb->need * (1 - WSLACK))
+                cw += c[r++].w;
+            q->segs[g].score_q[ti] = jb->cap ? c[r].s : INFINITY;
+            q->segs[g].k[ti] = jb->rank + r + 1;
         }
 
     /* 4. The rows of the table. */
@@ -622,6 +712,9 @@ nomem:
 done:
     seghier_free(&hs);
     free(hist);
+    free(whist);
+    free(wseg);
+    free(wcand);
     free(cand);
     free(jobs);
     if (rc) {

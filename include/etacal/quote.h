@@ -115,6 +115,13 @@ typedef struct etacal_fit_opts {
     /* Rows to fit on: mask[i] != 0 (NULL: every row), say to hold the other
      * rows out for etacal_quotes_holdout. */
     const unsigned char *mask;
+    /* Non-exchangeable weighted conformal (Barber, Candes, Ramdas &
+     * Tibshirani 2023): per-row weights in [0,1] fixed in advance (say
+     * recency, 2^(-age/half-life)), the new order's weight 1 as mass at
+     * +infinity; the bound is the smallest score s with
+     * sum_{s_j <= s} w_j >= tau (1 + sum w).  NULL: unweighted.  Methods
+     * add and ratio; not with a confidence. */
+    const double *weights;
 } etacal_fit_opts;
 
 /* On-time rates of a quote table on held-out rows, overall (segs[0]) and

@@ -35,6 +35,8 @@ int parse_bad_rows(const char *s, int *out);
 int parse_share(const char *s, double *out);
 int parse_size(const char *s, size_t *out);
 int parse_seconds(const char *s, double *out);
+/* A duration: a number of seconds, or with a unit s, m, h, d or w. */
+int parse_duration(const char *s, double *out);
 /* Appends the comma-separated levels of s to targets (capacity max). */
 int parse_targets(const char *s, double *targets, size_t *n, size_t max);
 /* Splits a comma-separated list of column names; the strings point into

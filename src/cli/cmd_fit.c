@@ -35,6 +35,8 @@ static const char help[] =
     "                        on this share of them, overall and per segment (Wilson 95%)\n"
     "  --time COL            timestamps (ISO 8601 or Unix seconds): --holdout takes the\n"
     "                        latest rows instead of a random share (--seed)\n"
+    "  --half-life D         with --time: weight each row by 2^(-age/D), age from the\n"
+    "                        newest row (weighted conformal for drift); D like 7d, 36h\n"
     "  --confidence C        choose each rank so that the on-time rate is at least the\n"
     "                        target with probability C over the calibration draw, not\n"
     "                        only on average (Beta law of the coverage)\n"
@@ -311,7 +313,7 @@ static void print_holdout(FILE *fp, const etacal_quotes *q, const etacal_holdout
 int cmd_fit(int argc, char **argv)
 {
     enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_DELIM, O_BAD, O_MAXBAD, O_THREADS,
-           O_X, O_SPLIT, O_SEED, O_CONF, O_HOLDOUT, O_TIME };
+           O_X, O_SPLIT, O_SEED, O_CONF, O_HOLDOUT, O_TIME, O_HALFLIFE };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL}, {"pred", required_argument, 0, O_PRED},
         {"by", required_argument, 0, O_BY},         {"target", required_argument, 0, O_TARGET},
@@ -321,7 +323,7 @@ int cmd_fit(int argc, char **argv)
         {"threads", required_argument, 0, O_THREADS}, {"x", required_argument, 0, O_X},
         {"split", required_argument, 0, O_SPLIT},     {"seed", required_argument, 0, O_SEED},
         {"confidence", required_argument, 0, O_CONF}, {"holdout", required_argument, 0, O_HOLDOUT},
-        {"time", required_argument, 0, O_TIME},
+        {"time", required_argument, 0, O_TIME},       {"half-life", required_argument, 0, O_HALFLIFE},
         {"quiet", no_argument, 0, 'q'},             {"help", no_argument, 0, 'h'},
         {0, 0, 0, 0}};
     const char *actual = NULL, *pred = NULL, *output = NULL;
@@ -329,7 +331,7 @@ int cmd_fit(int argc, char **argv)
     char *keys[MAX_KEYS];
     char *xs[ETACAL_QR_MAX_COVARIATES];
     size_t nkeys = 0, ntargets = 0, min_rows = 200, nx = 0, seed = 1;
-    double split = 0.5, confidence = 0, holdout = 0;
+    double split = 0.5, confidence = 0, holdout = 0, halflife = 0;
     const char *timecol = NULL;
     double targets[MAX_TARGETS];
     int method = ETACAL_METHOD_ADD, quiet = 0;
@@ -393,6 +395,10 @@ int cmd_fit(int argc, char **argv)
                 return usage_error("fit", "--holdout takes a share in (0,1), such as 0.2");
             break;
         case O_TIME: timecol = optarg; break;
+        case O_HALFLIFE:
+            if (parse_duration(optarg, &halflife) != 0 || !(halflife > 0))
+                return usage_error("fit", "--half-life takes a duration such as 7d, 36h, 90m or 3600 (seconds)");
+            break;
         case O_CONF:
             if (parse_share(optarg, &confidence) != 0 || !(confidence > 0 && confidence < 1))
                 return usage_error("fit", "--confidence takes a probability in (0,1), such as 0.95");
@@ -456,8 +462,12 @@ int cmd_fit(int argc, char **argv)
     cols[1] = (etacal_colspec){pred, ETACAL_COL_NUM,
                                flags | (method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u),
                                "prediction"};
-    if (timecol && !holdout)
-        return usage_error("fit", "--time goes with --holdout");
+    if (timecol && !holdout && !halflife)
+        return usage_error("fit", "--time goes with --holdout or --half-life");
+    if (halflife && !timecol)
+        return usage_error("fit", "--half-life needs --time (the age of each row)");
+    if (halflife && (confidence > 0 || method == ETACAL_METHOD_QR))
+        return usage_error("fit", "--half-life goes with methods add and ratio, without --confidence");
     if (timecol) {
         if (strcmp(timecol, actual) == 0 || strcmp(timecol, pred) == 0)
             return usage_error("fit", "--time '%s' is already the actual or the prediction", timecol);
@@ -499,7 +509,8 @@ int cmd_fit(int argc, char **argv)
     progress_end(&pg);
     if (rc)
         return report_error(&err);
-    etacal_fit_opts fo = {method, targets, ntargets, min_rows, x_cols, nx, split, (unsigned long)seed, confidence, NULL};
+    etacal_fit_opts fo = {method,     targets, ntargets, min_rows, x_cols, nx, split, (unsigned long)seed,
+                          confidence, NULL,    NULL};
     size_t held = 0;
     etacal_holdout ho = {0};
     if (holdout > 0) {
@@ -517,7 +528,26 @@ int cmd_fit(int argc, char **argv)
         }
         fo.mask = mask;
     }
+    double *wts = NULL;
+    if (halflife > 0) {
+        /* recency weights, the newest row of the fit having weight 1 */
+        size_t n = etacal_table_rows(t);
+        const double *tm = etacal_table_num(t, (size_t)time_col);
+        double newest = -INFINITY;
+        for (size_t i = 0; i < n; i++)
+            if ((!mask || mask[i]) && tm[i] > newest)
+                newest = tm[i];
+        wts = malloc((n ? n : 1) * sizeof *wts);
+        if (!wts) {
+            etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+            goto fail;
+        }
+        for (size_t i = 0; i < n; i++)
+            wts[i] = exp2(-(newest - tm[i]) / halflife);
+        fo.weights = wts;
+    }
     rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err);
+    free(wts);
     if (rc)
         goto fail;
     if (mask) {

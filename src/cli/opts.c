@@ -219,3 +219,24 @@ void tt_free(text_table *t)
 }
 
 void csv_field(FILE *fp, const char *s) { etacal_csv_put_field(fp, s, strlen(s), ','); }
+
+int parse_duration(const char *s, double *out)
+{
+    size_t len = strlen(s);
+    double mult = 1;
+    if (len > 0) {
+        switch (s[len - 1]) {
+        case 's': mult = 1; len--; break;
+        case 'm': mult = 60; len--; break;
+        case 'h': mult = 3600; len--; break;
+        case 'd': mult = 86400; len--; break;
+        case 'w': mult = 7 * 86400; len--; break;
+        default: break;
+        }
+    }
+    double v;
+    if (len == 0 || etacal_num_parse(s, len, &v) != ETACAL_NUM_VALUE || !isfinite(v) || v < 0)
+        return -1;
+    *out = v * mult;
+    return 0;
+}

@@ -120,7 +120,7 @@ static void test_guarantee_through_fit(void **state)
     assert_int_equal(etacal_table_read_csv(path, cols, 3, NULL, &t, &err), ETACAL_OK);
     size_t keys[] = {2};
     double targets[] = {tau};
-    etacal_fit_opts fo = {ETACAL_METHOD_ADD, targets, 1, per, NULL, 0, 0, 0, 0, NULL};
+    etacal_fit_opts fo = {ETACAL_METHOD_ADD, targets, 1, per, NULL, 0, 0, 0, 0, NULL, NULL};
     etacal_quotes *q = NULL;
     assert_int_equal(etacal_quotes_fit(t, 0, 1, keys, 1, &fo, &q, &err), ETACAL_OK);
     assert_int_equal(q->nsegs, nseg + 1);
