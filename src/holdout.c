@@ -16,6 +16,8 @@ void etacal_holdout_free(etacal_holdout *h)
     free(h->n);
     free(h->hits);
     free(h->bare);
+    free(h->promise_sum);
+    free(h->pred_sum);
     memset(h, 0, sizeof *h);
 }
 
@@ -50,9 +52,11 @@ int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t 
     out->n = calloc(ns, sizeof *out->n);
     out->hits = calloc(ns * nt, sizeof *out->hits);
     out->bare = calloc(ns, sizeof *out->bare);
+    out->promise_sum = calloc(ns * nt, sizeof *out->promise_sum);
+    out->pred_sum = calloc(ns, sizeof *out->pred_sum);
     segrow = malloc(ns * nt * sizeof *segrow);
     char key[4096];
-    if (!out->n || !out->hits || !out->bare || !segrow)
+    if (!out->n || !out->hits || !out->bare || !out->promise_sum || !out->pred_sum || !segrow)
         goto nomem;
     for (size_t i = 0; i < ns * nt; i++)
         segrow[i] = -1;
@@ -79,9 +83,11 @@ int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t 
         size_t hit_bare = y[i] <= p[i];
         out->n[0]++;
         out->bare[0] += hit_bare;
+        out->pred_sum[0] += p[i];
         if (has_own && own) {
             out->n[own]++;
             out->bare[own] += hit_bare;
+            out->pred_sum[own] += p[i];
         }
         for (size_t ti = 0; ti < nt; ti++) {
             long row = -1;
@@ -101,8 +107,11 @@ int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t 
                 v += qr->coef[j] * etacal_table_num(t, x_cols[j])[i];
             size_t hit = y[i] <= v;
             out->hits[ti] += hit;
-            if (has_own && own)
+            out->promise_sum[ti] += v;
+            if (has_own && own) {
                 out->hits[(size_t)own * nt + ti] += hit;
+                out->promise_sum[(size_t)own * nt + ti] += v;
+            }
         }
     }
     goto done;

@@ -132,6 +132,8 @@ typedef struct etacal_fit_opts {
 typedef struct etacal_holdout {
     size_t nsegs, ntargets;
     size_t *n, *hits, *bare;
+    double *promise_sum; /* [g * ntargets + t]: sum of the promises (s) */
+    double *pred_sum;    /* [g]: sum of the predictions (s) */
 } etacal_holdout;
 
 /* Applies q to the rows of t with mask[i] != 0 (as etacal_apply_csv would,

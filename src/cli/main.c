@@ -15,6 +15,7 @@ static const char usage[] =
     "  apply   add promise times to a file of new orders using a quote table\n"
     "  check   check that promises, intervals or quantiles cover what they claim\n"
     "  qr      linear quantile regression, with standard errors and predictions\n"
+    "  curve   what each on-time target costs, measured on held-out rows\n"
     "\n"
     "Run 'etacal COMMAND --help' for a command's options.\n"
     "  -h, --help     show this help and exit\n"
@@ -45,6 +46,8 @@ int main(int argc, char **argv)
         rc = cmd_check(argc - 1, argv + 1);
     } else if (strcmp(cmd, "qr") == 0) {
         rc = cmd_qr(argc - 1, argv + 1);
+    } else if (strcmp(cmd, "curve") == 0) {
+        rc = cmd_curve(argc - 1, argv + 1);
     } else {
         return usage_error(NULL, "unknown command '%s'", cmd);
     }

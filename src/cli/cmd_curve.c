@@ -1,0 +1,342 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* cmd_curve.c: `etacal curve`: what each on-time target costs.  One fit at
+ * every target of a grid on the calibration rows minus a held-out share,
+ * then on the held-out rows: the on-time rate reached (Wilson interval), the
+ * mean promise and the mean time added to the bare prediction, overall and
+ * per segment.  The text view marks the marginal cost of each extra point. */
+#include "cli.h"
+
+#include <getopt.h>
+#include <jansson.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define MAX_KEYS 16
+#define MAX_GRID 1000
+
+static const char help[] =
+    "Usage: etacal curve CAL.csv --actual COL --pred COL [OPTION]...\n"
+    "The cost curve of on-time targets: for each target of a grid, the buffer, the\n"
+    "mean promise and the mean extra time over the bare prediction, and the on-time\n"
+    "rate actually reached on held-out rows with its Wilson 95% interval.\n"
+    "\n"
+    "  --actual COL, --pred COL   as for etacal fit (required)\n"
+    "  --by COL[,COL...]     also per segment (most specific level)\n"
+    "  --method add|ratio    as for etacal fit (default add)\n"
+    "  --from T --to T --step S   the grid of targets (default 0.5, 0.99, 0.01)\n"
+    "  --holdout F           share of rows held out to measure (default 0.2)\n"
+    "  --time COL            hold out the latest rows by this timestamp column\n"
+    "  --seed S              seed of the random held-out share (default 1)\n"
+    "  --min-rows N          as for etacal fit (default 200)\n"
+    "  --format text|csv|json  output format (default text)\n"
+    "  -o, --output FILE     write to FILE, which appears only when complete\n"
+    "  --delim D, --bad-rows error|skip, --max-bad-share F   as for etacal fit\n"
+    "  -h, --help            show this help and exit\n";
+
+/* The grid from, from+step, ..., to as exact decimals (rounded to 1e-9, so
+ * 0.57 is 0.57 and not 0.5700000000000001). */
+static size_t grid(double from, double to, double step, double *out)
+{
+    size_t n = 0;
+    for (size_t i = 0; n < MAX_GRID; i++) {
+        double v = from + (double)i * step;
+        char b[32];
+        snprintf(b, sizeof b, "%.9f", v);
+        v = strtod(b, NULL);
+        if (v > to + 1e-12 || !(v < 1))
+            break;
+        out[n++] = v;
+    }
+    return n;
+}
+
+int cmd_curve(int argc, char **argv)
+{
+    enum { O_ACTUAL = 256, O_PRED, O_BY, O_METHOD, O_FROM, O_TO, O_STEP, O_HOLDOUT, O_TIME, O_SEED, O_MINROWS,
+           O_FORMAT, O_DELIM, O_BAD, O_MAXBAD };
+    static const struct option longopts[] = {
+        {"actual", required_argument, 0, O_ACTUAL},   {"pred", required_argument, 0, O_PRED},
+        {"by", required_argument, 0, O_BY},           {"method", required_argument, 0, O_METHOD},
+        {"from", required_argument, 0, O_FROM},       {"to", required_argument, 0, O_TO},
+        {"step", required_argument, 0, O_STEP},       {"holdout", required_argument, 0, O_HOLDOUT},
+        {"time", required_argument, 0, O_TIME},       {"seed", required_argument, 0, O_SEED},
+        {"min-rows", required_argument, 0, O_MINROWS}, {"format", required_argument, 0, O_FORMAT},
+        {"output", required_argument, 0, 'o'},        {"delim", required_argument, 0, O_DELIM},
+        {"bad-rows", required_argument, 0, O_BAD},    {"max-bad-share", required_argument, 0, O_MAXBAD},
+        {"help", no_argument, 0, 'h'},                {0, 0, 0, 0}};
+    const char *actual = NULL, *pred = NULL, *timecol = NULL, *output = NULL, *format = "text";
+    char *keys[MAX_KEYS];
+    size_t nkeys = 0, seed = 1, min_rows = 200;
+    double from = 0.5, to = 0.99, step = 0.01, holdout = 0.2;
+    int method = ETACAL_METHOD_ADD, c;
+    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
+    optind = 1;
+    opterr = 0;
+    while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
+        switch (c) {
+        case O_ACTUAL: actual = optarg; break;
+        case O_PRED: pred = optarg; break;
+        case O_BY:
+            nkeys = 0;
+            if (parse_names(optarg, keys, &nkeys, MAX_KEYS) != 0)
+                return usage_error("curve", "--by takes up to %d comma-separated column names", MAX_KEYS);
+            break;
+        case O_METHOD:
+            method = etacal_method_parse(optarg);
+            if (method != ETACAL_METHOD_ADD && method != ETACAL_METHOD_RATIO)
+                return usage_error("curve", "--method must be add or ratio");
+            break;
+        case O_FROM:
+        case O_TO:
+        case O_STEP: {
+            double v;
+            if (parse_share(optarg, &v) != 0 || !(v > 0 && v < 1))
+                return usage_error("curve", "--from, --to and --step take numbers in (0,1)");
+            *(c == O_FROM ? &from : c == O_TO ? &to : &step) = v;
+            break;
+        }
+        case O_HOLDOUT:
+            if (parse_share(optarg, &holdout) != 0 || !(holdout > 0 && holdout < 1))
+                return usage_error("curve", "--holdout takes a share in (0,1)");
+            break;
+        case O_TIME: timecol = optarg; break;
+        case O_SEED:
+            if (parse_size(optarg, &seed) != 0)
+                return usage_error("curve", "--seed takes a whole number");
+            break;
+        case O_MINROWS:
+            if (parse_size(optarg, &min_rows) != 0 || min_rows == 0)
+                return usage_error("curve", "--min-rows takes a whole number >= 1");
+            break;
+        case O_FORMAT:
+            if (strcmp(optarg, "text") && strcmp(optarg, "csv") && strcmp(optarg, "json"))
+                return usage_error("curve", "--format must be text, csv or json");
+            format = optarg;
+            break;
+        case 'o': output = optarg; break;
+        case O_DELIM:
+            if (parse_delim(optarg, &ro.delim) != 0)
+                return usage_error("curve", "--delim must be comma, semicolon, tab or pipe");
+            break;
+        case O_BAD:
+            if (parse_bad_rows(optarg, &ro.bad_rows) != 0)
+                return usage_error("curve", "--bad-rows must be error or skip");
+            break;
+        case O_MAXBAD:
+            if (parse_share(optarg, &ro.max_bad_share) != 0)
+                return usage_error("curve", "--max-bad-share takes a share in [0,1]");
+            break;
+        case 'h': fputs(help, stdout); return 0;
+        case ':': return usage_error("curve", "option '%s' needs a value", argv[optind - 1]);
+        default: return usage_error("curve", "unknown option '%s'", argv[optind - 1]);
+        }
+    }
+    if (optind >= argc)
+        return usage_error("curve", "no calibration file given");
+    if (optind + 1 < argc)
+        return usage_error("curve", "one calibration file only ('%s' is extra)", argv[optind + 1]);
+    if (!actual || !pred)
+        return usage_error("curve", "--actual and --pred are required");
+    if (from > to)
+        return usage_error("curve", "--from must not be above --to");
+    static double targets[MAX_GRID];
+    size_t nt = grid(from, to, step, targets);
+    if (nt == 0)
+        return usage_error("curve", "the grid of targets is empty");
+    const char *path = argv[optind];
+
+    etacal_colspec cols[3 + MAX_KEYS];
+    unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
+    cols[0] = (etacal_colspec){actual, ETACAL_COL_NUM, flags, "duration"};
+    cols[1] = (etacal_colspec){pred, ETACAL_COL_NUM,
+                               flags | (method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u), "prediction"};
+    size_t key_cols[MAX_KEYS], ncol = 2;
+    for (size_t j = 0; j < nkeys; j++) {
+        cols[ncol] = (etacal_colspec){keys[j], ETACAL_COL_KEY, 0, NULL};
+        key_cols[j] = ncol++;
+    }
+    long time_col = -1;
+    if (timecol) {
+        cols[ncol] = (etacal_colspec){timecol, ETACAL_COL_NUM,
+                                      ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_TIME, "timestamp"};
+        time_col = (long)ncol++;
+    }
+    etacal_error err;
+    etacal_error_clear(&err);
+    etacal_table *t = NULL;
+    etacal_quotes *q = NULL;
+    etacal_holdout ho = {0};
+    etacal_outfile of = {0};
+    unsigned char *mask = NULL;
+    int rc = etacal_table_read_csv(path, cols, ncol, &ro, &t, &err);
+    if (rc)
+        return report_error(&err);
+    size_t n = etacal_table_rows(t);
+    mask = malloc(n ? n : 1);
+    if (!mask) {
+        etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+        goto fail;
+    }
+    size_t held = etacal_holdout_mask(t, time_col, holdout, (unsigned long)seed, mask);
+    if (held == 0 || held == n) {
+        etacal_error_set(&err, ETACAL_ENUM, path, "--holdout %g leaves %s rows to %s", holdout, held ? "all" : "no",
+                         held ? "fit on" : "hold out");
+        goto fail;
+    }
+    etacal_fit_opts fo = {method, targets, nt, min_rows, NULL, 0, 0, 0, 0, mask, NULL};
+    if ((rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err)) != 0)
+        goto fail;
+    for (size_t i = 0; i < n; i++)
+        mask[i] = !mask[i];
+    if ((rc = etacal_quotes_holdout(q, t, 0, 1, key_cols, NULL, mask, &ho, &err)) != 0)
+        goto fail;
+    if ((rc = etacal_outfile_open(&of, output ? output : "-", &err)) != 0)
+        goto fail;
+    FILE *fp = of.fp;
+    json_t *root = NULL, *segs = NULL;
+    if (strcmp(format, "json") == 0) {
+        root = json_object();
+        json_object_set_new(root, "etacal", json_string(ETACAL_VERSION));
+        json_object_set_new(root, "file", json_string(path));
+        json_object_set_new(root, "held_out", json_pack("{s:I,s:I,s:s}", "rows", (json_int_t)held, "of",
+                                                        (json_int_t)n, "by", timecol ? timecol : "random"));
+        segs = json_array();
+    } else if (strcmp(format, "csv") == 0) {
+        for (size_t j = 0; j < nkeys; j++) {
+            csv_field(fp, keys[j]);
+            putc(',', fp);
+        }
+        fputs("target,buffer,mean_promise_s,mean_extra_s,marginal_s_per_point,held_n,held_hits,on_time,ci_low,ci_high\n",
+              fp);
+    } else {
+        char sh[ETACAL_NUM_BUFSZ];
+        etacal_percent_label(holdout, sh);
+        fprintf(fp, "etacal curve: %s, method %s; measured on %zu held-out rows (%s %s%%%s%s), fitted on %zu\n",
+                path, etacal_method_name(method), held, timecol ? "the latest" : "a random", sh,
+                timecol ? " by " : "", timecol ? timecol : "", n - held);
+    }
+    for (size_t g = 0; g < q->nsegs; g++) {
+        if (g && (q->segs[g].level != q->nkeys || ho.n[g] == 0))
+            continue;
+        size_t hn = ho.n[g];
+        json_t *pts = NULL;
+        text_table tt;
+        int text = strcmp(format, "text") == 0;
+        if (text) {
+            if (nkeys) {
+                fputs("\nsegment", fp);
+                for (size_t j = 0; j < nkeys; j++)
+                    fprintf(fp, "%s%s", j ? ", " : " ", q->segs[g].keys[j]);
+                fputc('\n', fp);
+            } else {
+                fputc('\n', fp);
+            }
+            if (tt_init(&tt, 7) != 0)
+                goto fail;
+            const char *h[7] = {"target", method == ETACAL_METHOD_ADD ? "buffer s" : "factor", "mean promise min",
+                                "extra min", "+min per point", "on time (held out)", "95% CI"};
+            tt_add(&tt, h);
+            for (int j = 0; j < 6; j++)
+                tt.right[j] = 1;
+        }
+        if (root)
+            pts = json_array();
+        double prev = NAN, prev_t = NAN;
+        for (size_t ti = 0; ti < nt; ti++) {
+            double buf = q->segs[g].score_q[ti];
+            /* the promise actually given: own row or a coarser level */
+            size_t up = g;
+            while (up != 0 && q->segs[up].status[ti] != ETACAL_OWN_ROW)
+                up = q->segs[up].parent;
+            if (up != g)
+                buf = q->segs[up].score_q[ti];
+            double mp = hn ? ho.promise_sum[g * nt + ti] / (double)hn : NAN;
+            double extra = hn ? mp - ho.pred_sum[g] / (double)hn : NAN;
+            double marginal = isnan(prev) ? NAN : (mp - prev) / ((targets[ti] - prev_t) * 100);
+            size_t hits = ho.hits[g * nt + ti];
+            double lo = NAN, hi = NAN;
+            etacal_error e2;
+            if (hn)
+                etacal_binom_wilson(hits, hn, 0.95, &lo, &hi, &e2);
+            char tb[ETACAL_NUM_BUFSZ];
+            etacal_num_format(targets[ti], tb);
+            if (text) {
+                char b[6][64];
+                snprintf(b[0], sizeof b[0], method == ETACAL_METHOD_ADD ? "%.1f" : "%.4f", buf);
+                snprintf(b[1], sizeof b[1], "%.2f", mp / 60);
+                snprintf(b[2], sizeof b[2], "%.2f", extra / 60);
+                if (isnan(marginal))
+                    snprintf(b[3], sizeof b[3], "-");
+                else
+                    snprintf(b[3], sizeof b[3], "%+.2f", marginal / 60);
+                snprintf(b[4], sizeof b[4], "%.2f%% (%zu/%zu)", hn ? 100.0 * (double)hits / (double)hn : 0.0, hits, hn);
+                snprintf(b[5], sizeof b[5], "%.4f-%.4f", lo, hi);
+                char tp[ETACAL_NUM_BUFSZ + 2];
+                etacal_percent_label(targets[ti], tp);
+                strcat(tp, "%");
+                const char *row[7] = {tp, b[0], b[1], b[2], b[3], b[4], b[5]};
+                tt_add(&tt, row);
+            } else if (root) {
+                json_array_append_new(
+                    pts, json_pack("{s:f,s:o,s:o,s:o,s:o,s:I,s:I,s:o,s:[o,o]}", "target", targets[ti], "buffer",
+                                   isfinite(buf) ? json_real(buf) : json_null(), "mean_promise_s",
+                                   isfinite(mp) ? json_real(mp) : json_null(), "mean_extra_s",
+                                   isfinite(extra) ? json_real(extra) : json_null(), "marginal_s_per_point",
+                                   isfinite(marginal) ? json_real(marginal) : json_null(), "held_n", (json_int_t)hn,
+                                   "held_hits", (json_int_t)hits, "on_time",
+                                   hn ? json_real((double)hits / (double)hn) : json_null(), "ci",
+                                   isfinite(lo) ? json_real(lo) : json_null(),
+                                   isfinite(hi) ? json_real(hi) : json_null()));
+            } else {
+                for (size_t j = 0; j < nkeys; j++) {
+                    csv_field(fp, q->segs[g].keys[j]);
+                    putc(',', fp);
+                }
+                fprintf(fp, "%s,%.10g,%.10g,%.10g,", tb, buf, mp, extra);
+                if (!isnan(marginal))
+                    fprintf(fp, "%.10g", marginal);
+                fprintf(fp, ",%zu,%zu,%.10g,%.10g,%.10g\n", hn, hits, hn ? (double)hits / (double)hn : NAN, lo, hi);
+            }
+            prev = mp;
+            prev_t = targets[ti];
+        }
+        if (text) {
+            tt_print(&tt, fp);
+            tt_free(&tt);
+        }
+        if (root) {
+            json_t *kv = json_object();
+            for (size_t j = 0; j < nkeys; j++)
+                json_object_set_new(kv, keys[j], json_string(q->segs[g].keys[j]));
+            json_array_append_new(segs, json_pack("{s:o,s:I,s:o}", "keys", kv, "held_n", (json_int_t)hn, "points", pts));
+        }
+    }
+    if (root) {
+        json_object_set_new(root, "segments", segs);
+        int bad = json_dumpf(root, fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10)) != 0;
+        json_decref(root);
+        if (bad) {
+            etacal_error_set(&err, ETACAL_EIO, output ? output : "stdout", "cannot write JSON");
+            etacal_outfile_abort(&of);
+            goto fail;
+        }
+        putc('\n', fp);
+    }
+    if ((rc = etacal_outfile_commit(&of, &err)) != 0) {
+        etacal_outfile_abort(&of);
+        goto fail;
+    }
+    etacal_holdout_free(&ho);
+    etacal_quotes_destroy(q);
+    etacal_table_destroy(t);
+    free(mask);
+    return 0;
+fail:
+    etacal_outfile_abort(&of);
+    etacal_holdout_free(&ho);
+    etacal_quotes_destroy(q);
+    etacal_table_destroy(t);
+    free(mask);
+    return report_error(&err);
+}
