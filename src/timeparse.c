@@ -6,6 +6,8 @@
  * time zone and locale never matter. */
 #include "internal.h"
 
+#include <math.h>
+#include <stdio.h>
 #include <string.h>
 
 static long long days_from_civil(long long y, unsigned m, unsigned d)
@@ -113,4 +115,25 @@ int etacal_time_parse(const char *s, size_t len, double *out)
     long long t = days_from_civil(Y, M, D) * 86400 + h * 3600 + mi * 60 + sec - offset;
     *out = (double)t + frac;
     return ETACAL_NUM_VALUE;
+}
+
+void etacal_time_format(double t, char *buf)
+{
+    /* civil_from_days (Hinnant), the inverse of days_from_civil */
+    long long s = (long long)floor(t);
+    long long z = (s >= 0 ? s : s - 86399) / 86400;
+    long long secs = s - z * 86400;
+    z += 719468;
+    long long era = (z >= 0 ? z : z - 146096) / 146097;
+    unsigned doe = (unsigned)(z - era * 146097);
+    unsigned yoe = (doe - doe / 1460 + doe / 36524 - doe / 146096) / 365;
+    long long y = (long long)yoe + era * 400;
+    unsigned doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    unsigned mp = (5 * doy + 2) / 153;
+    unsigned d = doy - (153 * mp + 2) / 5 + 1;
+    unsigned m = mp < 10 ? mp + 3 : mp - 9;
+    y += m <= 2;
+    int yy = y < -9999 ? -9999 : y > 9999 ? 9999 : (int)y;
+    int hh = (int)(secs / 3600), mi = (int)(secs / 60 % 60), ss = (int)(secs % 60);
+    snprintf(buf, 32, "%04d-%02u-%02uT%02d:%02d:%02dZ", yy, m % 100, d % 100, hh % 100, mi, ss);
 }

@@ -20,5 +20,6 @@
 #include "etacal/metrics.h"
 #include "etacal/check.h"
 #include "etacal/quantreg.h"
+#include "etacal/backtest.h"
 
 #endif

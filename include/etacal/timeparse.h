@@ -18,6 +18,10 @@ extern "C" {
  * *out, ETACAL_NUM_MISSING for an empty/NA cell, or ETACAL_NUM_BAD. */
 int etacal_time_parse(const char *s, size_t len, double *out);
 
+/* Writes t (seconds since the epoch, whole seconds shown) as
+ * YYYY-MM-DDThh:mm:ssZ into buf (at least 32 bytes). */
+void etacal_time_format(double t, char *buf);
+
 #ifdef __cplusplus
 }
 #endif

@@ -16,6 +16,7 @@ static const char usage[] =
     "  check   check that promises, intervals or quantiles cover what they claim\n"
     "  qr      linear quantile regression, with standard errors and predictions\n"
     "  curve   what each on-time target costs, measured on held-out rows\n"
+    "  backtest  would the nightly job have kept its promise? (rolling origin)\n"
     "\n"
     "Run 'etacal COMMAND --help' for a command's options.\n"
     "  -h, --help     show this help and exit\n"
@@ -48,6 +49,8 @@ int main(int argc, char **argv)
         rc = cmd_qr(argc - 1, argv + 1);
     } else if (strcmp(cmd, "curve") == 0) {
         rc = cmd_curve(argc - 1, argv + 1);
+    } else if (strcmp(cmd, "backtest") == 0) {
+        rc = cmd_backtest(argc - 1, argv + 1);
     } else {
         return usage_error(NULL, "unknown command '%s'", cmd);
     }

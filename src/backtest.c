@@ -1,0 +1,115 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* backtest.c: rolling-origin evaluation of quote tables, optionally with
+ * recency weights and adaptive conformal inference (Gibbs & Candes 2021,
+ * "Adaptive conformal inference under distribution shift": alpha_{t+1} =
+ * alpha_t + gamma (alpha - err_t), here per period, err_t its miss rate). */
+#include "internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+void etacal_backtest_free(etacal_backtest_result *r)
+{
+    if (!r)
+        return;
+    free(r->periods);
+    memset(r, 0, sizeof *r);
+}
+
+int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_col, size_t time_col,
+                        const size_t *key_cols, size_t nkeys, const etacal_backtest_opts *o,
+                        etacal_backtest_result *out, etacal_error *err)
+{
+    memset(out, 0, sizeof *out);
+    if (!(o->target > 0 && o->target < 1))
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "target must be in (0,1)");
+    if (!(o->window_s > 0) || !(o->every_s > 0))
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "window and period must be positive durations");
+    size_t n = etacal_table_rows(t);
+    const double *tm = etacal_table_num(t, time_col);
+    if (!tm || n == 0)
+        return etacal_error_set(err, ETACAL_ENUM, etacal_table_source(t), "no data rows");
+    double t0 = INFINITY, t1 = -INFINITY;
+    for (size_t i = 0; i < n; i++) {
+        t0 = tm[i] < t0 ? tm[i] : t0;
+        t1 = tm[i] > t1 ? tm[i] : t1;
+    }
+    double first = t0 + o->window_s;
+    if (!(first <= t1))
+        return etacal_error_set(err, ETACAL_ENUM, etacal_table_source(t),
+                                "the data span less than one window: nothing to backtest");
+    size_t np = (size_t)floor((t1 - first) / o->every_s) + 1;
+    if (np > 100000)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "more than 100000 periods: choose a longer period");
+    out->periods = calloc(np, sizeof *out->periods);
+    unsigned char *fitm = malloc(n), *evm = malloc(n);
+    double *w = o->half_life_s > 0 ? malloc(n * sizeof *w) : NULL;
+    int rc = ETACAL_OK;
+    if (!out->periods || !fitm || !evm || (o->half_life_s > 0 && !w)) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+        goto done;
+    }
+    out->nperiods = np;
+    double level = o->target, bufsum = 0;
+    size_t bufn = 0;
+    for (size_t k = 0; k < np; k++) {
+        etacal_backtest_period *pd = &out->periods[k];
+        pd->start = first + (double)k * o->every_s;
+        pd->end = pd->start + o->every_s;
+        pd->level = level;
+        pd->mean_buffer = NAN;
+        double newest = -INFINITY;
+        for (size_t i = 0; i < n; i++) {
+            fitm[i] = tm[i] >= pd->start - o->window_s && tm[i] < pd->start;
+            evm[i] = tm[i] >= pd->start && tm[i] < pd->end;
+            pd->calib += fitm[i];
+            pd->n += evm[i];
+            if (fitm[i] && tm[i] > newest)
+                newest = tm[i];
+        }
+        if (pd->n == 0)
+            continue;
+        double lv = level;
+        if (lv >= 1) { /* alpha_t <= 0: the unbounded promise keeps every order */
+            pd->hits = pd->n;
+            pd->mean_buffer = INFINITY;
+        } else {
+            if (lv < 0.001)
+                lv = 0.001;
+            if (w)
+                for (size_t i = 0; i < n; i++)
+                    w[i] = fitm[i] ? exp2(-(newest - tm[i]) / o->half_life_s) : 0;
+            etacal_fit_opts fo = {o->method, &lv, 1, o->min_rows, NULL, 0, 0, 0, 0, fitm, w};
+            etacal_quotes *q = NULL;
+            etacal_error e2;
+            if (pd->calib == 0 || etacal_quotes_fit(t, actual_col, pred_col, key_cols, nkeys, &fo, &q, &e2) != ETACAL_OK) {
+                pd->skipped = 1; /* its orders count nowhere */
+                etacal_quotes_destroy(q);
+                continue;
+            }
+            etacal_holdout h;
+            rc = etacal_quotes_holdout(q, t, actual_col, pred_col, key_cols, NULL, evm, &h, err);
+            etacal_quotes_destroy(q);
+            if (rc)
+                goto done;
+            pd->hits = h.hits[0];
+            pd->mean_buffer = (h.promise_sum[0] - h.pred_sum[0]) / (double)h.n[0];
+            bufsum += h.promise_sum[0] - h.pred_sum[0];
+            bufn += h.n[0];
+            etacal_holdout_free(&h);
+        }
+        out->n += pd->n;
+        out->hits += pd->hits;
+        if (o->gamma > 0)
+            level += o->gamma * (o->target - (double)pd->hits / (double)pd->n);
+    }
+    out->mean_buffer = bufn ? bufsum / (double)bufn : NAN;
+done:
+    free(fitm);
+    free(evm);
+    free(w);
+    if (rc)
+        etacal_backtest_free(out);
+    return rc;
+}

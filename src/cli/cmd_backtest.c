@@ -1,0 +1,263 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* cmd_backtest.c: `etacal backtest`: would the nightly job have kept its
+ * promise?  Rolling origin over time, per period and overall. */
+#include "cli.h"
+
+#include <getopt.h>
+#include <jansson.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define MAX_KEYS 16
+
+static const char help[] =
+    "Usage: etacal backtest DATA.csv --actual COL --pred COL --time COL [OPTION]...\n"
+    "Rolling-origin backtest: at each step, fit a quote table on the preceding window,\n"
+    "promise the next period's orders, and record their on-time rate.\n"
+    "\n"
+    "  --actual COL, --pred COL   as for etacal fit (required)\n"
+    "  --time COL            timestamps (ISO 8601 or Unix seconds) (required)\n"
+    "  --by COL[,COL...]     segments, as for etacal fit\n"
+    "  --target T            the on-time target (default 0.9)\n"
+    "  --window D            calibration window before each period (default 28d)\n"
+    "  --every D             period length (default 1d); D like 7d, 36h, 90m, 3600\n"
+    "  --half-life D         recency weights within each window, as for etacal fit\n"
+    "  --adapt GAMMA         adaptive conformal inference: after each period the working\n"
+    "                        level moves by GAMMA x (target - observed on-time rate)\n"
+    "  --method add|ratio    as for etacal fit (default add)\n"
+    "  --min-rows N          as for etacal fit (default 200)\n"
+    "  --format text|csv|json  output format (default text)\n"
+    "  -o, --output FILE     write to FILE, which appears only when complete\n"
+    "  --delim D, --bad-rows error|skip, --max-bad-share F   as for etacal fit\n"
+    "  -h, --help            show this help and exit\n";
+
+static void wilson(size_t h, size_t n, double *lo, double *hi)
+{
+    etacal_error e;
+    *lo = *hi = NAN;
+    if (n)
+        etacal_binom_wilson(h, n, 0.95, lo, hi, &e);
+}
+
+int cmd_backtest(int argc, char **argv)
+{
+    enum { O_ACTUAL = 256, O_PRED, O_TIME, O_BY, O_TARGET, O_WINDOW, O_EVERY, O_HALF, O_ADAPT, O_METHOD, O_MINROWS,
+           O_FORMAT, O_DELIM, O_BAD, O_MAXBAD };
+    static const struct option longopts[] = {
+        {"actual", required_argument, 0, O_ACTUAL},   {"pred", required_argument, 0, O_PRED},
+        {"time", required_argument, 0, O_TIME},       {"by", required_argument, 0, O_BY},
+        {"target", required_argument, 0, O_TARGET},   {"window", required_argument, 0, O_WINDOW},
+        {"every", required_argument, 0, O_EVERY},     {"half-life", required_argument, 0, O_HALF},
+        {"adapt", required_argument, 0, O_ADAPT},     {"method", required_argument, 0, O_METHOD},
+        {"min-rows", required_argument, 0, O_MINROWS}, {"format", required_argument, 0, O_FORMAT},
+        {"output", required_argument, 0, 'o'},        {"delim", required_argument, 0, O_DELIM},
+        {"bad-rows", required_argument, 0, O_BAD},    {"max-bad-share", required_argument, 0, O_MAXBAD},
+        {"help", no_argument, 0, 'h'},                {0, 0, 0, 0}};
+    const char *actual = NULL, *pred = NULL, *timecol = NULL, *output = NULL, *format = "text";
+    char *keys[MAX_KEYS];
+    size_t nkeys = 0;
+    etacal_backtest_opts bo = {ETACAL_METHOD_ADD, 0.9, 28 * 86400.0, 86400.0, 200, 0, 0};
+    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
+    int c;
+    optind = 1;
+    opterr = 0;
+    while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
+        switch (c) {
+        case O_ACTUAL: actual = optarg; break;
+        case O_PRED: pred = optarg; break;
+        case O_TIME: timecol = optarg; break;
+        case O_BY:
+            nkeys = 0;
+            if (parse_names(optarg, keys, &nkeys, MAX_KEYS) != 0)
+                return usage_error("backtest", "--by takes up to %d comma-separated column names", MAX_KEYS);
+            break;
+        case O_TARGET:
+            if (parse_share(optarg, &bo.target) != 0 || !(bo.target > 0 && bo.target < 1))
+                return usage_error("backtest", "--target takes one on-time rate in (0,1)");
+            break;
+        case O_WINDOW:
+        case O_EVERY:
+        case O_HALF: {
+            double v;
+            if (parse_duration(optarg, &v) != 0 || !(v > 0))
+                return usage_error("backtest", "durations look like 28d, 1d, 36h, 90m or 3600 (seconds)");
+            *(c == O_WINDOW ? &bo.window_s : c == O_EVERY ? &bo.every_s : &bo.half_life_s) = v;
+            break;
+        }
+        case O_ADAPT:
+            if (parse_share(optarg, &bo.gamma) != 0 || !(bo.gamma > 0))
+                return usage_error("backtest", "--adapt takes a step gamma in (0,1], such as 0.05");
+            break;
+        case O_METHOD:
+            bo.method = etacal_method_parse(optarg);
+            if (bo.method != ETACAL_METHOD_ADD && bo.method != ETACAL_METHOD_RATIO)
+                return usage_error("backtest", "--method must be add or ratio");
+            break;
+        case O_MINROWS:
+            if (parse_size(optarg, &bo.min_rows) != 0 || bo.min_rows == 0)
+                return usage_error("backtest", "--min-rows takes a whole number >= 1");
+            break;
+        case O_FORMAT:
+            if (strcmp(optarg, "text") && strcmp(optarg, "csv") && strcmp(optarg, "json"))
+                return usage_error("backtest", "--format must be text, csv or json");
+            format = optarg;
+            break;
+        case 'o': output = optarg; break;
+        case O_DELIM:
+            if (parse_delim(optarg, &ro.delim) != 0)
+                return usage_error("backtest", "--delim must be comma, semicolon, tab or pipe");
+            break;
+        case O_BAD:
+            if (parse_bad_rows(optarg, &ro.bad_rows) != 0)
+                return usage_error("backtest", "--bad-rows must be error or skip");
+            break;
+        case O_MAXBAD:
+            if (parse_share(optarg, &ro.max_bad_share) != 0)
+                return usage_error("backtest", "--max-bad-share takes a share in [0,1]");
+            break;
+        case 'h': fputs(help, stdout); return 0;
+        case ':': return usage_error("backtest", "option '%s' needs a value", argv[optind - 1]);
+        default: return usage_error("backtest", "unknown option '%s'", argv[optind - 1]);
+        }
+    }
+    if (optind >= argc)
+        return usage_error("backtest", "no data file given");
+    if (optind + 1 < argc)
+        return usage_error("backtest", "one data file only ('%s' is extra)", argv[optind + 1]);
+    if (!actual || !pred || !timecol)
+        return usage_error("backtest", "--actual, --pred and --time are required");
+    const char *path = argv[optind];
+    etacal_colspec cols[3 + MAX_KEYS];
+    unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
+    cols[0] = (etacal_colspec){actual, ETACAL_COL_NUM, flags, "duration"};
+    cols[1] = (etacal_colspec){pred, ETACAL_COL_NUM,
+                               flags | (bo.method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u), "prediction"};
+    cols[2] = (etacal_colspec){timecol, ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_TIME,
+                               "timestamp"};
+    size_t key_cols[MAX_KEYS];
+    for (size_t j = 0; j < nkeys; j++) {
+        cols[3 + j] = (etacal_colspec){keys[j], ETACAL_COL_KEY, 0, NULL};
+        key_cols[j] = 3 + j;
+    }
+    etacal_error err;
+    etacal_error_clear(&err);
+    etacal_table *t = NULL;
+    etacal_backtest_result r = {0};
+    etacal_outfile of = {0};
+    int rc = etacal_table_read_csv(path, cols, 3 + nkeys, &ro, &t, &err);
+    if (rc)
+        return report_error(&err);
+    if ((rc = etacal_backtest_run(t, 0, 1, 2, key_cols, nkeys, &bo, &r, &err)) != 0)
+        goto fail;
+    if ((rc = etacal_outfile_open(&of, output ? output : "-", &err)) != 0)
+        goto fail;
+    FILE *fp = of.fp;
+    double lo, hi;
+    char a[32], b[32];
+    if (strcmp(format, "text") == 0) {
+        char tp[ETACAL_NUM_BUFSZ];
+        etacal_percent_label(bo.target, tp);
+        fprintf(fp, "etacal backtest: %s, target %s%%, method %s, window %g h, period %g h%s%s\n", path, tp,
+                etacal_method_name(bo.method), bo.window_s / 3600, bo.every_s / 3600,
+                bo.half_life_s > 0 ? ", recency weights" : "", bo.gamma > 0 ? ", adaptive level" : "");
+        text_table tt;
+        if (tt_init(&tt, 7) != 0)
+            goto fail;
+        const char *h[7] = {"period start", "calib", "n", "on time", "95% CI", "buffer min", "level"};
+        tt_add(&tt, h);
+        for (int j = 1; j < 7; j++)
+            tt.right[j] = j != 4;
+        for (size_t k = 0; k < r.nperiods; k++) {
+            const etacal_backtest_period *p = &r.periods[k];
+            char cells[6][64];
+            etacal_time_format(p->start, a);
+            snprintf(cells[0], sizeof cells[0], "%zu", p->calib);
+            snprintf(cells[1], sizeof cells[1], "%zu", p->n);
+            wilson(p->hits, p->n, &lo, &hi);
+            if (p->skipped) {
+                snprintf(cells[2], sizeof cells[2], "no table (too few rows)");
+                cells[3][0] = '\0';
+            } else if (p->n) {
+                snprintf(cells[2], sizeof cells[2], "%.2f%% (%zu/%zu)", 100.0 * (double)p->hits / (double)p->n, p->hits, p->n);
+                snprintf(cells[3], sizeof cells[3], "%.4f-%.4f", lo, hi);
+            } else {
+                snprintf(cells[2], sizeof cells[2], "-");
+                cells[3][0] = '\0';
+            }
+            if (isfinite(p->mean_buffer))
+                snprintf(cells[4], sizeof cells[4], "%.2f", p->mean_buffer / 60);
+            else
+                snprintf(cells[4], sizeof cells[4], isinf(p->mean_buffer) ? "unbounded" : "-");
+            snprintf(cells[5], sizeof cells[5], "%.4f", p->level);
+            const char *row[7] = {a, cells[0], cells[1], cells[2], cells[3], cells[4], cells[5]};
+            tt_add(&tt, row);
+        }
+        tt_print(&tt, fp);
+        tt_free(&tt);
+        wilson(r.hits, r.n, &lo, &hi);
+        fprintf(fp, "\noverall: %.2f%% on time (%zu/%zu), 95%% CI %.4f-%.4f, mean buffer %.2f min\n",
+                r.n ? 100.0 * (double)r.hits / (double)r.n : 0.0, r.hits, r.n, lo, hi, r.mean_buffer / 60);
+    } else if (strcmp(format, "csv") == 0) {
+        fputs("period_start,period_end,calib,n,hits,on_time,ci_low,ci_high,mean_buffer_s,level,skipped\n", fp);
+        for (size_t k = 0; k < r.nperiods; k++) {
+            const etacal_backtest_period *p = &r.periods[k];
+            etacal_time_format(p->start, a);
+            etacal_time_format(p->end, b);
+            wilson(p->hits, p->n, &lo, &hi);
+            fprintf(fp, "%s,%s,%zu,%zu,%zu,", a, b, p->calib, p->n, p->hits);
+            if (p->n && !p->skipped)
+                fprintf(fp, "%.10g,%.10g,%.10g", (double)p->hits / (double)p->n, lo, hi);
+            else
+                fputs(",,", fp);
+            fputc(',', fp);
+            if (isfinite(p->mean_buffer))
+                fprintf(fp, "%.10g", p->mean_buffer);
+            fprintf(fp, ",%.10g,%d\n", p->level, p->skipped);
+        }
+    } else {
+        json_t *root = json_object(), *ps = json_array();
+        json_object_set_new(root, "etacal", json_string(ETACAL_VERSION));
+        json_object_set_new(root, "file", json_string(path));
+        json_object_set_new(root, "target", json_real(bo.target));
+        for (size_t k = 0; k < r.nperiods; k++) {
+            const etacal_backtest_period *p = &r.periods[k];
+            etacal_time_format(p->start, a);
+            etacal_time_format(p->end, b);
+            wilson(p->hits, p->n, &lo, &hi);
+            int has = p->n && !p->skipped;
+            json_array_append_new(
+                ps, json_pack("{s:s,s:s,s:I,s:I,s:I,s:o,s:[o,o],s:o,s:f,s:b}", "start", a, "end", b, "calib",
+                              (json_int_t)p->calib, "n", (json_int_t)p->n, "hits", (json_int_t)p->hits, "on_time",
+                              has ? json_real((double)p->hits / (double)p->n) : json_null(),
+                              has ? json_real(lo) : json_null(), has ? json_real(hi) : json_null(), "mean_buffer_s",
+                              isfinite(p->mean_buffer) ? json_real(p->mean_buffer) : json_null(), "level", p->level,
+                              "skipped", p->skipped));
+        }
+        json_object_set_new(root, "periods", ps);
+        wilson(r.hits, r.n, &lo, &hi);
+        json_object_set_new(root, "overall", json_pack("{s:I,s:I,s:o,s:[o,o],s:o}", "n", (json_int_t)r.n, "hits",
+                                                       (json_int_t)r.hits,
+                                                       "on_time", r.n ? json_real((double)r.hits / (double)r.n) : json_null(),
+                                                       r.n ? json_real(lo) : json_null(), r.n ? json_real(hi) : json_null(),
+                                                       "mean_buffer_s",
+                                                       isfinite(r.mean_buffer) ? json_real(r.mean_buffer) : json_null()));
+        int bad = json_dumpf(root, fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10)) != 0;
+        json_decref(root);
+        if (bad) {
+            etacal_error_set(&err, ETACAL_EIO, output ? output : "stdout", "cannot write JSON");
+            goto fail;
+        }
+        fputc('\n', fp);
+    }
+    if ((rc = etacal_outfile_commit(&of, &err)) != 0)
+        goto fail;
+    etacal_backtest_free(&r);
+    etacal_table_destroy(t);
+    return 0;
+fail:
+    etacal_outfile_abort(&of);
+    etacal_backtest_free(&r);
+    etacal_table_destroy(t);
+    return report_error(&err);
+}
