@@ -80,7 +80,8 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
             if (w)
                 for (size_t i = 0; i < n; i++)
                     w[i] = fitm[i] ? exp2(-(newest - tm[i]) / o->half_life_s) : 0;
-            etacal_fit_opts fo = {o->method, &lv, 1, o->min_rows, NULL, 0, 0, 0, 0, fitm, w};
+            etacal_fit_opts fo = {o->method, &lv, 1, o->min_rows, o->x_cols, o->nx, o->split, o->seed,
+                                  o->confidence, fitm, w};
             etacal_quotes *q = NULL;
             etacal_error e2;
             if (pd->calib == 0 || etacal_quotes_fit(t, actual_col, pred_col, key_cols, nkeys, &fo, &q, &e2) != ETACAL_OK) {
@@ -89,7 +90,7 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
                 continue;
             }
             etacal_holdout h;
-            rc = etacal_quotes_holdout(q, t, actual_col, pred_col, key_cols, NULL, evm, &h, err);
+            rc = etacal_quotes_holdout(q, t, actual_col, pred_col, key_cols, o->x_cols, evm, &h, err);
             etacal_quotes_destroy(q);
             if (rc)
                 goto done;

@@ -158,6 +158,37 @@ static int cmp_wpair(const void *a, const void *b)
  * point can exceed the whole number it stands for). */
 #define WSLACK 1e-12
 
+/* The weighted conformal bound of scores s[0..n) with weights w (the new
+ * point weighing 1 at +infinity): the smallest s with sum_{s_j <= s} w_j >=
+ * tau (1 + sum w), or +inf.  *k gets the number of scores at or below it. */
+static double weighted_upper(const double *s, const double *w, size_t n, double tau, size_t *k)
+{
+    double W = 0;
+    for (size_t i = 0; i < n; i++)
+        W += w[i];
+    double need = tau * (1 + W);
+    *k = n + 1;
+    if (n == 0 || W < need * (1 - WSLACK))
+        return INFINITY;
+    wpair *c = malloc(n * sizeof *c);
+    if (!c)
+        return INFINITY;
+    for (size_t i = 0; i < n; i++)
+        c[i] = (wpair){s[i], w[i]};
+    qsort(c, n, sizeof *c, cmp_wpair);
+    double cum = 0, q = INFINITY;
+    for (size_t r = 0; r < n; r++) {
+        cum += c[r].w;
+        if (cum >= need * (1 - WSLACK)) {
+            q = c[r].s;
+            *k = r + 1;
+            break;
+        }
+    }
+    free(c);
+    return q;
+}
+
 /* The rank of the bound for n scores at tau: average case, or with
  * confidence. */
 static size_t rank_rule(size_t n, double tau, double conf)
@@ -204,9 +235,11 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
     size_t lvl_off[ETACAL_QR_MAX_COVARIATES + 1] = {0};
     unsigned char *fitpart = malloc(n);
     double *buf = malloc(n * (p + 1) * sizeof *buf);
+    double *wbuf = o->weights ? malloc(n * sizeof *wbuf) : NULL;
     double *coef = malloc(nseg * q->ntargets * p * sizeof *coef);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    if (!idx || !gidx || !start || !fill || !count || !nbseg || !fitpart || !buf || !coef || !rng) {
+    if (!idx || !gidx || !start || !fill || !count || !nbseg || !fitpart || !buf || !coef || !rng ||
+        (o->weights && !wbuf)) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
         goto done;
     }
@@ -252,8 +285,10 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
             }
             continue;
         }
-        /* columns of the fitting part, then of the calibration part */
+        /* columns of the fitting part, then of the calibration part (with
+         * recency weights, a weight column after each part) */
         double *fy = buf, *fx = buf + na, *cy = buf + na * (p + 1), *cx = cy + nb;
+        double *fw = wbuf, *cw = wbuf ? wbuf + na : NULL;
         size_t wa = 0, wb = 0;
         for (size_t r = lo; r < hi; r++) {
             size_t i = rows[r];
@@ -262,12 +297,16 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
                 fx[wa] = pr[i];
                 for (size_t j = 0; j < nx; j++)
                     fx[(j + 1) * na + wa] = xc[j][i];
+                if (fw)
+                    fw[wa] = o->weights[i];
                 wa++;
             } else {
                 cy[wb] = y[i];
                 cx[wb] = pr[i];
                 for (size_t j = 0; j < nx; j++)
                     cx[(j + 1) * nb + wb] = xc[j][i];
+                if (cw)
+                    cw[wb] = o->weights[i];
                 wb++;
             }
         }
@@ -281,7 +320,7 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
             etacal_error e2;
             etacal_qr_opts qo = {0};
             qo.seed = o->seed;
-            int frc = na > p ? etacal_qr_fit(fy, fcols, nx + 1, NULL, na, tau, names, &qo, &res, &e2)
+            int frc = na > p ? etacal_qr_fit(fy, fcols, nx + 1, fw, na, tau, names, &qo, &res, &e2)
                              : ETACAL_EINVAL;
             if (frc != ETACAL_OK && !global) {
                 sg->status[ti] = ETACAL_FALLBACK_FEW_ROWS;
@@ -308,13 +347,18 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
                     f += b[j + 2] * cx[(j + 1) * nb + r];
                 scores[r] = cy[r] - f;
             }
-            k = rank_rule(nb, tau, o->confidence);
-            double corr = k <= nb ? etacal_select(scores, nb, k) : INFINITY;
+            double corr;
+            if (cw) {
+                corr = weighted_upper(scores, cw, nb, tau, &k);
+            } else {
+                k = rank_rule(nb, tau, o->confidence);
+                corr = k <= nb ? etacal_select(scores, nb, k) : INFINITY;
+            }
             free(scores);
             sg->k[ti] = k;
             sg->score_q[ti] = corr;
-            sg->status[ti] = k > nb ? ETACAL_FALLBACK_RANK : ETACAL_OWN_ROW;
-            if (global && k > nb) {
+            sg->status[ti] = isinf(corr) ? ETACAL_FALLBACK_RANK : ETACAL_OWN_ROW;
+            if (global && isinf(corr)) {
                 rc = etacal_error_set(err, ETACAL_ENUM, etacal_table_source(t),
                                       "method qr: %zu calibration rows; target %g needs at least %zu", nb, tau,
                                       rule_min_n(tau, o->confidence));
@@ -376,6 +420,7 @@ done:
     free(nbseg);
     free(fitpart);
     free(buf);
+    free(wbuf);
     free(coef);
     gsl_rng_free(rng);
     return rc;
@@ -433,10 +478,9 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     }
     q->confidence = opts->confidence;
     const double *wts = opts->weights;
-    if (wts && (opts->confidence > 0 || opts->method == ETACAL_METHOD_QR)) {
+    if (wts && opts->confidence > 0) {
         etacal_quotes_destroy(q);
-        return etacal_error_set(err, ETACAL_EINVAL, NULL,
-                                "recency weights go with methods add and ratio, without a confidence");
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "recency weights do not go with a confidence");
     }
     if ((rc = quotes_set_targets(q, opts->targets, opts->ntargets, err)) != 0)
         goto done;

@@ -16,7 +16,7 @@ extern "C" {
 #endif
 
 typedef struct etacal_backtest_opts {
-    int method;           /* ETACAL_METHOD_ADD or _RATIO */
+    int method;           /* ETACAL_METHOD_ADD, _RATIO or _QR */
     double target;        /* the on-time target in (0,1) */
     double window_s;      /* calibration window before each period */
     double every_s;       /* period length */
@@ -25,6 +25,11 @@ typedef struct etacal_backtest_opts {
     double gamma;         /* > 0: adaptive conformal inference (Gibbs &
                              Candes 2021): after each period the working
                              level moves by gamma (target - observed rate) */
+    double confidence;    /* as for the fit (not with half_life_s) */
+    const size_t *x_cols; /* method qr: covariates, split share and seed */
+    size_t nx;
+    double split;
+    unsigned long seed;
 } etacal_backtest_opts;
 
 typedef struct etacal_backtest_period {

@@ -25,7 +25,8 @@ static const char help[] =
     "  --half-life D         recency weights within each window, as for etacal fit\n"
     "  --adapt GAMMA         adaptive conformal inference: after each period the working\n"
     "                        level moves by GAMMA x (target - observed on-time rate)\n"
-    "  --method add|ratio    as for etacal fit (default add)\n"
+    "  --method add|ratio|qr as for etacal fit (default add), with --x, --split, --seed\n"
+    "  --confidence C        as for etacal fit\n"
     "  --min-rows N          as for etacal fit (default 200)\n"
     "  --format text|csv|json  output format (default text)\n"
     "  -o, --output FILE     write to FILE, which appears only when complete\n"
@@ -43,7 +44,7 @@ static void wilson(size_t h, size_t n, double *lo, double *hi)
 int cmd_backtest(int argc, char **argv)
 {
     enum { O_ACTUAL = 256, O_PRED, O_TIME, O_BY, O_TARGET, O_WINDOW, O_EVERY, O_HALF, O_ADAPT, O_METHOD, O_MINROWS,
-           O_FORMAT, O_DELIM, O_BAD, O_MAXBAD };
+           O_FORMAT, O_DELIM, O_BAD, O_MAXBAD, O_X, O_SPLIT, O_SEED, O_CONF };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL},   {"pred", required_argument, 0, O_PRED},
         {"time", required_argument, 0, O_TIME},       {"by", required_argument, 0, O_BY},
@@ -53,11 +54,13 @@ int cmd_backtest(int argc, char **argv)
         {"min-rows", required_argument, 0, O_MINROWS}, {"format", required_argument, 0, O_FORMAT},
         {"output", required_argument, 0, 'o'},        {"delim", required_argument, 0, O_DELIM},
         {"bad-rows", required_argument, 0, O_BAD},    {"max-bad-share", required_argument, 0, O_MAXBAD},
+        {"x", required_argument, 0, O_X},             {"split", required_argument, 0, O_SPLIT},
+        {"seed", required_argument, 0, O_SEED},       {"confidence", required_argument, 0, O_CONF},
         {"help", no_argument, 0, 'h'},                {0, 0, 0, 0}};
     const char *actual = NULL, *pred = NULL, *timecol = NULL, *output = NULL, *format = "text";
-    char *keys[MAX_KEYS];
-    size_t nkeys = 0;
-    etacal_backtest_opts bo = {ETACAL_METHOD_ADD, 0.9, 28 * 86400.0, 86400.0, 200, 0, 0};
+    char *keys[MAX_KEYS], *xs[ETACAL_QR_MAX_COVARIATES];
+    size_t nkeys = 0, nx = 0, seed = 1;
+    etacal_backtest_opts bo = {ETACAL_METHOD_ADD, 0.9, 28 * 86400.0, 86400.0, 200, 0, 0, 0, NULL, 0, 0.5, 1};
     etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
     int c;
     optind = 1;
@@ -91,8 +94,26 @@ int cmd_backtest(int argc, char **argv)
             break;
         case O_METHOD:
             bo.method = etacal_method_parse(optarg);
-            if (bo.method != ETACAL_METHOD_ADD && bo.method != ETACAL_METHOD_RATIO)
-                return usage_error("backtest", "--method must be add or ratio");
+            if (bo.method < 0)
+                return usage_error("backtest", "--method must be add, ratio or qr");
+            break;
+        case O_X:
+            nx = 0;
+            if (parse_names(optarg, xs, &nx, ETACAL_QR_MAX_COVARIATES - 1) != 0)
+                return usage_error("backtest", "--x takes up to %d comma-separated column names",
+                                   ETACAL_QR_MAX_COVARIATES - 1);
+            break;
+        case O_SPLIT:
+            if (parse_share(optarg, &bo.split) != 0 || !(bo.split > 0 && bo.split < 1))
+                return usage_error("backtest", "--split takes a share in (0,1)");
+            break;
+        case O_SEED:
+            if (parse_size(optarg, &seed) != 0)
+                return usage_error("backtest", "--seed takes a whole number");
+            break;
+        case O_CONF:
+            if (parse_share(optarg, &bo.confidence) != 0 || !(bo.confidence > 0 && bo.confidence < 1))
+                return usage_error("backtest", "--confidence takes a probability in (0,1)");
             break;
         case O_MINROWS:
             if (parse_size(optarg, &bo.min_rows) != 0 || bo.min_rows == 0)
@@ -127,25 +148,37 @@ int cmd_backtest(int argc, char **argv)
         return usage_error("backtest", "one data file only ('%s' is extra)", argv[optind + 1]);
     if (!actual || !pred || !timecol)
         return usage_error("backtest", "--actual, --pred and --time are required");
+    if (nx && bo.method != ETACAL_METHOD_QR)
+        return usage_error("backtest", "--x goes with --method qr");
+    if (bo.half_life_s > 0 && bo.confidence > 0)
+        return usage_error("backtest", "--half-life does not go with --confidence");
+    bo.seed = (unsigned long)seed;
     const char *path = argv[optind];
-    etacal_colspec cols[3 + MAX_KEYS];
+    etacal_colspec cols[3 + MAX_KEYS + ETACAL_QR_MAX_COVARIATES];
     unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
     cols[0] = (etacal_colspec){actual, ETACAL_COL_NUM, flags, "duration"};
     cols[1] = (etacal_colspec){pred, ETACAL_COL_NUM,
                                flags | (bo.method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u), "prediction"};
     cols[2] = (etacal_colspec){timecol, ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_TIME,
                                "timestamp"};
-    size_t key_cols[MAX_KEYS];
+    size_t key_cols[MAX_KEYS], x_cols[ETACAL_QR_MAX_COVARIATES];
     for (size_t j = 0; j < nkeys; j++) {
         cols[3 + j] = (etacal_colspec){keys[j], ETACAL_COL_KEY, 0, NULL};
         key_cols[j] = 3 + j;
     }
+    for (size_t j = 0; j < nx; j++) {
+        cols[3 + nkeys + j] =
+            (etacal_colspec){xs[j], ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE, "covariate"};
+        x_cols[j] = 3 + nkeys + j;
+    }
+    bo.x_cols = x_cols;
+    bo.nx = nx;
     etacal_error err;
     etacal_error_clear(&err);
     etacal_table *t = NULL;
     etacal_backtest_result r = {0};
     etacal_outfile of = {0};
-    int rc = etacal_table_read_csv(path, cols, 3 + nkeys, &ro, &t, &err);
+    int rc = etacal_table_read_csv(path, cols, 3 + nkeys + nx, &ro, &t, &err);
     if (rc)
         return report_error(&err);
     if ((rc = etacal_backtest_run(t, 0, 1, 2, key_cols, nkeys, &bo, &r, &err)) != 0)

@@ -23,7 +23,8 @@ static const char help[] =
     "\n"
     "  --actual COL, --pred COL   as for etacal fit (required)\n"
     "  --by COL[,COL...]     also per segment (most specific level)\n"
-    "  --method add|ratio    as for etacal fit (default add)\n"
+    "  --method add|ratio|qr as for etacal fit (default add), with --x and --split\n"
+    "  --confidence C        as for etacal fit\n"
     "  --from T --to T --step S   the grid of targets (default 0.5, 0.99, 0.01)\n"
     "  --holdout F           share of rows held out to measure (default 0.2)\n"
     "  --time COL            hold out the latest rows by this timestamp column\n"
@@ -54,7 +55,7 @@ static size_t grid(double from, double to, double step, double *out)
 int cmd_curve(int argc, char **argv)
 {
     enum { O_ACTUAL = 256, O_PRED, O_BY, O_METHOD, O_FROM, O_TO, O_STEP, O_HOLDOUT, O_TIME, O_SEED, O_MINROWS,
-           O_FORMAT, O_DELIM, O_BAD, O_MAXBAD };
+           O_FORMAT, O_DELIM, O_BAD, O_MAXBAD, O_X, O_SPLIT, O_CONF };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL},   {"pred", required_argument, 0, O_PRED},
         {"by", required_argument, 0, O_BY},           {"method", required_argument, 0, O_METHOD},
@@ -64,11 +65,13 @@ int cmd_curve(int argc, char **argv)
         {"min-rows", required_argument, 0, O_MINROWS}, {"format", required_argument, 0, O_FORMAT},
         {"output", required_argument, 0, 'o'},        {"delim", required_argument, 0, O_DELIM},
         {"bad-rows", required_argument, 0, O_BAD},    {"max-bad-share", required_argument, 0, O_MAXBAD},
-        {"help", no_argument, 0, 'h'},                {0, 0, 0, 0}};
+        {"x", required_argument, 0, O_X},             {"split", required_argument, 0, O_SPLIT},
+        {"confidence", required_argument, 0, O_CONF}, {"help", no_argument, 0, 'h'},
+        {0, 0, 0, 0}};
     const char *actual = NULL, *pred = NULL, *timecol = NULL, *output = NULL, *format = "text";
-    char *keys[MAX_KEYS];
-    size_t nkeys = 0, seed = 1, min_rows = 200;
-    double from = 0.5, to = 0.99, step = 0.01, holdout = 0.2;
+    char *keys[MAX_KEYS], *xs[ETACAL_QR_MAX_COVARIATES];
+    size_t nkeys = 0, seed = 1, min_rows = 200, nx = 0;
+    double from = 0.5, to = 0.99, step = 0.01, holdout = 0.2, split = 0.5, confidence = 0;
     int method = ETACAL_METHOD_ADD, c;
     etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
     optind = 1;
@@ -84,8 +87,22 @@ int cmd_curve(int argc, char **argv)
             break;
         case O_METHOD:
             method = etacal_method_parse(optarg);
-            if (method != ETACAL_METHOD_ADD && method != ETACAL_METHOD_RATIO)
-                return usage_error("curve", "--method must be add or ratio");
+            if (method < 0)
+                return usage_error("curve", "--method must be add, ratio or qr");
+            break;
+        case O_X:
+            nx = 0;
+            if (parse_names(optarg, xs, &nx, ETACAL_QR_MAX_COVARIATES - 1) != 0)
+                return usage_error("curve", "--x takes up to %d comma-separated column names",
+                                   ETACAL_QR_MAX_COVARIATES - 1);
+            break;
+        case O_SPLIT:
+            if (parse_share(optarg, &split) != 0 || !(split > 0 && split < 1))
+                return usage_error("curve", "--split takes a share in (0,1)");
+            break;
+        case O_CONF:
+            if (parse_share(optarg, &confidence) != 0 || !(confidence > 0 && confidence < 1))
+                return usage_error("curve", "--confidence takes a probability in (0,1)");
             break;
         case O_FROM:
         case O_TO:
@@ -140,13 +157,15 @@ int cmd_curve(int argc, char **argv)
         return usage_error("curve", "--actual and --pred are required");
     if (from > to)
         return usage_error("curve", "--from must not be above --to");
+    if (nx && method != ETACAL_METHOD_QR)
+        return usage_error("curve", "--x goes with --method qr");
     static double targets[MAX_GRID];
     size_t nt = grid(from, to, step, targets);
     if (nt == 0)
         return usage_error("curve", "the grid of targets is empty");
     const char *path = argv[optind];
 
-    etacal_colspec cols[3 + MAX_KEYS];
+    etacal_colspec cols[3 + MAX_KEYS + ETACAL_QR_MAX_COVARIATES];
     unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
     cols[0] = (etacal_colspec){actual, ETACAL_COL_NUM, flags, "duration"};
     cols[1] = (etacal_colspec){pred, ETACAL_COL_NUM,
@@ -155,6 +174,11 @@ int cmd_curve(int argc, char **argv)
     for (size_t j = 0; j < nkeys; j++) {
         cols[ncol] = (etacal_colspec){keys[j], ETACAL_COL_KEY, 0, NULL};
         key_cols[j] = ncol++;
+    }
+    size_t x_cols[ETACAL_QR_MAX_COVARIATES];
+    for (size_t j = 0; j < nx; j++) {
+        cols[ncol] = (etacal_colspec){xs[j], ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE, "covariate"};
+        x_cols[j] = ncol++;
     }
     long time_col = -1;
     if (timecol) {
@@ -184,12 +208,12 @@ int cmd_curve(int argc, char **argv)
                          held ? "fit on" : "hold out");
         goto fail;
     }
-    etacal_fit_opts fo = {method, targets, nt, min_rows, NULL, 0, 0, 0, 0, mask, NULL};
+    etacal_fit_opts fo = {method, targets, nt, min_rows, x_cols, nx, split, (unsigned long)seed, confidence, mask, NULL};
     if ((rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err)) != 0)
         goto fail;
     for (size_t i = 0; i < n; i++)
         mask[i] = !mask[i];
-    if ((rc = etacal_quotes_holdout(q, t, 0, 1, key_cols, NULL, mask, &ho, &err)) != 0)
+    if ((rc = etacal_quotes_holdout(q, t, 0, 1, key_cols, x_cols, mask, &ho, &err)) != 0)
         goto fail;
     if ((rc = etacal_outfile_open(&of, output ? output : "-", &err)) != 0)
         goto fail;
@@ -234,7 +258,11 @@ int cmd_curve(int argc, char **argv)
             }
             if (tt_init(&tt, 7) != 0)
                 goto fail;
-            const char *h[7] = {"target", method == ETACAL_METHOD_ADD ? "buffer s" : "factor", "mean promise min",
+            const char *h[7] = {"target",
+                                method == ETACAL_METHOD_ADD     ? "buffer s"
+                                : method == ETACAL_METHOD_RATIO ? "factor"
+                                                                : "corr s",
+                                "mean promise min",
                                 "extra min", "+min per point", "on time (held out)", "95% CI"};
             tt_add(&tt, h);
             for (int j = 0; j < 6; j++)
@@ -263,7 +291,7 @@ int cmd_curve(int argc, char **argv)
             etacal_num_format(targets[ti], tb);
             if (text) {
                 char b[6][64];
-                snprintf(b[0], sizeof b[0], method == ETACAL_METHOD_ADD ? "%.1f" : "%.4f", buf);
+                snprintf(b[0], sizeof b[0], method == ETACAL_METHOD_RATIO ? "%.4f" : "%.1f", buf);
                 snprintf(b[1], sizeof b[1], "%.2f", mp / 60);
                 snprintf(b[2], sizeof b[2], "%.2f", extra / 60);
                 if (isnan(marginal))

@@ -36,7 +36,8 @@ static const char help[] =
     "  --time COL            timestamps (ISO 8601 or Unix seconds): --holdout takes the\n"
     "                        latest rows instead of a random share (--seed)\n"
     "  --half-life D         with --time: weight each row by 2^(-age/D), age from the\n"
-    "                        newest row (weighted conformal for drift); D like 7d, 36h\n"
+    "                        newest row (weighted conformal for drift, and weighted\n"
+    "                        regression for method qr); D like 7d, 36h\n"
     "  --confidence C        choose each rank so that the on-time rate is at least the\n"
     "                        target with probability C over the calibration draw, not\n"
     "                        only on average (Beta law of the coverage)\n"
@@ -466,8 +467,8 @@ int cmd_fit(int argc, char **argv)
         return usage_error("fit", "--time goes with --holdout or --half-life");
     if (halflife && !timecol)
         return usage_error("fit", "--half-life needs --time (the age of each row)");
-    if (halflife && (confidence > 0 || method == ETACAL_METHOD_QR))
-        return usage_error("fit", "--half-life goes with methods add and ratio, without --confidence");
+    if (halflife && confidence > 0)
+        return usage_error("fit", "--half-life does not go with --confidence");
     if (timecol) {
         if (strcmp(timecol, actual) == 0 || strcmp(timecol, pred) == 0)
             return usage_error("fit", "--time '%s' is already the actual or the prediction", timecol);

@@ -64,7 +64,7 @@ static int teardown(void **state)
 
 static etacal_backtest_result run(double half_life_d, double gamma)
 {
-    etacal_backtest_opts o = {ETACAL_METHOD_ADD, 0.9, 14 * 86400.0, 86400.0, 100, half_life_d * 86400, gamma};
+    etacal_backtest_opts o = {ETACAL_METHOD_ADD, 0.9, 14 * 86400.0, 86400.0, 100, half_life_d * 86400, gamma, 0, NULL, 0, 0, 0};
     etacal_backtest_result r;
     etacal_error err;
     assert_int_equal(etacal_backtest_run(tbl, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_OK);
@@ -126,7 +126,7 @@ static void test_drift_and_adaptation(void **state)
 static void test_errors(void **state)
 {
     (void)state;
-    etacal_backtest_opts o = {ETACAL_METHOD_ADD, 0.9, 100 * 86400.0, 86400.0, 100, 0, 0};
+    etacal_backtest_opts o = {ETACAL_METHOD_ADD, 0.9, 100 * 86400.0, 86400.0, 100, 0, 0, 0, NULL, 0, 0, 0};
     etacal_backtest_result r;
     etacal_error err;
     assert_int_equal(etacal_backtest_run(tbl, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_ENUM);
