@@ -14,6 +14,7 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <threads.h>
 
 const char *etacal_method_name(int method)
 {
@@ -426,6 +427,96 @@ done:
     return rc;
 }
 
+/* ---- the two row passes of the fit, over halves of the rows at once --- */
+
+typedef struct passa {
+    const double *y, *p;
+    const unsigned char *mask;
+    size_t lo, hi;
+    int ratio;
+    ksum sq, ab, me;
+    size_t on_time;
+    double lo_s, hi_s;
+    size_t bad_row; /* first row (1-based) with a non-finite value or a bad ratio prediction; 0 none */
+    int bad_kind;   /* 1 non-finite, 2 ratio prediction <= 0 */
+} passa;
+
+static int pass_a(void *arg)
+{
+    passa *a = arg;
+    a->lo_s = INFINITY;
+    a->hi_s = -INFINITY;
+    for (size_t i = a->lo; i < a->hi; i++) {
+        if (a->mask && !a->mask[i])
+            continue;
+        double y = a->y[i], pr = a->p[i];
+        if (!isfinite(y) || !isfinite(pr)) {
+            a->bad_row = i + 1;
+            a->bad_kind = 1;
+            return 0;
+        }
+        if (a->ratio && !(pr > 0)) {
+            a->bad_row = i + 1;
+            a->bad_kind = 2;
+            return 0;
+        }
+        double sc = a->ratio ? y / pr : y - pr, e = y - pr;
+        ksum_add(&a->sq, e * e);
+        ksum_add(&a->ab, fabs(e));
+        ksum_add(&a->me, e);
+        a->on_time += (size_t)(y <= pr);
+        a->lo_s = sc < a->lo_s ? sc : a->lo_s;
+        a->hi_s = sc > a->hi_s ? sc : a->hi_s;
+    }
+    return 0;
+}
+
+typedef struct passb {
+    const double *y, *p, *wts;
+    const unsigned char *mask;
+    const seghier *hs;
+    size_t lo, hi, nkeys, nseg, B;
+    int ratio;
+    double lo_s, scale0;
+    size_t *hist, *n, *bare; /* this half's: nseg * B, nseg, nseg */
+    double *whist, *wseg;    /* with weights */
+} passb;
+
+static int pass_b(void *arg)
+{
+    passb *b = arg;
+    for (size_t i = b->lo; i < b->hi; i++) {
+        if (b->mask && !b->mask[i])
+            continue;
+        double sc = b->ratio ? b->y[i] / b->p[i] : b->y[i] - b->p[i];
+        size_t hit = b->y[i] <= b->p[i], bk = bucket(sc, b->lo_s, b->scale0, b->B);
+        for (uint32_t g = seghier_row(b->hs, b->nkeys, i), L = (uint32_t)b->nkeys + 1; L-- > 0;
+             g = (uint32_t)b->hs->parent[g]) {
+            b->n[g]++;
+            b->bare[g] += hit;
+            b->hist[(size_t)g * b->B + bk]++;
+            if (b->wts) {
+                b->whist[(size_t)g * b->B + bk] += b->wts[i];
+                b->wseg[g] += b->wts[i];
+            }
+        }
+    }
+    return 0;
+}
+
+/* Runs f on a and b, b in a second thread when the rows are many; the
+ * halves are fixed, so the result does not depend on timing. */
+static void run_halves(int (*f)(void *), void *a, void *b, int two)
+{
+    thrd_t th;
+    int started = two && thrd_create(&th, f, b) == thrd_success;
+    f(a);
+    if (started)
+        thrd_join(th, NULL);
+    else if (two)
+        f(b);
+}
+
 int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
                       const size_t *key_cols, size_t nkeys, const etacal_fit_opts *opts,
                       etacal_quotes **out, etacal_error *err)
@@ -513,33 +604,31 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     }
 
     /* 2. Pass over the rows without segments: validation, accuracy and
-     *    the range of the scores. */
+     *    the range of the scores (two halves at once for large tables; the
+     *    compensated sums are merged in row order). */
     int ratio = q->method == ETACAL_METHOD_RATIO;
-    ksum sq = {0, 0}, ab = {0, 0}, me = {0, 0};
-    size_t on_time = 0;
-    double lo_s = INFINITY, hi_s = -INFINITY;
-    for (size_t i = 0; i < n; i++) {
-        if (mask && !mask[i])
-            continue;
-        double a = y[i], pr = p[i];
-        if (!isfinite(a) || !isfinite(pr)) {
-            rc = etacal_error_set(err, ETACAL_EINVAL, src, "non-finite actual or prediction in data row %zu", i + 1);
+    int two = n >= 200000;
+    size_t mid = two ? n / 2 : n;
+    passa pa[2] = {{y, p, mask, 0, mid, ratio, {0, 0}, {0, 0}, {0, 0}, 0, 0, 0, 0, 0},
+                   {y, p, mask, mid, n, ratio, {0, 0}, {0, 0}, {0, 0}, 0, 0, 0, 0, 0}};
+    run_halves(pass_a, &pa[0], &pa[1], two);
+    for (int h = 0; h < 2; h++)
+        if (pa[h].bad_row) {
+            rc = pa[h].bad_kind == 1
+                     ? etacal_error_set(err, ETACAL_EINVAL, src, "non-finite actual or prediction in data row %zu",
+                                        pa[h].bad_row)
+                     : etacal_error_set(err, ETACAL_EINVAL, src,
+                                        "method ratio needs predictions > 0 (data row %zu has %g)", pa[h].bad_row,
+                                        p[pa[h].bad_row - 1]);
             goto done;
         }
-        if (ratio && !(pr > 0)) {
-            rc = etacal_error_set(err, ETACAL_EINVAL, src,
-                                  "method ratio needs predictions > 0 (data row %zu has %g)", i + 1, pr);
-            goto done;
-        }
-        double sc = ratio ? a / pr : a - pr;
-        double e = a - pr;
-        ksum_add(&sq, e * e);
-        ksum_add(&ab, fabs(e));
-        ksum_add(&me, e);
-        on_time += (size_t)(a <= pr);
-        lo_s = sc < lo_s ? sc : lo_s;
-        hi_s = sc > hi_s ? sc : hi_s;
-    }
+    ksum sq = pa[0].sq, ab = pa[0].ab, me = pa[0].me;
+    ksum_add(&sq, ksum_value(&pa[1].sq));
+    ksum_add(&ab, ksum_value(&pa[1].ab));
+    ksum_add(&me, ksum_value(&pa[1].me));
+    size_t on_time = pa[0].on_time + pa[1].on_time;
+    double lo_s = pa[0].lo_s < pa[1].lo_s ? pa[0].lo_s : pa[1].lo_s;
+    double hi_s = pa[0].hi_s > pa[1].hi_s ? pa[0].hi_s : pa[1].hi_s;
     q->accuracy.n = nfit;
     q->accuracy.rmse = sqrt(ksum_value(&sq) / (double)nfit);
     q->accuracy.mae = ksum_value(&ab) / (double)nfit;
@@ -587,21 +676,40 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     }
     double width = hi_s - lo_s;
     double scale0 = width > 0 && isfinite(width) ? (double)B / width : 0;
-    for (size_t i = 0; i < n; i++) {
-        if (mask && !mask[i])
-            continue;
-        double sc = ratio ? y[i] / p[i] : y[i] - p[i];
-        size_t hit = y[i] <= p[i], b = bucket(sc, lo_s, scale0, B);
-        for (uint32_t g = seghier_row(&hs, nkeys, i), L = (uint32_t)nkeys + 1; L-- > 0;
-             g = (uint32_t)hs.parent[g]) {
-            q->segs[g].n++;
-            q->segs[g].bare_hits += hit;
-            hist[(size_t)g * B + b]++;
+    {
+        /* the second half counts into its own arrays, added to the first's */
+        size_t *h2 = NULL, *n2 = NULL, *b2 = NULL;
+        double *wh2 = NULL, *ws2 = NULL;
+        size_t *n1 = calloc(nseg, sizeof *n1), *b1 = calloc(nseg, sizeof *b1);
+        if (two) {
+            h2 = calloc(nseg * B, sizeof *h2);
+            n2 = calloc(nseg, sizeof *n2);
+            b2 = calloc(nseg, sizeof *b2);
             if (wts) {
-                whist[(size_t)g * B + b] += wts[i];
-                wseg[g] += wts[i];
+                wh2 = calloc(nseg * B, sizeof *wh2);
+                ws2 = calloc(nseg, sizeof *ws2);
             }
         }
+        if (!n1 || !b1 || (two && (!h2 || !n2 || !b2 || (wts && (!wh2 || !ws2))))) {
+            free(n1), free(b1), free(h2), free(n2), free(b2), free(wh2), free(ws2);
+            goto nomem;
+        }
+        passb pb[2] = {{y, p, wts, mask, &hs, 0, mid, nkeys, nseg, B, ratio, lo_s, scale0, hist, n1, b1, whist, wseg},
+                       {y, p, wts, mask, &hs, mid, n, nkeys, nseg, B, ratio, lo_s, scale0, h2, n2, b2, wh2, ws2}};
+        run_halves(pass_b, &pb[0], &pb[1], two);
+        for (size_t g = 0; g < nseg; g++) {
+            q->segs[g].n = n1[g] + (two ? n2[g] : 0);
+            q->segs[g].bare_hits = b1[g] + (two ? b2[g] : 0);
+            if (two && wts)
+                wseg[g] += ws2[g];
+        }
+        if (two)
+            for (size_t c = 0; c < nseg * B; c++) {
+                hist[c] += h2[c];
+                if (wts)
+                    whist[c] += wh2[c];
+            }
+        free(n1), free(b1), free(h2), free(n2), free(b2), free(wh2), free(ws2);
     }
     size_t ncand = 0;
     for (size_t g = 0; g < nseg; g++) {
