@@ -522,6 +522,20 @@ static void progress_scaled(void *ud, uint64_t done, uint64_t total)
     m->fn(m->ud, d < m->size ? d : m->size, m->size);
 }
 
+/* An error of the second part names its line from the part's start: shift
+ * it to the file's line (the number after the last ':' of "FILE:LINE"). */
+static void shift_where(etacal_error *err, const char *path, size_t shift)
+{
+    char *colon = strrchr(err->where, ':');
+    if (!colon || colon[1] < '0' || colon[1] > '9')
+        return;
+    char *end;
+    unsigned long long line = strtoull(colon + 1, &end, 10);
+    if (*end)
+        return;
+    format_where(err->where, sizeof err->where, path, (size_t)line + shift);
+}
+
 /* Files smaller than this are read by one thread. */
 #define PARALLEL_MIN ((uint64_t)16 << 20)
 
@@ -558,20 +572,19 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
     /* A large regular file is read in two halves at once, split at a
      * record boundary; the rows keep their file order. */
     uint64_t header_end = 0, split = 0;
-    size_t header_lines = 0, split_line = 0;
+    size_t header_lines = 0;
     struct stat st;
     int parallel = opts->threads != 1 && strcmp(path, "-") != 0 && stat(path, &st) == 0 &&
                    S_ISREG(st.st_mode) && (uint64_t)st.st_size >= PARALLEL_MIN &&
                    sysconf(_SC_NPROCESSORS_ONLN) > 1 &&
-                   csv_find_split(path, (uint64_t)st.st_size, &header_end, &header_lines, &split,
-                                  &split_line) == 0 &&
+                   csv_find_split(path, (uint64_t)st.st_size, &header_end, &header_lines, &split) == 0 &&
                    header_end > 0 && split > header_end && split < (uint64_t)st.st_size;
     if (!parallel) {
         rc = csvstream_run(path, delim, 0, &cb, &t->stats.bytes, err);
         if (rc)
             goto done;
     } else {
-        csvstream_range hr = {0, header_end, 1};
+        csvstream_range hr = {0, header_end, 1, 0, 0, 0};
         uint64_t hbytes = 0;
         rc = csvstream_run_range(path, delim, 0, &cb, &hr, &hbytes, err);
         if (rc)
@@ -586,13 +599,15 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
         pt->r.header_done = 1;
         pt->r.role = r.role;
         pt->r.nheader = r.nheader;
-        pt->range = (csvstream_range){split, (uint64_t)st.st_size, split_line};
+        /* lines of the second part counted from 1, shifted once the first
+         * part has told where it ends */
+        pt->range = (csvstream_range){split, (uint64_t)st.st_size, 1, 0, 0, 0};
         pt->delim = delim;
         thrd_t th;
         int started = thrd_create(&th, part_main, pt) == thrd_success;
         if (!started)
             part_main(pt);
-        csvstream_range dr = {header_end, split, header_lines + 1};
+        csvstream_range dr = {header_end, split, header_lines + 1, 1, 0, 0};
         progress_map pm = {opts->progress, opts->progress_ud, header_end, (uint64_t)st.st_size,
                            (double)((uint64_t)st.st_size - header_end) / (double)(split - header_end)};
         if (opts->progress) {
@@ -603,13 +618,38 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
         if (started)
             thrd_join(th, NULL);
         t->stats.bytes += hbytes;
+        if (!rc && dr.open_end) {
+            /* the middle fell inside a quoted field: read it all with one
+             * thread instead */
+            etacal_table_destroy(tb);
+            tb = NULL;
+            reader_free(&pt->r, 0);
+            free(pt);
+            pt = NULL;
+            reader_free(&r, 1);
+            etacal_table_destroy(t);
+            t = table_new(path, cols, ncols);
+            if (!t || reader_init(&r, t, cols, opts, path, err) != 0) {
+                rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+                goto done;
+            }
+            csvstream_cb cb1 = {on_field, on_row, &r, opts->progress, opts->progress_ud};
+            rc = csvstream_run(path, delim, 0, &cb1, &t->stats.bytes, err);
+            if (rc)
+                goto done;
+            goto finish;
+        }
         if (rc)
             goto done; /* the first error in file order */
+        size_t shift = dr.end_line - 1;
         if (pt->rc) {
             rc = pt->rc;
             *err = pt->err;
+            shift_where(err, path, shift);
             goto done;
         }
+        if (tb->stats.first_bad_line)
+            tb->stats.first_bad_line += shift;
         tb->stats.bytes = pt->bytes;
         stats_add(&t->stats, &tb->stats);
         if (table_append(t, tb) != 0) {
@@ -617,6 +657,7 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
             goto done;
         }
     }
+finish:
     if (!r.header_done) {
         rc = etacal_error_set(err, ETACAL_EPARSE, path, "empty file: expected a header row");
         goto done;

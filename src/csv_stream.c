@@ -116,8 +116,8 @@ int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb,
     return csvstream_run_range(path, delim, raw, cb, NULL, bytes_out, err);
 }
 
-int csvstream_run_range(const char *path, char delim, int raw, const csvstream_cb *cb,
-                        const csvstream_range *range, uint64_t *bytes_out, etacal_error *err)
+int csvstream_run_range(const char *path, char delim, int raw, const csvstream_cb *cb, csvstream_range *range,
+                        uint64_t *bytes_out, etacal_error *err)
 {
     int rc = ETACAL_OK;
     FILE *fp = NULL;
@@ -289,6 +289,10 @@ int csvstream_run_range(const char *path, char delim, int raw, const csvstream_c
             goto done;
         }
     }
+    if (!c.stopped && range && range->allow_open && p.quoted) {
+        range->open_end = 1; /* the caller's split fell inside a quoted field */
+        goto done;
+    }
     if (!c.stopped) {
         size_t startline = c.line;
         if (csv_fini(&p, on_field, on_row, &c) != 0) {
@@ -302,6 +306,8 @@ int csvstream_run_range(const char *path, char delim, int raw, const csvstream_c
         rc = err && err->code ? err->code : ETACAL_EPARSE;
 
 done:
+    if (range)
+        range->end_line = c.line;
     if (bytes_out)
         *bytes_out = done;
     if (parser_ok)
@@ -347,22 +353,12 @@ void rowbuf_free(rowbuf *r)
     memset(r, 0, sizeof *r);
 }
 
-/* Line feeds in a block with no quote character. */
-static size_t count_lf(const unsigned char *b, size_t n)
-{
-    size_t c = 0;
-    for (size_t i = 0; i < n; i++)
-        c += b[i] == '\n';
-    return c;
-}
-
 int csv_find_split(const char *path, uint64_t size, uint64_t *header_end, size_t *header_lines,
-                   uint64_t *split, size_t *split_line)
+                   uint64_t *split)
 {
     *header_end = 0;
     *header_lines = 0;
     *split = 0;
-    *split_line = 0;
     FILE *fp = fopen(path, "rb");
     if (!fp)
         return -1;
@@ -371,41 +367,36 @@ int csv_find_split(const char *path, uint64_t size, uint64_t *header_end, size_t
         fclose(fp);
         return -1;
     }
-    uint64_t pos = 0, mid = size / 2;
+    int rc = 0, parity = 0;
     size_t lines = 0;
-    int parity = 0, rc = 0;
-    for (;;) {
-        size_t got = fread(buf, 1, CHUNK, fp);
-        if (got == 0) {
-            rc = ferror(fp) ? -1 : 0;
-            break;
-        }
-        size_t i = 0;
-        if (*header_end && pos + got < mid && !memchr(buf, '"', got)) {
-            lines += count_lf(buf, got); /* parity unchanged */
-            pos += got;
-            continue;
-        }
-        for (; i < got; i++) {
-            if (buf[i] == '"') {
-                parity ^= 1;
-            } else if (buf[i] == '\n') {
-                lines++;
-                if (parity)
-                    continue;
-                if (!*header_end) {
-                    *header_end = pos + i + 1;
-                    *header_lines = lines;
-                } else if (pos + i + 1 >= mid) {
-                    *split = pos + i + 1;
-                    *split_line = lines + 1;
-                    goto out;
-                }
+    /* the header: the first line feed outside quotes in the first chunk */
+    size_t got = fread(buf, 1, CHUNK, fp);
+    for (size_t i = 0; i < got; i++) {
+        if (buf[i] == '"')
+            parity ^= 1;
+        else if (buf[i] == '\n') {
+            lines++;
+            if (!parity) {
+                *header_end = i + 1;
+                *header_lines = lines;
+                break;
             }
         }
-        pos += got;
     }
-out:
+    /* the candidate split: the first line feed at or after the middle */
+    uint64_t pos = size / 2;
+    if (*header_end && pos > *header_end && fseeko(fp, (off_t)pos, SEEK_SET) == 0) {
+        while ((got = fread(buf, 1, 1u << 16, fp)) > 0) {
+            const unsigned char *nl = memchr(buf, '\n', got);
+            if (nl) {
+                *split = pos + (uint64_t)(nl - buf) + 1;
+                break;
+            }
+            pos += got;
+        }
+    }
+    if (ferror(fp))
+        rc = -1;
     free(buf);
     fclose(fp);
     return rc;

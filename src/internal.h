@@ -92,19 +92,22 @@ int csvstream_run(const char *path, char delim, int raw, const csvstream_cb *cb,
 typedef struct csvstream_range {
     uint64_t start, end;
     size_t first_line;
+    int allow_open; /* in: the range may end inside a quoted field */
+    int open_end;   /* out: it did (the caller's split was not a record boundary) */
+    size_t end_line; /* out: the physical line after the range's last record */
 } csvstream_range;
 
-int csvstream_run_range(const char *path, char delim, int raw, const csvstream_cb *cb,
-                        const csvstream_range *range, uint64_t *bytes_out, etacal_error *err);
+int csvstream_run_range(const char *path, char delim, int raw, const csvstream_cb *cb, csvstream_range *range,
+                        uint64_t *bytes_out, etacal_error *err);
 
-/* Finds where the header record of a regular file ends and a record
- * boundary near the middle of the rest, by quote parity (RFC 4180: quotes
- * inside a field are doubled, so an even count of quote bytes before a
- * line feed means the line feed ends a record).  Fills *header_end,
- * *split (0 if none was found) and *split_line, the physical line at split.
+/* Finds where the header record of a regular file ends (the first line
+ * feed outside quotes, with the header's physical lines) and a candidate
+ * split: the first line feed at or after the middle.  Reads only the start
+ * and a little around the middle; whether the split is a record boundary is
+ * known only once the first part has been parsed up to it (open_end).
  * Returns 0, or -1 on a read error. */
 int csv_find_split(const char *path, uint64_t size, uint64_t *header_end, size_t *header_lines,
-                   uint64_t *split, size_t *split_line);
+                   uint64_t *split);
 
 /* "FILE:LINE" into buf. */
 void format_where(char *buf, size_t size, const char *path, size_t line);

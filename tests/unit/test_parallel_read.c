@@ -205,6 +205,48 @@ static void test_wide_keys(void **state)
     etacal_table_destroy(b);
 }
 
+/* The middle of the file falls inside a quoted field that holds many line
+ * feeds: the two-part read must notice and read the file whole. */
+static void test_split_inside_quotes(void **state)
+{
+    (void)state;
+    FILE *fp = fopen(path, "w");
+    assert_non_null(fp);
+    fprintf(fp, "zone,note,pred,actual\n");
+    size_t rows = 0;
+    for (; rows < 300000; rows++)
+        fprintf(fp, "z%zu,n,%zu.5,%zu.25\n", rows % 7, 600 + rows % 900, 610 + rows % 977);
+    fprintf(fp, "zq,\"");
+    for (int i = 0; i < 400000; i++)
+        fprintf(fp, "line %d of a long note\n", i);
+    fprintf(fp, "\",700,710\n");
+    rows++;
+    for (size_t i = 0; i < 50000; i++, rows++)
+        fprintf(fp, "z%zu,n,%zu.5,%zu.25\n", i % 7, 600 + i % 900, 610 + i % 977);
+    fprintf(fp, "z1,n,700,oops\n");
+    assert_int_equal(fclose(fp), 0);
+    struct stat st;
+    assert_int_equal(stat(path, &st), 0);
+    assert_true(st.st_size >= (off_t)16 << 20);
+    etacal_table *a = NULL, *b = NULL;
+    etacal_error ea, eb;
+    /* the bad last row: both reads name the same physical line */
+    assert_int_equal(read_with(1, 0, &a, &ea), ETACAL_EPARSE);
+    assert_int_equal(read_with(0, 0, &b, &eb), ETACAL_EPARSE);
+    assert_string_equal(ea.where, eb.where);
+    char want[160];
+    snprintf(want, sizeof want, "%s:%zu", path, (size_t)(1 + 300000 + 400001 + 50000 + 1));
+    assert_string_equal(eb.where, want);
+    /* skipping it, the same rows either way */
+    assert_int_equal(read_with(1, 1, &a, &ea), ETACAL_OK);
+    assert_int_equal(read_with(0, 1, &b, &eb), ETACAL_OK);
+    assert_int_equal(etacal_table_rows(a), rows);
+    assert_int_equal(etacal_table_rows(b), rows);
+    assert_memory_equal(etacal_table_num(a, 0), etacal_table_num(b, 0), rows * sizeof(double));
+    etacal_table_destroy(a);
+    etacal_table_destroy(b);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -212,6 +254,7 @@ int main(void)
         cmocka_unit_test(test_error_line_second_half),
         cmocka_unit_test(test_first_error_wins),
         cmocka_unit_test(test_wide_keys),
+        cmocka_unit_test(test_split_inside_quotes),
     };
     return cmocka_run_group_tests_name("parallel_read", tests, setup, teardown);
 }
