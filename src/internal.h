@@ -154,8 +154,50 @@ typedef struct segset {
 } segset;
 
 int segset_build(segset *s, const etacal_table *t, const size_t *key_cols, size_t nkeys, etacal_error *err);
-/* The segment of a row (0 when there are no keys). */
-uint32_t segset_row(const segset *s, size_t row);
+
+/* The segment of a row (0 when there are no keys), inline: it runs once per
+ * row in every pass of a fit. */
+static inline uint64_t mix64(uint64_t x)
+{
+    x ^= x >> 33;
+    x *= UINT64_C(0xff51afd7ed558ccd);
+    x ^= x >> 33;
+    return x;
+}
+
+static inline uint32_t key_at(const keycol *k, size_t i)
+{
+    return k->width == 2 ? ((const uint16_t *)k->ids)[i] : ((const uint32_t *)k->ids)[i];
+}
+
+static inline uint64_t row_code(const keycol *keyids, const size_t *kc, size_t nkeys, size_t i)
+{
+    uint64_t code = 0;
+    for (size_t j = 0; j < nkeys; j++)
+        code = code * (uint64_t)kc[j] + key_at(&keyids[j], i);
+    return code;
+}
+
+static inline uint32_t row_seg(const segmap *m, const keycol *keyids, const size_t *kc, size_t nkeys,
+                        size_t i)
+{
+    if (nkeys == 0)
+        return 0;
+    uint64_t code = row_code(keyids, kc, nkeys, i);
+    if (m->direct)
+        return m->direct[code] - 1;
+    size_t mask = m->nslots - 1;
+    size_t s = (size_t)mix64(code) & mask;
+    while (m->hkeys[s] != code)
+        s = (s + 1) & mask;
+    return m->hvals[s] - 1;
+}
+
+static inline uint32_t segset_row(const segset *s, size_t row)
+{
+    return row_seg(&s->map, s->kcols, s->kc, s->nkeys, row);
+}
+
 void segset_free(segset *s);
 
 /* seghier: the segments of every level of the keys (segment.c): with

@@ -446,27 +446,39 @@ static int pass_a(void *arg)
     passa *a = arg;
     a->lo_s = INFINITY;
     a->hi_s = -INFINITY;
-    for (size_t i = a->lo; i < a->hi; i++) {
-        if (a->mask && !a->mask[i])
-            continue;
-        double y = a->y[i], pr = a->p[i];
-        if (!isfinite(y) || !isfinite(pr)) {
-            a->bad_row = i + 1;
-            a->bad_kind = 1;
-            return 0;
+    /* plain sums within blocks of 256 rows, compensated across blocks */
+    for (size_t i0 = a->lo; i0 < a->hi; i0 += 256) {
+        size_t e = i0 + 256 < a->hi ? i0 + 256 : a->hi;
+        double sq = 0, ab = 0, me = 0, lo = a->lo_s, hi = a->hi_s;
+        size_t on = 0;
+        for (size_t i = i0; i < e; i++) {
+            if (a->mask && !a->mask[i])
+                continue;
+            double y = a->y[i], pr = a->p[i];
+            if (!isfinite(y) || !isfinite(pr)) {
+                a->bad_row = i + 1;
+                a->bad_kind = 1;
+                return 0;
+            }
+            if (a->ratio && !(pr > 0)) {
+                a->bad_row = i + 1;
+                a->bad_kind = 2;
+                return 0;
+            }
+            double sc = a->ratio ? y / pr : y - pr, d = y - pr;
+            sq += d * d;
+            ab += fabs(d);
+            me += d;
+            on += (size_t)(y <= pr);
+            lo = sc < lo ? sc : lo;
+            hi = sc > hi ? sc : hi;
         }
-        if (a->ratio && !(pr > 0)) {
-            a->bad_row = i + 1;
-            a->bad_kind = 2;
-            return 0;
-        }
-        double sc = a->ratio ? y / pr : y - pr, e = y - pr;
-        ksum_add(&a->sq, e * e);
-        ksum_add(&a->ab, fabs(e));
-        ksum_add(&a->me, e);
-        a->on_time += (size_t)(y <= pr);
-        a->lo_s = sc < a->lo_s ? sc : a->lo_s;
-        a->hi_s = sc > a->hi_s ? sc : a->hi_s;
+        ksum_add(&a->sq, sq);
+        ksum_add(&a->ab, ab);
+        ksum_add(&a->me, me);
+        a->on_time += on;
+        a->lo_s = lo;
+        a->hi_s = hi;
     }
     return 0;
 }

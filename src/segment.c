@@ -36,13 +36,6 @@ static void segmap_free(segmap *m)
     free(m->hvals);
 }
 
-static uint64_t mix64(uint64_t x)
-{
-    x ^= x >> 33;
-    x *= UINT64_C(0xff51afd7ed558ccd);
-    x ^= x >> 33;
-    return x;
-}
 
 static uint32_t *segmap_slot(segmap *m, uint64_t code)
 {
@@ -80,18 +73,7 @@ static int segmap_grow(segmap *m)
 /* The mixed-radix code of row i's key ids. */
 
 
-static inline uint32_t key_at(const keycol *k, size_t i)
-{
-    return k->width == 2 ? ((const uint16_t *)k->ids)[i] : ((const uint32_t *)k->ids)[i];
-}
 
-static uint64_t row_code(const keycol *keyids, const size_t *kc, size_t nkeys, size_t i)
-{
-    uint64_t code = 0;
-    for (size_t j = 0; j < nkeys; j++)
-        code = code * (uint64_t)kc[j] + key_at(&keyids[j], i);
-    return code;
-}
 
 /* Segment numbers in the map become remap[number]. */
 static void segmap_renumber(segmap *m, const uint32_t *remap)
@@ -104,20 +86,6 @@ static void segmap_renumber(segmap *m, const uint32_t *remap)
 }
 
 /* Row i's segment (0, the global one, when there are no keys). */
-static uint32_t row_seg(const segmap *m, const keycol *keyids, const size_t *kc, size_t nkeys,
-                        size_t i)
-{
-    if (nkeys == 0)
-        return 0;
-    uint64_t code = row_code(keyids, kc, nkeys, i);
-    if (m->direct)
-        return m->direct[code] - 1;
-    size_t mask = m->nslots - 1;
-    size_t s = (size_t)mix64(code) & mask;
-    while (m->hkeys[s] != code)
-        s = (s + 1) & mask;
-    return m->hvals[s] - 1;
-}
 
 typedef struct sortent {
     char **keys;
@@ -165,10 +133,6 @@ void segset_free(segset *s)
     memset(s, 0, sizeof *s);
 }
 
-uint32_t segset_row(const segset *s, size_t row)
-{
-    return row_seg(&s->map, s->kcols, s->kc, s->nkeys, row);
-}
 
 int segset_build(segset *s, const etacal_table *t, const size_t *key_cols, size_t nkeys, etacal_error *err)
 {
