@@ -31,6 +31,16 @@ int usage_error(const char *cmd, const char *fmt, ...)
 /* Prints "etacal: WHERE: MSG" for a library error; returns EXIT_DATA. */
 int report_error(const etacal_error *err);
 
+/* The options of every command that reads a data file with etacal_read_opts:
+ * --delim, --bad-rows, --max-bad-share, --threads. */
+enum { OPT_DELIM = 900, OPT_BAD_ROWS, OPT_MAX_BAD, OPT_THREADS };
+#define READ_OPTIONS                                                                                         \
+    {"delim", required_argument, 0, OPT_DELIM}, {"bad-rows", required_argument, 0, OPT_BAD_ROWS},           \
+        {"max-bad-share", required_argument, 0, OPT_MAX_BAD}, {"threads", required_argument, 0, OPT_THREADS}
+/* Handles one of them: 0 when handled, EXIT_USAGE after a message for a bad
+ * value, -1 when c is not one of them. */
+int read_option(int c, const char *cmd, etacal_read_opts *ro);
+
 /* Option values shared by the commands. */
 int parse_delim(const char *s, char *out);
 int parse_bad_rows(const char *s, int *out);

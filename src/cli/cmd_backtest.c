@@ -44,7 +44,7 @@ static void wilson(size_t h, size_t n, double *lo, double *hi)
 int cmd_backtest(int argc, char **argv)
 {
     enum { O_ACTUAL = 256, O_PRED, O_TIME, O_BY, O_TARGET, O_WINDOW, O_EVERY, O_HALF, O_ADAPT, O_METHOD, O_MINROWS,
-           O_FORMAT, O_DELIM, O_BAD, O_MAXBAD, O_X, O_SPLIT, O_SEED, O_CONF };
+           O_FORMAT, O_X, O_SPLIT, O_SEED, O_CONF };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL},   {"pred", required_argument, 0, O_PRED},
         {"time", required_argument, 0, O_TIME},       {"by", required_argument, 0, O_BY},
@@ -52,11 +52,9 @@ int cmd_backtest(int argc, char **argv)
         {"every", required_argument, 0, O_EVERY},     {"half-life", required_argument, 0, O_HALF},
         {"adapt", required_argument, 0, O_ADAPT},     {"method", required_argument, 0, O_METHOD},
         {"min-rows", required_argument, 0, O_MINROWS}, {"format", required_argument, 0, O_FORMAT},
-        {"output", required_argument, 0, 'o'},        {"delim", required_argument, 0, O_DELIM},
-        {"bad-rows", required_argument, 0, O_BAD},    {"max-bad-share", required_argument, 0, O_MAXBAD},
-        {"x", required_argument, 0, O_X},             {"split", required_argument, 0, O_SPLIT},
+        {"output", required_argument, 0, 'o'},        {"x", required_argument, 0, O_X},             {"split", required_argument, 0, O_SPLIT},
         {"seed", required_argument, 0, O_SEED},       {"confidence", required_argument, 0, O_CONF},
-        {"help", no_argument, 0, 'h'},                {0, 0, 0, 0}};
+        READ_OPTIONS, {"help", no_argument, 0, 'h'},                {0, 0, 0, 0}};
     const char *actual = NULL, *pred = NULL, *timecol = NULL, *output = NULL, *format = "text";
     char *keys[MAX_KEYS], *xs[ETACAL_QR_MAX_COVARIATES];
     size_t nkeys = 0, nx = 0, seed = 1;
@@ -125,21 +123,16 @@ int cmd_backtest(int argc, char **argv)
             format = optarg;
             break;
         case 'o': output = optarg; break;
-        case O_DELIM:
-            if (parse_delim(optarg, &ro.delim) != 0)
-                return usage_error("backtest", "--delim must be comma, semicolon, tab or pipe");
-            break;
-        case O_BAD:
-            if (parse_bad_rows(optarg, &ro.bad_rows) != 0)
-                return usage_error("backtest", "--bad-rows must be error or skip");
-            break;
-        case O_MAXBAD:
-            if (parse_share(optarg, &ro.max_bad_share) != 0)
-                return usage_error("backtest", "--max-bad-share takes a share in [0,1]");
-            break;
         case 'h': fputs(help, stdout); return 0;
         case ':': return usage_error("backtest", "option '%s' needs a value", argv[optind - 1]);
-        default: return usage_error("backtest", "unknown option '%s'", argv[optind - 1]);
+        default: {
+            int r = read_option(c, "backtest", &ro);
+            if (r > 0)
+                return r;
+            if (r < 0)
+                return usage_error("backtest", "unknown option '%s'", argv[optind - 1]);
+            break;
+        }
         }
     }
     if (optind >= argc)

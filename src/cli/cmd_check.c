@@ -327,17 +327,14 @@ static json_t *build_json(const char *path, const etacal_table *t, const etacal_
 
 int cmd_check(int argc, char **argv)
 {
-    enum { O_ACTUAL = 256, O_UPPER, O_LOWER, O_QUANT, O_BY, O_CONF, O_CI, O_MINROWS, O_FORMAT, O_GATE,
-           O_DELIM, O_BAD, O_MAXBAD, O_THREADS };
+    enum { O_ACTUAL = 256, O_UPPER, O_LOWER, O_QUANT, O_BY, O_CONF, O_CI, O_MINROWS, O_FORMAT, O_GATE };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL},   {"upper", required_argument, 0, O_UPPER},
         {"lower", required_argument, 0, O_LOWER},     {"quantile", required_argument, 0, O_QUANT},
         {"by", required_argument, 0, O_BY},           {"confidence", required_argument, 0, O_CONF},
         {"ci", required_argument, 0, O_CI},           {"min-rows", required_argument, 0, O_MINROWS},
         {"format", required_argument, 0, O_FORMAT},   {"gate", no_argument, 0, O_GATE},
-        {"output", required_argument, 0, 'o'},        {"delim", required_argument, 0, O_DELIM},
-        {"bad-rows", required_argument, 0, O_BAD},    {"max-bad-share", required_argument, 0, O_MAXBAD},
-        {"threads", required_argument, 0, O_THREADS}, {"help", no_argument, 0, 'h'},
+        {"output", required_argument, 0, 'o'},        READ_OPTIONS, {"help", no_argument, 0, 'h'},
         {0, 0, 0, 0}};
     const char *actual = NULL, *output = NULL, *format = "text";
     char *upper = NULL, *lower = NULL, *by = NULL;
@@ -393,29 +390,16 @@ int cmd_check(int argc, char **argv)
             break;
         case O_GATE: gate = 1; break;
         case 'o': output = optarg; break;
-        case O_DELIM:
-            if (parse_delim(optarg, &ro.delim) != 0)
-                return usage_error("check", "--delim must be comma, semicolon, tab or pipe");
-            break;
-        case O_BAD:
-            if (parse_bad_rows(optarg, &ro.bad_rows) != 0)
-                return usage_error("check", "--bad-rows must be error or skip");
-            break;
-        case O_MAXBAD:
-            if (parse_share(optarg, &ro.max_bad_share) != 0)
-                return usage_error("check", "--max-bad-share takes a share in [0,1]");
-            break;
-        case O_THREADS:
-            if (strcmp(optarg, "auto") == 0)
-                ro.threads = 0;
-            else if (strcmp(optarg, "1") == 0)
-                ro.threads = 1;
-            else
-                return usage_error("check", "--threads must be 1 or auto");
-            break;
         case 'h': fputs(help, stdout); return 0;
         case ':': return usage_error("check", "option '%s' needs a value", argv[optind - 1]);
-        default: return usage_error("check", "unknown option '%s'", argv[optind - 1]);
+        default: {
+            int r = read_option(c, "check", &ro);
+            if (r > 0)
+                return r;
+            if (r < 0)
+                return usage_error("check", "unknown option '%s'", argv[optind - 1]);
+            break;
+        }
         }
     }
     if (optind >= argc)

@@ -55,7 +55,7 @@ static size_t grid(double from, double to, double step, double *out)
 int cmd_curve(int argc, char **argv)
 {
     enum { O_ACTUAL = 256, O_PRED, O_BY, O_METHOD, O_FROM, O_TO, O_STEP, O_HOLDOUT, O_TIME, O_SEED, O_MINROWS,
-           O_FORMAT, O_DELIM, O_BAD, O_MAXBAD, O_X, O_SPLIT, O_CONF };
+           O_FORMAT, O_X, O_SPLIT, O_CONF };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL},   {"pred", required_argument, 0, O_PRED},
         {"by", required_argument, 0, O_BY},           {"method", required_argument, 0, O_METHOD},
@@ -63,10 +63,8 @@ int cmd_curve(int argc, char **argv)
         {"step", required_argument, 0, O_STEP},       {"holdout", required_argument, 0, O_HOLDOUT},
         {"time", required_argument, 0, O_TIME},       {"seed", required_argument, 0, O_SEED},
         {"min-rows", required_argument, 0, O_MINROWS}, {"format", required_argument, 0, O_FORMAT},
-        {"output", required_argument, 0, 'o'},        {"delim", required_argument, 0, O_DELIM},
-        {"bad-rows", required_argument, 0, O_BAD},    {"max-bad-share", required_argument, 0, O_MAXBAD},
-        {"x", required_argument, 0, O_X},             {"split", required_argument, 0, O_SPLIT},
-        {"confidence", required_argument, 0, O_CONF}, {"help", no_argument, 0, 'h'},
+        {"output", required_argument, 0, 'o'},        {"x", required_argument, 0, O_X},             {"split", required_argument, 0, O_SPLIT},
+        {"confidence", required_argument, 0, O_CONF}, READ_OPTIONS, {"help", no_argument, 0, 'h'},
         {0, 0, 0, 0}};
     const char *actual = NULL, *pred = NULL, *timecol = NULL, *output = NULL, *format = "text";
     char *keys[MAX_KEYS], *xs[ETACAL_QR_MAX_COVARIATES];
@@ -132,21 +130,16 @@ int cmd_curve(int argc, char **argv)
             format = optarg;
             break;
         case 'o': output = optarg; break;
-        case O_DELIM:
-            if (parse_delim(optarg, &ro.delim) != 0)
-                return usage_error("curve", "--delim must be comma, semicolon, tab or pipe");
-            break;
-        case O_BAD:
-            if (parse_bad_rows(optarg, &ro.bad_rows) != 0)
-                return usage_error("curve", "--bad-rows must be error or skip");
-            break;
-        case O_MAXBAD:
-            if (parse_share(optarg, &ro.max_bad_share) != 0)
-                return usage_error("curve", "--max-bad-share takes a share in [0,1]");
-            break;
         case 'h': fputs(help, stdout); return 0;
         case ':': return usage_error("curve", "option '%s' needs a value", argv[optind - 1]);
-        default: return usage_error("curve", "unknown option '%s'", argv[optind - 1]);
+        default: {
+            int r = read_option(c, "curve", &ro);
+            if (r > 0)
+                return r;
+            if (r < 0)
+                return usage_error("curve", "unknown option '%s'", argv[optind - 1]);
+            break;
+        }
         }
     }
     if (optind >= argc)

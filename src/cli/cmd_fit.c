@@ -313,19 +313,17 @@ static void print_holdout(FILE *fp, const etacal_quotes *q, const etacal_holdout
 
 int cmd_fit(int argc, char **argv)
 {
-    enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_DELIM, O_BAD, O_MAXBAD, O_THREADS,
+    enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS,
            O_X, O_SPLIT, O_SEED, O_CONF, O_HOLDOUT, O_TIME, O_HALFLIFE };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL}, {"pred", required_argument, 0, O_PRED},
         {"by", required_argument, 0, O_BY},         {"target", required_argument, 0, O_TARGET},
         {"method", required_argument, 0, O_METHOD}, {"min-rows", required_argument, 0, O_MINROWS},
-        {"output", required_argument, 0, 'o'},      {"delim", required_argument, 0, O_DELIM},
-        {"bad-rows", required_argument, 0, O_BAD},  {"max-bad-share", required_argument, 0, O_MAXBAD},
-        {"threads", required_argument, 0, O_THREADS}, {"x", required_argument, 0, O_X},
+        {"output", required_argument, 0, 'o'},      {"x", required_argument, 0, O_X},
         {"split", required_argument, 0, O_SPLIT},     {"seed", required_argument, 0, O_SEED},
         {"confidence", required_argument, 0, O_CONF}, {"holdout", required_argument, 0, O_HOLDOUT},
         {"time", required_argument, 0, O_TIME},       {"half-life", required_argument, 0, O_HALFLIFE},
-        {"quiet", no_argument, 0, 'q'},             {"help", no_argument, 0, 'h'},
+        {"quiet", no_argument, 0, 'q'},             READ_OPTIONS, {"help", no_argument, 0, 'h'},
         {0, 0, 0, 0}};
     const char *actual = NULL, *pred = NULL, *output = NULL;
     char *by = NULL;
@@ -365,18 +363,6 @@ int cmd_fit(int argc, char **argv)
                 return usage_error("fit", "--min-rows takes a whole number >= 1");
             break;
         case 'o': output = optarg; break;
-        case O_DELIM:
-            if (parse_delim(optarg, &ro.delim) != 0)
-                return usage_error("fit", "--delim must be comma, semicolon, tab or pipe");
-            break;
-        case O_BAD:
-            if (parse_bad_rows(optarg, &ro.bad_rows) != 0)
-                return usage_error("fit", "--bad-rows must be error or skip");
-            break;
-        case O_MAXBAD:
-            if (parse_share(optarg, &ro.max_bad_share) != 0)
-                return usage_error("fit", "--max-bad-share takes a share in [0,1]");
-            break;
         case O_X:
             nx = 0;
             if (parse_names(optarg, xs, &nx, ETACAL_QR_MAX_COVARIATES - 1) != 0)
@@ -404,18 +390,17 @@ int cmd_fit(int argc, char **argv)
             if (parse_share(optarg, &confidence) != 0 || !(confidence > 0 && confidence < 1))
                 return usage_error("fit", "--confidence takes a probability in (0,1), such as 0.95");
             break;
-        case O_THREADS:
-            if (strcmp(optarg, "auto") == 0)
-                ro.threads = 0;
-            else if (strcmp(optarg, "1") == 0)
-                ro.threads = 1;
-            else
-                return usage_error("fit", "--threads must be 1 or auto");
-            break;
         case 'q': quiet = 1; break;
         case 'h': fputs(help, stdout); return 0;
         case ':': return usage_error("fit", "option '%s' needs a value", argv[optind - 1]);
-        default: return usage_error("fit", "unknown option '%s'", argv[optind - 1]);
+        default: {
+            int r = read_option(c, "fit", &ro);
+            if (r > 0)
+                return r;
+            if (r < 0)
+                return usage_error("fit", "unknown option '%s'", argv[optind - 1]);
+            break;
+        }
         }
     }
     if (optind >= argc)

@@ -175,15 +175,14 @@ static json_t *build_json(const char *path, const char *yname, char **xs, const 
 
 int cmd_qr(int argc, char **argv)
 {
-    enum { O_Y = 256, O_X, O_TAU, O_SE, O_REPS, O_SEED, O_EPS, O_FORMAT, O_PREDICT, O_DELIM, O_BAD, O_MAXBAD };
+    enum { O_Y = 256, O_X, O_TAU, O_SE, O_REPS, O_SEED, O_EPS, O_FORMAT, O_PREDICT };
     static const struct option longopts[] = {
         {"y", required_argument, 0, O_Y},           {"x", required_argument, 0, O_X},
         {"tau", required_argument, 0, O_TAU},       {"se", required_argument, 0, O_SE},
         {"reps", required_argument, 0, O_REPS},     {"seed", required_argument, 0, O_SEED},
         {"eps", required_argument, 0, O_EPS},       {"format", required_argument, 0, O_FORMAT},
         {"predict", required_argument, 0, O_PREDICT}, {"output", required_argument, 0, 'o'},
-        {"delim", required_argument, 0, O_DELIM},   {"bad-rows", required_argument, 0, O_BAD},
-        {"max-bad-share", required_argument, 0, O_MAXBAD}, {"help", no_argument, 0, 'h'},
+        READ_OPTIONS, {"help", no_argument, 0, 'h'},
         {0, 0, 0, 0}};
     const char *yname = NULL, *format = "text", *predict = NULL, *output = NULL;
     char *xs[MAX_X];
@@ -236,21 +235,16 @@ int cmd_qr(int argc, char **argv)
             break;
         case O_PREDICT: predict = optarg; break;
         case 'o': output = optarg; break;
-        case O_DELIM:
-            if (parse_delim(optarg, &ro.delim) != 0)
-                return usage_error("qr", "--delim must be comma, semicolon, tab or pipe");
-            break;
-        case O_BAD:
-            if (parse_bad_rows(optarg, &ro.bad_rows) != 0)
-                return usage_error("qr", "--bad-rows must be error or skip");
-            break;
-        case O_MAXBAD:
-            if (parse_share(optarg, &ro.max_bad_share) != 0)
-                return usage_error("qr", "--max-bad-share takes a share in [0,1]");
-            break;
         case 'h': fputs(help, stdout); return 0;
         case ':': return usage_error("qr", "option '%s' needs a value", argv[optind - 1]);
-        default: return usage_error("qr", "unknown option '%s'", argv[optind - 1]);
+        default: {
+            int r = read_option(c, "qr", &ro);
+            if (r > 0)
+                return r;
+            if (r < 0)
+                return usage_error("qr", "unknown option '%s'", argv[optind - 1]);
+            break;
+        }
         }
     }
     if (optind >= argc)

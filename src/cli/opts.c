@@ -7,6 +7,7 @@
 #include <stdarg.h>
 #include <stdlib.h>
 #include <string.h>
+#include <getopt.h>
 #include <unistd.h>
 
 int usage_error(const char *cmd, const char *fmt, ...)
@@ -239,4 +240,32 @@ int parse_duration(const char *s, double *out)
         return -1;
     *out = v * mult;
     return 0;
+}
+
+int read_option(int c, const char *cmd, etacal_read_opts *ro)
+{
+    switch (c) {
+    case OPT_DELIM:
+        if (parse_delim(optarg, &ro->delim) != 0)
+            return usage_error(cmd, "--delim must be comma, semicolon, tab or pipe");
+        return 0;
+    case OPT_BAD_ROWS:
+        if (parse_bad_rows(optarg, &ro->bad_rows) != 0)
+            return usage_error(cmd, "--bad-rows must be error or skip");
+        return 0;
+    case OPT_MAX_BAD:
+        if (parse_share(optarg, &ro->max_bad_share) != 0)
+            return usage_error(cmd, "--max-bad-share takes a share in [0,1]");
+        return 0;
+    case OPT_THREADS:
+        if (strcmp(optarg, "auto") == 0)
+            ro->threads = 0;
+        else if (strcmp(optarg, "1") == 0)
+            ro->threads = 1;
+        else
+            return usage_error(cmd, "--threads must be 1 or auto");
+        return 0;
+    default:
+        return -1;
+    }
 }
