@@ -167,6 +167,10 @@ int csvstream_run_range(const char *path, char delim, int raw, const csvstream_c
     }
     parser_ok = 1;
     csv_set_delim(&p, (unsigned char)(delim ? delim : ','));
+    /* libcsv grows its field buffer by this many bytes at a time; its
+     * default of 128 makes a field of megabytes cost a quadratic number of
+     * copied bytes */
+    csv_set_blk_size(&p, 1u << 16);
     /* libcsv trims spaces and tabs around unquoted fields; with a tab
      * delimiter only spaces may be trimmed. */
     if (delim == '\t')
