@@ -255,7 +255,7 @@ int cmd_backtest(int argc, char **argv)
             json_array_append_new(
                 ps, json_pack("{s:s,s:s,s:I,s:I,s:I,s:o,s:[o,o],s:o,s:f,s:b}", "start", a, "end", b, "calib",
                               (json_int_t)p->calib, "n", (json_int_t)p->n, "hits", (json_int_t)p->hits, "on_time",
-                              has ? json_real((double)p->hits / (double)p->n) : json_null(),
+                              has ? json_real((double)p->hits / (double)p->n) : json_null(), "ci",
                               has ? json_real(lo) : json_null(), has ? json_real(hi) : json_null(), "mean_buffer_s",
                               isfinite(p->mean_buffer) ? json_real(p->mean_buffer) : json_null(), "level", p->level,
                               "skipped", p->skipped));
@@ -265,7 +265,8 @@ int cmd_backtest(int argc, char **argv)
         json_object_set_new(root, "overall", json_pack("{s:I,s:I,s:o,s:[o,o],s:o}", "n", (json_int_t)r.n, "hits",
                                                        (json_int_t)r.hits,
                                                        "on_time", r.n ? json_real((double)r.hits / (double)r.n) : json_null(),
-                                                       r.n ? json_real(lo) : json_null(), r.n ? json_real(hi) : json_null(),
+                                                       "ci", r.n ? json_real(lo) : json_null(),
+                                                       r.n ? json_real(hi) : json_null(),
                                                        "mean_buffer_s",
                                                        isfinite(r.mean_buffer) ? json_real(r.mean_buffer) : json_null()));
         int bad = json_dumpf(root, fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10)) != 0;
