@@ -28,13 +28,17 @@ for dir in "$here"/*/; do
     cp -R "$dir/." "$work/"
     (cd "$work" && ETACAL="$bin" CITYGEN="$citygen" QUANTGEN="$quantgen" LC_ALL=C sh -c "$(cat cmd)" >"$work/.out" 2>"$work/.err" </dev/null
      echo $? >"$work/.status")
-    if [ "${ETACAL_GOLDEN:-}" = 1 ]; then
+    if [ "${ETACAL_GOLDEN:-}" = 1 ] && [ "$(cat "$work/.status")" -lt 128 ]; then
         cp "$work/.out" "$dir/stdout"
         cp "$work/.err" "$dir/stderr"
         cp "$work/.status" "$dir/status"
     fi
     ok=1
     why=""
+    # a crash is never an expected result, golden or not
+    if [ "$(cat "$work/.status")" -ge 128 ]; then
+        ok=0; why="$why killed by a signal (status $(cat "$work/.status"))"
+    fi
     if ! cmp -s "$work/.status" "$dir/status"; then
         ok=0; why="$why status $(cat "$work/.status") (expected $(cat "$dir/status"))"
     fi
