@@ -40,6 +40,14 @@ enum { OPT_DELIM = 900, OPT_BAD_ROWS, OPT_MAX_BAD, OPT_THREADS };
 /* Handles one of them: 0 when handled, EXIT_USAGE after a message for a bad
  * value, -1 when c is not one of them. */
 int read_option(int c, const char *cmd, etacal_read_opts *ro);
+/* The end of every command's option switch: a read option, or a missing
+ * value (':'), or an unknown option.  0 to go on, else the exit status. */
+int other_option(int c, const char *cmd, etacal_read_opts *ro, char **argv);
+/* Exactly one input file after the options: 0, else a usage error
+ * ("no WHAT given", or the extra argument named). */
+int one_input(int argc, char **argv, const char *cmd, const char *what);
+/* --format text|csv|json: 0, else a usage error. */
+int parse_format(const char *s, const char *cmd, const char **out);
 
 /* Option values shared by the commands. */
 int parse_delim(const char *s, char *out);

@@ -118,27 +118,22 @@ int cmd_backtest(int argc, char **argv)
                 return usage_error("backtest", "--min-rows takes a whole number >= 1");
             break;
         case O_FORMAT:
-            if (strcmp(optarg, "text") && strcmp(optarg, "csv") && strcmp(optarg, "json"))
-                return usage_error("backtest", "--format must be text, csv or json");
-            format = optarg;
+            if (parse_format(optarg, "backtest", &format) != 0)
+                return EXIT_USAGE;
             break;
         case 'o': output = optarg; break;
         case 'h': fputs(help, stdout); return 0;
-        case ':': return usage_error("backtest", "option '%s' needs a value", argv[optind - 1]);
         default: {
-            int r = read_option(c, "backtest", &ro);
-            if (r > 0)
+            int r = other_option(c, "backtest", &ro, argv);
+            if (r)
                 return r;
-            if (r < 0)
-                return usage_error("backtest", "unknown option '%s'", argv[optind - 1]);
             break;
         }
         }
     }
-    if (optind >= argc)
-        return usage_error("backtest", "no data file given");
-    if (optind + 1 < argc)
-        return usage_error("backtest", "one data file only ('%s' is extra)", argv[optind + 1]);
+    int nin = one_input(argc, argv, "backtest", "data file");
+    if (nin)
+        return nin;
     if (!actual || !pred || !timecol)
         return usage_error("backtest", "--actual, --pred and --time are required");
     if (nx && bo.method != ETACAL_METHOD_QR)

@@ -384,28 +384,23 @@ int cmd_check(int argc, char **argv)
                 return usage_error("check", "--min-rows takes a whole number >= 1");
             break;
         case O_FORMAT:
-            if (strcmp(optarg, "text") && strcmp(optarg, "csv") && strcmp(optarg, "json"))
-                return usage_error("check", "--format must be text, csv or json");
-            format = optarg;
+            if (parse_format(optarg, "check", &format) != 0)
+                return EXIT_USAGE;
             break;
         case O_GATE: gate = 1; break;
         case 'o': output = optarg; break;
         case 'h': fputs(help, stdout); return 0;
-        case ':': return usage_error("check", "option '%s' needs a value", argv[optind - 1]);
         default: {
-            int r = read_option(c, "check", &ro);
-            if (r > 0)
+            int r = other_option(c, "check", &ro, argv);
+            if (r)
                 return r;
-            if (r < 0)
-                return usage_error("check", "unknown option '%s'", argv[optind - 1]);
             break;
         }
         }
     }
-    if (optind >= argc)
-        return usage_error("check", "no data file given");
-    if (optind + 1 < argc)
-        return usage_error("check", "one data file only ('%s' is extra)", argv[optind + 1]);
+    int nin = one_input(argc, argv, "check", "data file");
+    if (nin)
+        return nin;
     if (!actual)
         return usage_error("check", "--actual is required");
     if (!upper && nq == 0)

@@ -125,27 +125,22 @@ int cmd_curve(int argc, char **argv)
                 return usage_error("curve", "--min-rows takes a whole number >= 1");
             break;
         case O_FORMAT:
-            if (strcmp(optarg, "text") && strcmp(optarg, "csv") && strcmp(optarg, "json"))
-                return usage_error("curve", "--format must be text, csv or json");
-            format = optarg;
+            if (parse_format(optarg, "curve", &format) != 0)
+                return EXIT_USAGE;
             break;
         case 'o': output = optarg; break;
         case 'h': fputs(help, stdout); return 0;
-        case ':': return usage_error("curve", "option '%s' needs a value", argv[optind - 1]);
         default: {
-            int r = read_option(c, "curve", &ro);
-            if (r > 0)
+            int r = other_option(c, "curve", &ro, argv);
+            if (r)
                 return r;
-            if (r < 0)
-                return usage_error("curve", "unknown option '%s'", argv[optind - 1]);
             break;
         }
         }
     }
-    if (optind >= argc)
-        return usage_error("curve", "no calibration file given");
-    if (optind + 1 < argc)
-        return usage_error("curve", "one calibration file only ('%s' is extra)", argv[optind + 1]);
+    int nin = one_input(argc, argv, "curve", "calibration file");
+    if (nin)
+        return nin;
     if (!actual || !pred)
         return usage_error("curve", "--actual and --pred are required");
     if (from > to)

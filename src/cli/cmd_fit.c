@@ -392,21 +392,17 @@ int cmd_fit(int argc, char **argv)
             break;
         case 'q': quiet = 1; break;
         case 'h': fputs(help, stdout); return 0;
-        case ':': return usage_error("fit", "option '%s' needs a value", argv[optind - 1]);
         default: {
-            int r = read_option(c, "fit", &ro);
-            if (r > 0)
+            int r = other_option(c, "fit", &ro, argv);
+            if (r)
                 return r;
-            if (r < 0)
-                return usage_error("fit", "unknown option '%s'", argv[optind - 1]);
             break;
         }
         }
     }
-    if (optind >= argc)
-        return usage_error("fit", "no calibration file given");
-    if (optind + 1 < argc)
-        return usage_error("fit", "one calibration file only ('%s' is extra)", argv[optind + 1]);
+    int nin = one_input(argc, argv, "fit", "calibration file");
+    if (nin)
+        return nin;
     if (!actual || !pred)
         return usage_error("fit", "--actual and --pred are required");
     if (strcmp(actual, pred) == 0)

@@ -229,28 +229,23 @@ int cmd_qr(int argc, char **argv)
                 return usage_error("qr", "--eps takes a tolerance > 0");
             break;
         case O_FORMAT:
-            if (strcmp(optarg, "text") && strcmp(optarg, "csv") && strcmp(optarg, "json"))
-                return usage_error("qr", "--format must be text, csv or json");
-            format = optarg;
+            if (parse_format(optarg, "qr", &format) != 0)
+                return EXIT_USAGE;
             break;
         case O_PREDICT: predict = optarg; break;
         case 'o': output = optarg; break;
         case 'h': fputs(help, stdout); return 0;
-        case ':': return usage_error("qr", "option '%s' needs a value", argv[optind - 1]);
         default: {
-            int r = read_option(c, "qr", &ro);
-            if (r > 0)
+            int r = other_option(c, "qr", &ro, argv);
+            if (r)
                 return r;
-            if (r < 0)
-                return usage_error("qr", "unknown option '%s'", argv[optind - 1]);
             break;
         }
         }
     }
-    if (optind >= argc)
-        return usage_error("qr", "no data file given");
-    if (optind + 1 < argc)
-        return usage_error("qr", "one data file only ('%s' is extra)", argv[optind + 1]);
+    int nin = one_input(argc, argv, "qr", "data file");
+    if (nin)
+        return nin;
     if (!yname || nx == 0)
         return usage_error("qr", "--y and --x are required");
     for (size_t j = 0; j < nx; j++) {

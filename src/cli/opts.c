@@ -269,3 +269,30 @@ int read_option(int c, const char *cmd, etacal_read_opts *ro)
         return -1;
     }
 }
+
+int other_option(int c, const char *cmd, etacal_read_opts *ro, char **argv)
+{
+    if (c == ':')
+        return usage_error(cmd, "option '%s' needs a value", argv[optind - 1]);
+    int r = read_option(c, cmd, ro);
+    if (r < 0)
+        return usage_error(cmd, "unknown option '%s'", argv[optind - 1]);
+    return r;
+}
+
+int one_input(int argc, char **argv, const char *cmd, const char *what)
+{
+    if (optind >= argc)
+        return usage_error(cmd, "no %s given", what);
+    if (optind + 1 < argc)
+        return usage_error(cmd, "one %s only ('%s' is extra)", what, argv[optind + 1]);
+    return 0;
+}
+
+int parse_format(const char *s, const char *cmd, const char **out)
+{
+    if (strcmp(s, "text") && strcmp(s, "csv") && strcmp(s, "json"))
+        return usage_error(cmd, "--format must be text, csv or json");
+    *out = s;
+    return 0;
+}
