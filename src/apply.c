@@ -202,8 +202,20 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         snprintf(msg, sizeof msg, "%zu fields, but the header has %zu", nfields, a->nfields);
         problem = msg;
     } else {
-        int k = etacal_num_parse(rowbuf_get(b, (size_t)a->c_pred), rowbuf_len(b, (size_t)a->c_pred), &pred);
-        if (k == ETACAL_NUM_BAD) {
+        /* Keys as fit reads them: a key that fit would refuse cannot be
+         * promised by a row of its own. */
+        for (size_t j = 0; j < a->q->nkeys && !problem; j++) {
+            size_t cj = (size_t)a->c_keys[j], len = rowbuf_len(b, cj);
+            if (!utf8_valid(rowbuf_get(b, cj), len)) {
+                snprintf(msg, sizeof msg, "a value of key column '%.60s' is not valid UTF-8", a->q->key_names[j]);
+                problem = msg;
+            }
+        }
+        int k = problem ? ETACAL_NUM_MISSING
+                        : etacal_num_parse(rowbuf_get(b, (size_t)a->c_pred), rowbuf_len(b, (size_t)a->c_pred), &pred);
+        if (problem) {
+            /* reported below */
+        } else if (k == ETACAL_NUM_BAD) {
             snprintf(msg, sizeof msg, "column '%s' is not numeric: '%.40s'", a->o->pred_col,
                      rowbuf_get(b, (size_t)a->c_pred));
             problem = msg;

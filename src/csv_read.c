@@ -126,6 +126,11 @@ static void data_field(reader *r, size_t col, const char *s, size_t len)
         /* A value seen before gets its id now; a new one waits for the
          * end of the row, so that a skipped row adds no key value. */
         if (!strdict_find(&c->dict, s, len, &r->stage_key[ti])) {
+            /* Only a new value is checked: a key column has few. */
+            if (!utf8_valid(s, len)) {
+                set_bad(r, 2, "a value of key column '%s' is not valid UTF-8%s", c->name, "");
+                return;
+            }
             rowbuf_add(&r->pending, s, len);
             if (grow_array((void **)&r->pending_col, &r->pending_cap, r->pending.nf,
                            sizeof *r->pending_col) != 0)

@@ -28,6 +28,9 @@ typedef struct {
     size_t rawlen;
     size_t rows_in_raw; /* records libcsv found in the current raw slice */
     int count_nl;       /* fields of this chunk may hold a line feed */
+    int check_nul;      /* this chunk holds a NUL byte */
+    size_t nul_line;    /* a field with a NUL byte: its line, else 0 */
+    size_t nul_col;
     int stopped;
 } ctx;
 
@@ -52,6 +55,15 @@ static void on_field(void *s, size_t len, void *ud)
         for (size_t i = 0; i < len; i++)
             nl += b[i] == '\n';
         c->pending_nl += nl;
+    }
+    /* A NUL byte is no text: C strings would cut the field short, so
+     * that two different keys could print alike.  Only chunks that hold
+     * one pay for the check. */
+    if (c->check_nul && memchr(s, '\0', len)) {
+        c->nul_line = c->line;
+        c->nul_col = c->col + 1;
+        c->stopped = 1;
+        return;
     }
     c->cb->field(c->cb->ud, c->col++, s, len);
 }
@@ -199,6 +211,7 @@ int csvstream_run_range(const char *path, char delim, int raw, const csvstream_c
                 len -= 3;
             }
         }
+        c.check_nul = c.check_nul || memchr(data, '\0', len) != NULL;
         if (!raw) {
             /* A field can hold a line feed only if it is quoted: when the
              * chunk has no quote character and no quoted field is open
@@ -306,7 +319,12 @@ int csvstream_run_range(const char *path, char delim, int raw, const csvstream_c
             goto done;
         }
     }
-    if (c.stopped)
+    if (c.stopped && c.nul_line) {
+        char where[128];
+        format_where(where, sizeof where, path, c.nul_line);
+        rc = etacal_error_set(err, ETACAL_EPARSE, where, "field %zu holds a NUL byte (binary data is not CSV)",
+                              c.nul_col);
+    } else if (c.stopped)
         rc = err && err->code ? err->code : ETACAL_EPARSE;
 
 done:

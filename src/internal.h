@@ -62,6 +62,10 @@ static inline size_t strdict_len(const strdict *d, uint32_t id) { return d->lens
 int exact_ceil_mul(uint64_t m, double tau, uint64_t *out);
 
 
+/* 1 when the len bytes at s are well-formed UTF-8 (Unicode's table 3-7:
+ * no overlong forms, no surrogates, nothing above U+10FFFF), else 0. */
+int utf8_valid(const char *s, size_t len);
+
 /* csvstream: libcsv driven over a file in chunks, with physical line
  * numbers, a UTF-8 byte-order mark dropped, blank lines skipped and, in raw
  * mode, each record's exact bytes handed to the row callback.

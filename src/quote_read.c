@@ -1,8 +1,12 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* quote_read.c: reading a quote table back from CSV and checking that it
- * can be applied: required columns, finite numbers, targets in (0,1), one
- * method, no duplicate rows, a global row for every target, and key levels
- * of the form (values..., *, ...*). */
+ * can be applied, as a hand-edited file may not: the header (key columns,
+ * then 'target' and the known columns; others, such as a note, are
+ * ignored), one known method, finite numbers, targets in
+ * (0,1), 1 <= k <= n, the slope and offset each method implies, key values
+ * that are UTF-8 text, key levels of the form (values..., *, ...*), no
+ * duplicate rows and a global row for every target.  Every defect is
+ * reported with the line of the row (or header) that has it. */
 #include "internal.h"
 
 #include <math.h>
@@ -26,6 +30,8 @@ typedef struct qreader {
     size_t nfields;
     size_t nkeys;
     long c_target, c_method, c_n, c_k, c_offset, c_slope;
+    long c_conf, c_covmean, c_covlow; /* written with --confidence */
+    size_t header_line;
     char **key_names;
     strdict segs; /* joined key texts (unit separator between) -> segment */
     rowbuf joined;
@@ -53,13 +59,27 @@ static int fail(qreader *r, size_t line, int code, const char *msg, const char *
     return 1;
 }
 
+/* "3" for column index 2, in a static buffer: for one message at a time. */
+static const char *col_number(size_t i)
+{
+    static _Thread_local char buf[24];
+    snprintf(buf, sizeof buf, "%zu", i + 1);
+    return buf;
+}
+
 static int header(qreader *r, size_t line)
 {
     rowbuf *b = &r->rb;
     r->c_target = r->c_method = r->c_n = r->c_k = r->c_offset = r->c_slope = -1;
+    r->c_conf = r->c_covmean = r->c_covlow = -1;
+    r->header_line = line;
     for (size_t i = 0; i < b->nf; i++) {
         const char *h = rowbuf_get(b, i);
         long *slot = NULL;
+        if (!h[0])
+            return fail(r, line, ETACAL_EPARSE, "column %s of the header has no name", col_number(i));
+        if (rowbuf_len(b, i) != strlen(h) || !utf8_valid(h, rowbuf_len(b, i)))
+            return fail(r, line, ETACAL_EPARSE, "column %s of the header is not UTF-8 text", col_number(i));
         if (strcmp(h, "target") == 0)
             slot = &r->c_target;
         else if (strcmp(h, "method") == 0)
@@ -72,6 +92,13 @@ static int header(qreader *r, size_t line)
             slot = &r->c_offset;
         else if (strcmp(h, "slope") == 0)
             slot = &r->c_slope;
+        else if (strcmp(h, "confidence") == 0)
+            slot = &r->c_conf;
+        else if (strcmp(h, "coverage_mean") == 0)
+            slot = &r->c_covmean;
+        else if (strcmp(h, "coverage_low") == 0)
+            slot = &r->c_covlow;
+
         if (slot) {
             if (*slot >= 0)
                 return fail(r, line, ETACAL_EPARSE, "column '%s' appears twice in the header", h);
@@ -100,6 +127,12 @@ static int header(qreader *r, size_t line)
             return fail(r, line, ETACAL_EPARSE, "not a quote table: no column '%s' in the header",
                         req[i]);
     r->nkeys = (size_t)r->c_target;
+    long opt[] = {r->c_k, r->c_conf, r->c_covmean, r->c_covlow};
+    static const char *optname[] = {"k", "confidence", "coverage_mean", "coverage_low"};
+    for (size_t i = 0; i < 4; i++)
+        if (opt[i] >= 0 && opt[i] < r->c_target)
+            return fail(r, line, ETACAL_EPARSE, "column '%s' must come after 'target' (the key columns come first)",
+                        optname[i]);
     for (size_t i = 0; i < 5; i++)
         if (got[i] < r->c_target)
             return fail(r, line, ETACAL_EPARSE, "column '%s' must come after 'target' (the key columns come first)",
@@ -185,14 +218,45 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
     r->method = q.method;
     if ((stop = count(r, line, r->c_n, "n", &q.n)))
         goto out;
+    if (q.n == 0) {
+        stop = fail(r, line, ETACAL_EPARSE, "n must be at least 1 (the calibration rows of the segment)%s", "");
+        goto out;
+    }
     if (r->c_k >= 0 && (stop = count(r, line, r->c_k, "k", &q.k)))
         goto out;
+    if (r->c_k >= 0 && !(q.k >= 1 && q.k <= q.n)) {
+        char msg[96];
+        snprintf(msg, sizeof msg, "k must be a rank from 1 to n = %zu, got %zu", q.n, q.k);
+        stop = fail(r, line, ETACAL_EPARSE, "%s", msg);
+        goto out;
+    }
     if ((stop = number(r, line, r->c_offset, "offset_s", &q.offset_s)) ||
         (stop = number(r, line, r->c_slope, "slope", &q.slope)))
         goto out;
-    if (q.slope < 0 && q.method != ETACAL_METHOD_QR) {
-        stop = fail(r, line, ETACAL_EPARSE, "slope must not be negative%s", "");
+    /* What each method writes: add, prediction + offset_s (slope 1);
+     * ratio, prediction x slope (offset_s 0, slope > 0). */
+    if (q.method == ETACAL_METHOD_ADD && q.slope != 1) {
+        stop = fail(r, line, ETACAL_EPARSE, "method add needs slope 1 (promise = prediction + offset_s)%s", "");
         goto out;
+    }
+    if (q.method == ETACAL_METHOD_RATIO && !(q.offset_s == 0 && q.slope > 0)) {
+        stop = fail(r, line, ETACAL_EPARSE,
+                    "method ratio needs offset_s 0 and a slope > 0 (promise = prediction x slope)%s", "");
+        goto out;
+    }
+    long frac[] = {r->c_conf, r->c_covmean, r->c_covlow};
+    static const char *fracname[] = {"confidence", "coverage_mean", "coverage_low"};
+    for (size_t i = 0; i < 3; i++) {
+        double v;
+        if (frac[i] < 0)
+            continue;
+        if ((stop = number(r, line, frac[i], fracname[i], &v)))
+            goto out;
+        if (!(i == 0 ? v > 0 && v < 1 : v >= 0 && v <= 1)) {
+            stop = fail(r, line, ETACAL_EPARSE,
+                        i == 0 ? "'%s' must be in (0,1)" : "'%s' must be a share in [0,1]", fracname[i]);
+            goto out;
+        }
     }
     if (r->ncoef && q.method != ETACAL_METHOD_QR) {
         stop = fail(r, line, ETACAL_EPARSE, "coef_ columns belong to method qr, not '%s'",
@@ -216,7 +280,15 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
     rowbuf_reset(&r->joined);
     size_t jl = 0;
     for (size_t j = 0; j < r->nkeys; j++) {
-        int is_star = strcmp(rowbuf_get(b, j), "*") == 0;
+        const char *kv = rowbuf_get(b, j);
+        size_t kl = rowbuf_len(b, j);
+        /* The unit separator joins the keys below: a key holding one
+         * could pass for another combination. */
+        if (!utf8_valid(kv, kl) || memchr(kv, '\x1f', kl)) {
+            stop = fail(r, line, ETACAL_EPARSE, "the value of key '%s' is not UTF-8 text", r->key_names[j]);
+            goto out;
+        }
+        int is_star = strcmp(kv, "*") == 0;
         if (star && !is_star) {
             stop = fail(r, line, ETACAL_EPARSE,
                         "key '%s' has a value after a '*' key: levels go from the last key to the first",
@@ -283,7 +355,9 @@ int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, et
         goto done;
     }
     if (r.nrows == 0) {
-        rc = etacal_error_set(err, ETACAL_EPARSE, path, "the quote table has no rows");
+        char where[128];
+        format_where(where, sizeof where, path, r.header_line);
+        rc = etacal_error_set(err, ETACAL_EPARSE, where, "the quote table has no rows, only a header");
         goto done;
     }
     q->nkeys = r.nkeys;
@@ -314,7 +388,9 @@ int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, et
             global = s;
     }
     if (global == UINT32_MAX) {
-        rc = etacal_error_set(err, ETACAL_EPARSE, path, "no global row (every key '*')");
+        char where[128];
+        format_where(where, sizeof where, path, r.header_line);
+        rc = etacal_error_set(err, ETACAL_EPARSE, where, "no global row (every key '*'): every order needs a row to fall back on");
         goto done;
     }
     q->segs = calloc(nseg, sizeof *q->segs);
@@ -374,9 +450,11 @@ int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, et
         const qrow *x = &r.rows[i];
         if (i && x->seg == r.rows[i - 1].seg && x->target == r.rows[i - 1].target) {
             char where[128];
-            format_where(where, sizeof where, path, x->line > r.rows[i - 1].line ? x->line : r.rows[i - 1].line);
-            rc = etacal_error_set(err, ETACAL_EPARSE, where, "duplicate row for the same segment and target %g",
-                                  x->target);
+            size_t l1 = x->line, l0 = r.rows[i - 1].line;
+            format_where(where, sizeof where, path, l1 > l0 ? l1 : l0);
+            rc = etacal_error_set(err, ETACAL_EPARSE, where,
+                                  "duplicate row for the same segment and target %g (first on line %zu)", x->target,
+                                  l1 > l0 ? l0 : l1);
             goto done;
         }
         etacal_quote *o = &q->rows[q->nrows++];
@@ -396,8 +474,15 @@ int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, et
     }
     for (size_t ti = 0; ti < q->ntargets; ti++)
         if (q->segs[0].status[ti] != ETACAL_OWN_ROW) {
-            rc = etacal_error_set(err, ETACAL_EPARSE, path, "no global row (every key '*') for target %g",
-                                  q->targets[ti]);
+            /* the first row of that target shows where it is missing */
+            size_t line = 0;
+            for (size_t i = 0; i < r.nrows; i++)
+                if (r.rows[i].target == q->targets[ti] && (!line || r.rows[i].line < line))
+                    line = r.rows[i].line;
+            char where[128];
+            format_where(where, sizeof where, path, line);
+            rc = etacal_error_set(err, ETACAL_EPARSE, where,
+                                  "no global row (every key '*') for target %g, which this row has", q->targets[ti]);
             goto done;
         }
 

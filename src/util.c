@@ -268,3 +268,44 @@ void etacal_percent_label(double tau, char *buf)
     }
     buf[w] = '\0';
 }
+
+int utf8_valid(const char *str, size_t len)
+{
+    /* The well-formed byte sequences of Unicode 15, table 3-7: no overlong
+     * forms, no surrogates (ED A0..BF), nothing above U+10FFFF. */
+    const unsigned char *s = (const unsigned char *)str, *e = s + len;
+    while (s < e) {
+        unsigned c = *s;
+        if (c < 0x80) {
+            s++;
+            continue;
+        }
+        size_t n;
+        unsigned lo = 0x80, hi = 0xBF;
+        if (c >= 0xC2 && c <= 0xDF)
+            n = 1;
+        else if (c >= 0xE0 && c <= 0xEF) {
+            n = 2;
+            if (c == 0xE0)
+                lo = 0xA0;
+            else if (c == 0xED)
+                hi = 0x9F;
+        } else if (c >= 0xF0 && c <= 0xF4) {
+            n = 3;
+            if (c == 0xF0)
+                lo = 0x90;
+            else if (c == 0xF4)
+                hi = 0x8F;
+        } else
+            return 0;
+        if ((size_t)(e - s) <= n)
+            return 0;
+        if (s[1] < lo || s[1] > hi)
+            return 0;
+        for (size_t i = 2; i <= n; i++)
+            if (s[i] < 0x80 || s[i] > 0xBF)
+                return 0;
+        s += n + 1;
+    }
+    return 1;
+}

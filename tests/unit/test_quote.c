@@ -697,15 +697,15 @@ static void test_read_errors(void **state)
     expect_read_error(f,
                       HDR GLOBAL90 "north,*,0.9,add,900,811,250.25,1\n"
                                    "*,*,0.9,add,17,16,3.5,1\n",
-                      ETACAL_EPARSE, 4, "duplicate row for the same segment and target 0.9");
+                      ETACAL_EPARSE, 4, "duplicate row for the same segment and target 0.9 (first on line 2)");
     expect_read_error(f,
                       HDR "north,*,0.9,add,900,811,250.25,1\n" GLOBAL90
                           "\"north\",\"*\",0.9,add,17,16,3.5,1\n",
-                      ETACAL_EPARSE, 4, "duplicate row for the same segment and target 0.9");
+                      ETACAL_EPARSE, 4, "duplicate row for the same segment and target 0.9 (first on line 2)");
     expect_read_error(f, HDR "north,*,0.9,add,900,811,250.25,1\nnorth,bike,0.9,add,9,9,3.5,1\n",
-                      ETACAL_EPARSE, 0, "no global row (every key '*')");
-    expect_read_error(f, HDR GLOBAL90 "north,*,0.95,add,900,811,250.25,1\n", ETACAL_EPARSE, 0,
-                      "no global row (every key '*') for target 0.95");
+                      ETACAL_EPARSE, 1, "no global row (every key '*'): every order needs a row to fall back on");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.95,add,900,811,250.25,1\n", ETACAL_EPARSE, 3,
+                      "no global row (every key '*') for target 0.95, which this row has");
     expect_read_error(f, HDR GLOBAL90 "*,bike,0.9,add,900,811,250.25,1\n", ETACAL_EPARSE, 3,
                       "key 'vehicle' has a value after a '*' key: levels go from the last key to "
                       "the first");
@@ -718,7 +718,34 @@ static void test_read_errors(void **state)
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,NA,250.25,1\n", ETACAL_EPARSE, 3,
                       "'k' must be a finite number");
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,811,250.25,-0.5\n", ETACAL_EPARSE, 3,
-                      "slope must not be negative");
+                      "method add needs slope 1 (promise = prediction + offset_s)");
+    /* what a hand edit can break (issue 6 part 2): each with its row's line */
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,0,0,250.25,1\n", ETACAL_EPARSE, 3,
+                      "n must be at least 1 (the calibration rows of the segment)");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,901,250.25,1\n", ETACAL_EPARSE, 3,
+                      "k must be a rank from 1 to n = 900, got 901");
+    expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,0,250.25,1\n", ETACAL_EPARSE, 3,
+                      "k must be a rank from 1 to n = 900, got 0");
+    expect_read_error(f, HDR "*,*,0.9,ratio,5000,4501,12.5,1.25\n", ETACAL_EPARSE, 2,
+                      "method ratio needs offset_s 0 and a slope > 0 (promise = prediction x slope)");
+    expect_read_error(f, HDR "*,*,0.9,ratio,5000,4501,0,0\n", ETACAL_EPARSE, 2,
+                      "method ratio needs offset_s 0 and a slope > 0 (promise = prediction x slope)");
+    expect_read_error(f, HDR GLOBAL90 "nor\xc3th,*,0.9,add,900,811,250.25,1\n", ETACAL_EPARSE, 3,
+                      "the value of key 'zone' is not UTF-8 text");
+    expect_read_error(f, HDR GLOBAL90 "nor\x1fth,*,0.9,add,900,811,250.25,1\n", ETACAL_EPARSE, 3,
+                      "the value of key 'zone' is not UTF-8 text");
+    expect_read_error(f, "zone,,target,method,n,offset_s,slope\n*,*,0.9,add,50,3.5,1\n", ETACAL_EPARSE, 1,
+                      "column 2 of the header has no name");
+    expect_read_error(f, "zone,target,method,n,k,offset_s,slope,confidence\n*,0.9,add,50,48,3.5,1,1.5\n",
+                      ETACAL_EPARSE, 2, "'confidence' must be in (0,1)");
+    expect_read_error(f, "zone,target,method,n,k,offset_s,slope,coverage_low\n*,0.9,add,50,48,3.5,1,-0.25\n",
+                      ETACAL_EPARSE, 2, "'coverage_low' must be a share in [0,1]");
+    expect_read_error(f, "zone,k,target,method,n,offset_s,slope\n*,48,0.9,add,50,3.5,1\n", ETACAL_EPARSE, 1,
+                      "column 'k' must come after 'target' (the key columns come first)");
+    expect_read_error(f, HDR "*,*,0.9,add,5000,4501,1e400,1\n", ETACAL_EPARSE, 2,
+                      "'offset_s' must be a finite number");
+    expect_read_error(f, HDR "*,*,0.9,add,5000,4501,0x10,1\n", ETACAL_EPARSE, 2,
+                      "'offset_s' must be a finite number");
     expect_read_error(f, "zone,method,target,n,offset_s,slope\n*,add,0.9,50,3.5,1\n", ETACAL_EPARSE,
                       1, "column 'method' must come after 'target' (the key columns come first)");
     expect_read_error(f, "zone,zone,target,method,n,offset_s,slope\n*,*,0.9,add,50,3.5,1\n",
@@ -726,7 +753,7 @@ static void test_read_errors(void **state)
     expect_read_error(f, "zone,target,method,n,offset_s,slope,target\n*,0.9,add,50,3.5,1,0.9\n",
                       ETACAL_EPARSE, 1, "column 'target' appears twice in the header");
     expect_read_error(f, "", ETACAL_EPARSE, 0, "empty file: expected a quote table");
-    expect_read_error(f, HDR, ETACAL_EPARSE, 0, "the quote table has no rows");
+    expect_read_error(f, HDR, ETACAL_EPARSE, 1, "the quote table has no rows, only a header");
     expect_read_error(f, HDR GLOBAL90 "\"north,*,0.9,add,900,811,250.25,1\n", ETACAL_EPARSE, 3,
                       "unterminated quoted field");
     char missing[700];
