@@ -158,8 +158,14 @@ static int number(qreader *r, size_t line, long col, const char *name, double *v
 {
     const char *s = rowbuf_get(&r->rb, (size_t)col);
     int k = etacal_num_parse(s, rowbuf_len(&r->rb, (size_t)col), v);
-    if (k != ETACAL_NUM_VALUE || !isfinite(*v))
-        return fail(r, line, ETACAL_EPARSE, "'%s' must be a finite number", name);
+    if (k != ETACAL_NUM_VALUE || !isfinite(*v)) {
+        /* what was there, shortened: 1e400 and 12,5 are numbers to a reader */
+        size_t len = rowbuf_len(&r->rb, (size_t)col);
+        char msg[200];
+        snprintf(msg, sizeof msg, "'%.60s' must be a finite number, got '%.*s%s'", name, len > 40 ? 40 : (int)len, s,
+                 len > 40 ? "..." : "");
+        return fail(r, line, ETACAL_EPARSE, "%s", msg);
+    }
     return 0;
 }
 

@@ -677,11 +677,11 @@ static void test_read_errors(void **state)
     expect_read_error(f, "zone,target,n,k,offset_s,slope\n*,0.9,50,46,3.5,1\n", ETACAL_EPARSE, 1,
                       "not a quote table: no column 'method' in the header");
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,811,inf,1\n", ETACAL_EPARSE, 3,
-                      "'offset_s' must be a finite number");
+                      "'offset_s' must be a finite number, got 'inf'");
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,811,NA,1\n", ETACAL_EPARSE, 3,
-                      "'offset_s' must be a finite number");
+                      "'offset_s' must be a finite number, got 'NA'");
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,811,250.25,nan\n", ETACAL_EPARSE, 3,
-                      "'slope' must be a finite number");
+                      "'slope' must be a finite number, got 'nan'");
     expect_read_error(f, HDR "*,*,1,add,5000,4501,312.125,1\n", ETACAL_EPARSE, 2,
                       "target must be an on-time rate in (0,1)");
     expect_read_error(f, HDR GLOBAL90 "\n*,*,0,add,5000,4501,312.125,1\n", ETACAL_EPARSE, 4,
@@ -689,7 +689,7 @@ static void test_read_errors(void **state)
     expect_read_error(f, HDR "*,*,-0.9,add,5000,4501,312.125,1\n", ETACAL_EPARSE, 2,
                       "target must be an on-time rate in (0,1)");
     expect_read_error(f, HDR "*,*,90%,add,5000,4501,312.125,1\n", ETACAL_EPARSE, 2,
-                      "'target' must be a finite number");
+                      "'target' must be a finite number, got '90%'");
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,mult,900,811,250.25,1\n", ETACAL_EPARSE, 3,
                       "unknown method 'mult' (expected add, ratio or qr)");
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,ratio,900,811,0,1.25\n", ETACAL_EPARSE, 3,
@@ -716,7 +716,7 @@ static void test_read_errors(void **state)
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,-3,811,250.25,1\n", ETACAL_EPARSE, 3,
                       "'n' must be a whole number >= 0");
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,NA,250.25,1\n", ETACAL_EPARSE, 3,
-                      "'k' must be a finite number");
+                      "'k' must be a finite number, got 'NA'");
     expect_read_error(f, HDR GLOBAL90 "north,*,0.9,add,900,811,250.25,-0.5\n", ETACAL_EPARSE, 3,
                       "method add needs slope 1 (promise = prediction + offset_s)");
     /* what a hand edit can break (issue 6 part 2): each with its row's line */
@@ -743,9 +743,9 @@ static void test_read_errors(void **state)
     expect_read_error(f, "zone,k,target,method,n,offset_s,slope\n*,48,0.9,add,50,3.5,1\n", ETACAL_EPARSE, 1,
                       "column 'k' must come after 'target' (the key columns come first)");
     expect_read_error(f, HDR "*,*,0.9,add,5000,4501,1e400,1\n", ETACAL_EPARSE, 2,
-                      "'offset_s' must be a finite number");
+                      "'offset_s' must be a finite number, got '1e400'");
     expect_read_error(f, HDR "*,*,0.9,add,5000,4501,0x10,1\n", ETACAL_EPARSE, 2,
-                      "'offset_s' must be a finite number");
+                      "'offset_s' must be a finite number, got '0x10'");
     expect_read_error(f, "zone,method,target,n,offset_s,slope\n*,add,0.9,50,3.5,1\n", ETACAL_EPARSE,
                       1, "column 'method' must come after 'target' (the key columns come first)");
     expect_read_error(f, "zone,zone,target,method,n,offset_s,slope\n*,*,0.9,add,50,3.5,1\n",
