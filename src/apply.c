@@ -177,6 +177,14 @@ static long lookup(applier *a, size_t ti, size_t *level_out)
     return -1;
 }
 
+/* "column 'x' is not numeric: '1e400' (beyond the range of a double)" */
+static void bad_number(char *msg, size_t size, const char *col, const char *s, size_t len)
+{
+    const char *why = num_bad_reason(s, len);
+    snprintf(msg, size, "column '%.40s' is not numeric: '%.*s%s'%s%s%s", col, len > 40 ? 40 : (int)len, s,
+             len > 40 ? "..." : "", why ? " (" : "", why ? why : "", why ? ")" : "");
+}
+
 static void put_promise(applier *a, double v) { put_ms(a->out, v); }
 
 static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t rawlen)
@@ -216,8 +224,8 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         if (problem) {
             /* reported below */
         } else if (k == ETACAL_NUM_BAD) {
-            snprintf(msg, sizeof msg, "column '%s' is not numeric: '%.40s'", a->o->pred_col,
-                     rowbuf_get(b, (size_t)a->c_pred));
+            bad_number(msg, sizeof msg, a->o->pred_col, rowbuf_get(b, (size_t)a->c_pred),
+                       rowbuf_len(b, (size_t)a->c_pred));
             problem = msg;
         } else if (k == ETACAL_NUM_MISSING) {
             missing = 1;
@@ -244,8 +252,8 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
             k = etacal_num_parse(rowbuf_get(b, (size_t)a->c_actual), rowbuf_len(b, (size_t)a->c_actual),
                                  &actual);
             if (k == ETACAL_NUM_BAD) {
-                snprintf(msg, sizeof msg, "column '%s' is not numeric: '%.40s'", a->o->actual_col,
-                         rowbuf_get(b, (size_t)a->c_actual));
+                bad_number(msg, sizeof msg, a->o->actual_col, rowbuf_get(b, (size_t)a->c_actual),
+                           rowbuf_len(b, (size_t)a->c_actual));
                 problem = msg;
             }
         }

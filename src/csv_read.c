@@ -143,12 +143,14 @@ static void data_field(reader *r, size_t col, const char *s, size_t len)
     double v;
     int k = (c->flags & ETACAL_NUM_TIME) ? etacal_time_parse(s, len, &v) : etacal_num_parse(s, len, &v);
     if (k == ETACAL_NUM_BAD) {
-        char shown[48];
-        snprintf(shown, sizeof shown, "%.*s%s", len > 40 ? 40 : (int)len, s, len > 40 ? "..." : "");
+        char shown[160];
+        const char *why = (c->flags & ETACAL_NUM_TIME) ? NULL : num_bad_reason(s, len);
+        snprintf(shown, sizeof shown, "%.*s%s'%s%s%s", len > 40 ? 40 : (int)len, s, len > 40 ? "..." : "",
+                 why ? " (" : "", why ? why : "", why ? ")" : "");
         set_bad(r, 2,
                 (c->flags & ETACAL_NUM_TIME)
-                    ? "column '%s' is not a timestamp (ISO 8601 or Unix seconds): '%s'"
-                    : "column '%s' is not numeric: '%s'",
+                    ? "column '%s' is not a timestamp (ISO 8601 or Unix seconds): '%s"
+                    : "column '%s' is not numeric: '%s",
                 c->name, shown);
         return;
     }

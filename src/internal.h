@@ -62,6 +62,11 @@ static inline size_t strdict_len(const strdict *d, uint32_t id) { return d->lens
 int exact_ceil_mul(uint64_t m, double tau, uint64_t *out);
 
 
+/* Why etacal_num_parse refused s, for a message ("hexadecimal numbers are
+ * not read", a comma, digit grouping, out of range), or NULL when it is
+ * simply not a number. */
+const char *num_bad_reason(const char *s, size_t len);
+
 /* 1 when the len bytes at s are well-formed UTF-8 (Unicode's table 3-7:
  * no overlong forms, no surrogates, nothing above U+10FFFF), else 0. */
 int utf8_valid(const char *s, size_t len);

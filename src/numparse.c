@@ -175,15 +175,58 @@ int etacal_num_parse(const char *s, size_t len, double *out)
     } else if (mant == 0 && !dropped) {
         v = 0.0;
     } else {
+        /* The literal is not zero here.  A value beyond the doubles
+         * (1e400) or one that rounds to zero (1e-400) is refused rather
+         * than stored as inf or 0: either would change the number. */
         int ok;
         v = slow_parse(s, len, &ok);
-        if (!ok)
+        if (!ok || isinf(v) || v == 0)
             return ETACAL_NUM_BAD;
         *out = v;
         return ETACAL_NUM_VALUE;
     }
     *out = neg ? -v : v;
     return ETACAL_NUM_VALUE;
+}
+
+const char *num_bad_reason(const char *s, size_t len)
+{
+    double v;
+    while (len > 0 && (*s == ' ' || *s == '\t')) {
+        s++;
+        len--;
+    }
+    while (len > 0 && (s[len - 1] == ' ' || s[len - 1] == '\t'))
+        len--;
+    if (memchr(s, ',', len))
+        return "a comma is neither a decimal point nor a thousands separator; write 1234.5";
+    if (memchr(s, ' ', len) || memchr(s, '\'', len) || memchr(s, '_', len))
+        return "no digit grouping inside a number; write 1234.5";
+    size_t i = len && (*s == '+' || *s == '-');
+    if (len >= i + 2 && s[i] == '0' && (s[i + 1] | 0x20) == 'x')
+        return "hexadecimal numbers are not read";
+    /* The grammar of a decimal number, then: what stopped it is the range. */
+    size_t j = i, digs = 0;
+    while (j < len && s[j] >= '0' && s[j] <= '9')
+        j++, digs++;
+    if (j < len && s[j] == '.')
+        for (j++; j < len && s[j] >= '0' && s[j] <= '9'; j++)
+            digs++;
+    if (!digs)
+        return NULL;
+    if (j < len && (s[j] | 0x20) == 'e') {
+        j++;
+        if (j < len && (s[j] == '+' || s[j] == '-'))
+            j++;
+        size_t e0 = j;
+        while (j < len && s[j] >= '0' && s[j] <= '9')
+            j++;
+        if (j == e0)
+            return NULL;
+    }
+    if (j == len && etacal_num_parse(s, len, &v) == ETACAL_NUM_BAD)
+        return "beyond the range of a double";
+    return NULL;
 }
 
 size_t etacal_num_format(double x, char *buf)

@@ -20,7 +20,9 @@ enum {
 /* Parses the len bytes at s as a decimal number: optional sign, digits with
  * an optional '.', optional exponent (e/E), or inf/infinity.  Spaces around
  * the number are allowed.  Hexadecimal, thousands separators and a decimal
- * comma are rejected.  The result is correctly rounded.  Returns one of the
+ * comma are rejected, and so is a number beyond the range of a double
+ * (1e400) or a nonzero one that would round to zero (1e-400): neither
+ * becomes inf or 0.  The result is correctly rounded.  Returns one of the
  * ETACAL_NUM_* codes above. */
 int etacal_num_parse(const char *s, size_t len, double *out);
 

@@ -252,7 +252,7 @@ static void test_read_other_delimiters(void **state)
     assert_same_double(etacal_table_num(f->t, 1)[1], 944.7);
     /* A decimal comma is not a number, even with ';' as the delimiter. */
     expect_error(f, "zone;pred_s;actual_s\nnorth;1800;1943,25\n", &o, ETACAL_EPARSE, 2,
-                 "column 'actual_s' is not numeric: '1943,25'");
+                 "column 'actual_s' is not numeric: '1943,25' (a comma is neither a decimal point nor a thousands separator; write 1234.5)");
     o.delim = '\t';
     const char *tab = "zone\tpred_s\tactual_s\n"
                       "north, old\t1800\t1943.25\n"
@@ -311,9 +311,9 @@ static void test_read_row_errors(void **state)
     snprintf(text, sizeof text, "%ssouth,944.7,901.125,17\n", head);
     expect_error(f, text, NULL, ETACAL_EPARSE, 3, "4 fields, but the header has 3");
     snprintf(text, sizeof text, "%ssouth,9 44.7,901.125\n", head);
-    expect_error(f, text, NULL, ETACAL_EPARSE, 3, "column 'pred_s' is not numeric: '9 44.7'");
+    expect_error(f, text, NULL, ETACAL_EPARSE, 3, "column 'pred_s' is not numeric: '9 44.7' (no digit grouping inside a number; write 1234.5)");
     snprintf(text, sizeof text, "%ssouth,0x10,901.125\n", head);
-    expect_error(f, text, NULL, ETACAL_EPARSE, 3, "column 'pred_s' is not numeric: '0x10'");
+    expect_error(f, text, NULL, ETACAL_EPARSE, 3, "column 'pred_s' is not numeric: '0x10' (hexadecimal numbers are not read)");
     snprintf(text, sizeof text, "%ssouth,944.7,-0.001\n", head);
     expect_error(f, text, NULL, ETACAL_EPARSE, 3, "column 'actual_s': duration is negative");
     snprintf(text, sizeof text, "%ssouth,-2.385,901.125\n", head);
