@@ -32,7 +32,7 @@ LIB      := $(BUILD)/libetacal.a
 BIN      := $(BUILD)/etacal
 CITYGEN  := $(BUILD)/citygen
 
-.PHONY: all deps demo check unit e2e ref asan install uninstall clean golden bench bench-qr format
+.PHONY: all deps demo check unit e2e ref asan install uninstall clean golden bench bench-qr format fuzz memcheck failmalloc
 
 all: $(BIN) $(LIB)
 
@@ -57,6 +57,9 @@ $(CITYGEN): examples/citygen.c
 $(BUILD)/tests/%: tests/unit/%.c $(wildcard tests/unit/*.h) $(LIB)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(CMOCKA_CFLAGS) -Itests/unit -o $@ $< $(LIB) $(CMOCKA_LIBS) $(LDLIBS_ALL)
+
+# the replay of the fuzz corpora includes the targets' sources
+$(BUILD)/tests/test_fuzz_replay: $(wildcard tests/fuzz/*.c tests/fuzz/*.h)
 
 $(BUILD)/quantgen: tests/tools/quantgen.c
 	@mkdir -p $(dir $@)
@@ -121,5 +124,35 @@ uninstall:
 format:
 	clang-format -i src/*.c src/cli/*.c src/*.h src/cli/*.h include/etacal/*.h tests/unit/*.c
 
+# ---- fuzzing ---------------------------------------------------------------
+# libFuzzer targets (tests/fuzz/fuzz_*.c), built with clang and ASan + UBSan
+# over a library whose two-part parallel CSV read starts at 64 bytes instead
+# of 16 MiB, so that small inputs reach it.  Each runs FUZZ_SECONDS on a
+# working corpus in build-fuzz/ seeded from tests/fuzz/corpus/ and
+# tests/fuzz/regress/; a crash leaves build-fuzz/crash-* (copy it to
+# tests/fuzz/regress/<target>/ once fixed).
+FUZZ_CC      ?= clang
+FUZZ_SECONDS ?= 60
+FUZZ_BUILD   := build-fuzz
+FUZZ_TARGETS := csv quotes time
+FUZZ_SAN     := -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer
+fuzz:
+	@command -v $(FUZZ_CC) >/dev/null 2>&1 || { echo "SKIP fuzz: $(FUZZ_CC) is not installed (scripts/deps.sh --oracles installs clang)"; exit 0; }; \
+	$(MAKE) --no-print-directory BUILD=$(FUZZ_BUILD) CC=$(FUZZ_CC) \
+	  SAN="$(FUZZ_SAN) -fsanitize=fuzzer-no-link -DETACAL_PARALLEL_MIN=64" $(FUZZ_BUILD)/libetacal.a && \
+	for t in $(FUZZ_TARGETS); do \
+	  $(FUZZ_CC) $(ALL_CFLAGS) $(FUZZ_SAN) -fsanitize=fuzzer -o $(FUZZ_BUILD)/fuzz_$$t tests/fuzz/fuzz_$$t.c \
+	    $(FUZZ_BUILD)/libetacal.a $(LDLIBS_ALL) || exit 1; \
+	done; \
+	for t in $(FUZZ_TARGETS); do \
+	  mkdir -p $(FUZZ_BUILD)/corpus/$$t; \
+	  echo "== fuzz $$t for $(FUZZ_SECONDS) s"; \
+	  $(FUZZ_BUILD)/fuzz_$$t -max_total_time=$(FUZZ_SECONDS) -timeout=10 -rss_limit_mb=2048 -max_len=65536 \
+	    -print_final_stats=1 -artifact_prefix=$(FUZZ_BUILD)/crash-$$t- \
+	    $(FUZZ_BUILD)/corpus/$$t tests/fuzz/corpus/$$t tests/fuzz/regress/$$t 2>$(FUZZ_BUILD)/fuzz_$$t.log || \
+	    { tail -60 $(FUZZ_BUILD)/fuzz_$$t.log; echo "FAIL fuzz $$t: see $(FUZZ_BUILD)/crash-$$t-*"; exit 1; }; \
+	  grep -E "^stat::number_of_executed_units|^Done" $(FUZZ_BUILD)/fuzz_$$t.log | tr '\n' ' '; echo; \
+	done
+
 clean:
-	rm -rf build build-asan
+	rm -rf build build-asan build-fuzz

@@ -295,6 +295,12 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         for (size_t j = 0; j < a->q->ncoef; j++)
             raw_v += row->coef[j] * a->cov[j];
         double v = etacal_promise_round(raw_v, a->o->round_s);
+        if (!isfinite(v)) {
+            /* finite table values can still overflow together */
+            stop = fail(a, line, ETACAL_ENUM, "the promise overflows (offset_s + slope x prediction%s is not finite)",
+                        a->q->ncoef ? " + coefficients x covariates" : "");
+            goto out;
+        }
         if (t == 0 && level < a->q->nkeys)
             st->fallback++;
         put_promise(a, v);

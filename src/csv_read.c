@@ -544,7 +544,13 @@ static void shift_where(etacal_error *err, const char *path, size_t shift)
 }
 
 /* Files smaller than this are read by one thread. */
+/* The fuzz build lowers it (make fuzz), so that small inputs take the
+ * two-part read too. */
+#ifdef ETACAL_PARALLEL_MIN
+#define PARALLEL_MIN ((uint64_t)(ETACAL_PARALLEL_MIN))
+#else
 #define PARALLEL_MIN ((uint64_t)16 << 20)
+#endif
 
 int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t ncols,
                           const etacal_read_opts *opts, etacal_table **out, etacal_error *err)
@@ -561,6 +567,10 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
     char delim = opts->delim ? opts->delim : ',';
     if (delim == '"' || delim == '\n' || delim == '\r' || delim == ' ')
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "the delimiter cannot be a quote, space or newline");
+    /* Names go into JSON and text reports, which hold UTF-8 text only. */
+    for (size_t i = 0; i < ncols; i++)
+        if (!utf8_valid(cols[i].name, strlen(cols[i].name)))
+            return etacal_error_set(err, ETACAL_EINVAL, NULL, "a column name asked for is not valid UTF-8");
     for (size_t i = 0; i < ncols; i++)
         for (size_t j = 0; j < i; j++)
             if (strcmp(cols[i].name, cols[j].name) == 0)

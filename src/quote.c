@@ -934,7 +934,11 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
             putc(',', fp);
         }
         etacal_num_format(q->targets[row->target], num);
-        fprintf(fp, "%s,%s,%zu,%zu,", num, etacal_method_name(row->method), row->n, row->k);
+        /* k 0: unknown (a table read without ranks); written empty */
+        fprintf(fp, "%s,%s,%zu,", num, etacal_method_name(row->method), row->n);
+        if (row->k)
+            fprintf(fp, "%zu", row->k);
+        putc(',', fp);
         etacal_num_format(row->offset_s, num);
         fputs(num, fp);
         putc(',', fp);

@@ -228,9 +228,11 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         stop = fail(r, line, ETACAL_EPARSE, "n must be at least 1 (the calibration rows of the segment)%s", "");
         goto out;
     }
-    if (r->c_k >= 0 && (stop = count(r, line, r->c_k, "k", &q.k)))
+    /* k may be left empty (unknown, as in a table written by hand): 0 */
+    int k_given = r->c_k >= 0 && rowbuf_len(b, (size_t)r->c_k) > 0;
+    if (k_given && (stop = count(r, line, r->c_k, "k", &q.k)))
         goto out;
-    if (r->c_k >= 0 && !(q.k >= 1 && q.k <= q.n)) {
+    if (k_given && !(q.k >= 1 && q.k <= q.n)) {
         char msg[96];
         snprintf(msg, sizeof msg, "k must be a rank from 1 to n = %zu, got %zu", q.n, q.k);
         stop = fail(r, line, ETACAL_EPARSE, "%s", msg);

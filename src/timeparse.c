@@ -47,8 +47,11 @@ int etacal_time_parse(const char *s, size_t len, double *out)
     if (!(len >= 10 && s[4] == '-')) {
         double v;
         int k = etacal_num_parse(s, len, &v);
-        if (k == ETACAL_NUM_VALUE && !(v == v && v - v == 0))
-            return ETACAL_NUM_BAD; /* inf */
+        /* Unix seconds of the years 0000-9999 only, like the dates below:
+         * 1e300 "seconds" is no time, and would overflow a long long when
+         * a time is written back (etacal_time_format). */
+        if (k == ETACAL_NUM_VALUE && !(v >= -62167219200.0 && v < 253402300800.0))
+            return ETACAL_NUM_BAD; /* also inf */
         if (k == ETACAL_NUM_VALUE)
             *out = v;
         return k;
@@ -120,6 +123,12 @@ int etacal_time_parse(const char *s, size_t len, double *out)
 void etacal_time_format(double t, char *buf)
 {
     /* civil_from_days (Hinnant), the inverse of days_from_civil */
+    /* clamped to the years 0000-9999 first: a double beyond long long
+     * converts with undefined behaviour (C11 6.3.1.4) */
+    if (!(t >= -62167219200.0))
+        t = -62167219200.0;
+    if (t > 253402300799.0)
+        t = 253402300799.0;
     long long s = (long long)floor(t);
     long long z = (s >= 0 ? s : s - 86399) / 86400;
     long long secs = s - z * 86400;

@@ -14,7 +14,8 @@ extern "C" {
  * hh:mm, hh:mm:ss or hh:mm:ss.fff, and by 'Z' or an offset +hh:mm, +hhmm or
  * +hh (also '-').  Without a zone the time is taken as UTC.  Fields are
  * checked (month 1-12, the day within its month, leap years, hour 0-23,
- * minute 0-59, second 0-60).  Returns ETACAL_NUM_VALUE with the seconds in
+ * minute 0-59, second 0-60); Unix seconds must fall in the same years
+ * 0000-9999 (-62167219200 <= t < 253402300800).  Returns ETACAL_NUM_VALUE with the seconds in
  * *out, ETACAL_NUM_MISSING for an empty/NA cell, or ETACAL_NUM_BAD. */
 int etacal_time_parse(const char *s, size_t len, double *out);
 

@@ -65,6 +65,24 @@ static void test_unix_and_missing(void **state)
     assert_int_equal(etacal_time_parse("NA", 2, &v), ETACAL_NUM_MISSING);
     bad("soon");
     bad("inf");
+    /* Unix seconds within the years 0000-9999, the range of the dates:
+     * 0000-01-01 is 719528 days before 1970-01-01 (proleptic Gregorian,
+     * days_from_civil of Hinnant's algorithms), 10000-01-01 is 2932897 after */
+    assert_true(ok("-62167219200") == -719528.0 * 86400);
+    assert_true(ok("253402300799") == 2932897.0 * 86400 - 1);
+    assert_true(ok("0000-01-01T00:00:00Z") == -719528.0 * 86400);
+    bad("253402300800");
+    bad("-62167219201");
+    bad("1e300");
+    bad("-1e19");
+    /* and writing a time never overflows: out-of-range values are clamped */
+    char buf[32];
+    etacal_time_format(1e300, buf);
+    assert_string_equal(buf, "9999-12-31T23:59:59Z");
+    etacal_time_format(-1e300, buf);
+    assert_string_equal(buf, "0000-01-01T00:00:00Z");
+    etacal_time_format(1772431318.75, buf);
+    assert_string_equal(buf, "2026-03-02T06:01:58Z");
 }
 
 int main(void)
