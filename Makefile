@@ -70,9 +70,13 @@ $(BUILD)/tests/refcalc: tests/ref/refcalc.c $(LIB)
 	$(CC) $(ALL_CFLAGS) -o $@ $< $(LIB) $(LDLIBS_ALL)
 
 # ---- tests ---------------------------------------------------------------
+# The whole suite, then the same under ASan + UBSan, a subset under valgrind
+# memcheck, and the out-of-memory runs (tests/tools/failmalloc.sh).
 check:
 	@sh scripts/deps.sh
 	@$(MAKE) --no-print-directory unit e2e ref
+	@$(MAKE) --no-print-directory asan
+	@$(MAKE) --no-print-directory memcheck failmalloc
 
 unit: $(UNIT_BIN)
 	@fail=0; for t in $(UNIT_BIN); do \
@@ -93,6 +97,19 @@ asan:
 	@$(MAKE) --no-print-directory BUILD=build-asan \
 	  SAN="-fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all" \
 	  unit e2e ref
+
+# A subset under valgrind memcheck, zero reports (skips without valgrind).
+memcheck: $(BIN) $(CITYGEN) $(UNIT_BIN)
+	@sh tests/tools/memcheck.sh $(BUILD)
+
+# Out of memory is reported, not a crash: commands with the Nth allocation
+# failing (an LD_PRELOAD hook; not under ASan, which has its own allocator).
+$(BUILD)/failmalloc.so: tests/tools/failmalloc.c
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS) $(WERROR) -fPIC -shared -o $@ $<
+
+failmalloc: $(BIN) $(CITYGEN) $(BUILD)/failmalloc.so
+	@sh tests/tools/failmalloc.sh $(BUILD)
 
 # ---- demo ----------------------------------------------------------------
 DEMO := $(BUILD)/demo

@@ -84,7 +84,12 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
                                   o->confidence, fitm, w};
             etacal_quotes *q = NULL;
             etacal_error e2;
-            if (pd->calib == 0 || etacal_quotes_fit(t, actual_col, pred_col, key_cols, nkeys, &fo, &q, &e2) != ETACAL_OK) {
+            int frc = pd->calib == 0 ? ETACAL_ENUM : etacal_quotes_fit(t, actual_col, pred_col, key_cols, nkeys, &fo, &q, &e2);
+            if (frc == ETACAL_ENOMEM) { /* an error, not a period without a table */
+                rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+                goto done;
+            }
+            if (frc != ETACAL_OK) {
                 pd->skipped = 1; /* its orders count nowhere */
                 etacal_quotes_destroy(q);
                 continue;

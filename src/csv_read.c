@@ -132,7 +132,9 @@ static void data_field(reader *r, size_t col, const char *s, size_t len)
                 return;
             }
             rowbuf_add(&r->pending, s, len);
-            if (grow_array((void **)&r->pending_col, &r->pending_cap, r->pending.nf,
+            if (r->pending.oom)
+                r->fatal = ETACAL_ENOMEM; /* the value was not added: nf did not grow */
+            else if (grow_array((void **)&r->pending_col, &r->pending_cap, r->pending.nf,
                            sizeof *r->pending_col) != 0)
                 r->fatal = ETACAL_ENOMEM;
             else
@@ -309,7 +311,7 @@ void etacal_table_destroy(etacal_table *t)
 {
     if (!t)
         return;
-    for (size_t i = 0; i < t->ncols; i++) {
+    for (size_t i = 0; t->cols && i < t->ncols; i++) { /* cols NULL: table_new ran out of memory */
         free(t->cols[i].name);
         free(t->cols[i].num);
         free(t->cols[i].key);

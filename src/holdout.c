@@ -138,7 +138,7 @@ size_t etacal_holdout_mask(const etacal_table *t, long time_col, double share, u
         double *c = malloc(n * sizeof *c);
         if (!tm || !c) {
             free(c);
-            return 0;
+            return tm ? ETACAL_HOLDOUT_NOMEM : 0;
         }
         memcpy(c, tm, n * sizeof *c);
         /* the cut-off: the type-1 quantile at 1 - share */
@@ -153,7 +153,7 @@ size_t etacal_holdout_mask(const etacal_table *t, long time_col, double share, u
     }
     gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
     if (!r)
-        return 0;
+        return ETACAL_HOLDOUT_NOMEM;
     gsl_rng_set(r, seed ? seed : 1);
     for (size_t i = 0; i < n; i++)
         if (gsl_rng_uniform(r) < share) {

@@ -161,7 +161,8 @@ static int cmp_wpair(const void *a, const void *b)
 
 /* The weighted conformal bound of scores s[0..n) with weights w (the new
  * point weighing 1 at +infinity): the smallest s with sum_{s_j <= s} w_j >=
- * tau (1 + sum w), or +inf.  *k gets the number of scores at or below it. */
+ * tau (1 + sum w), or +inf.  *k gets the number of scores at or below it.
+ * NaN when out of memory. */
 static double weighted_upper(const double *s, const double *w, size_t n, double tau, size_t *k)
 {
     double W = 0;
@@ -173,7 +174,7 @@ static double weighted_upper(const double *s, const double *w, size_t n, double 
         return INFINITY;
     wpair *c = malloc(n * sizeof *c);
     if (!c)
-        return INFINITY;
+        return NAN;
     for (size_t i = 0; i < n; i++)
         c[i] = (wpair){s[i], w[i]};
     qsort(c, n, sizeof *c, cmp_wpair);
@@ -323,6 +324,10 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
             qo.seed = o->seed;
             int frc = na > p ? etacal_qr_fit(fy, fcols, nx + 1, fw, na, tau, names, &qo, &res, &e2)
                              : ETACAL_EINVAL;
+            if (frc == ETACAL_ENOMEM) { /* not a reason to fall back: an error */
+                rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+                goto done;
+            }
             if (frc != ETACAL_OK && !global) {
                 sg->status[ti] = ETACAL_FALLBACK_FEW_ROWS;
                 sg->score_q[ti] = NAN;
@@ -356,6 +361,10 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
                 corr = k <= nb ? etacal_select(scores, nb, k) : INFINITY;
             }
             free(scores);
+            if (isnan(corr)) {
+                rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+                goto done;
+            }
             sg->k[ti] = k;
             sg->score_q[ti] = corr;
             sg->status[ti] = isinf(corr) ? ETACAL_FALLBACK_RANK : ETACAL_OWN_ROW;

@@ -258,7 +258,8 @@ void seghier_free(seghier *h)
     if (h->lv)
         for (size_t L = 0; L < h->nkeys; L++) {
             segset_free(&h->lv[L]);
-            free(h->uni[L]);
+            if (h->uni) /* NULL when its calloc failed */
+                free(h->uni[L]);
         }
     free(h->lv);
     free(h->uni);

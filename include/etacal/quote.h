@@ -149,7 +149,9 @@ void etacal_holdout_free(etacal_holdout *h);
  * one read with ETACAL_NUM_TIME) the latest share of rows by time (rows at
  * the cut-off time stay in the fit), else a seeded random share.  mask[i]
  * = 1 for the rows to fit on, 0 for the held-out ones; returns how many
- * are held out (0 if none could be, as with share 0). */
+ * are held out (0 if none could be, as with share 0), or
+ * ETACAL_HOLDOUT_NOMEM when out of memory. */
+#define ETACAL_HOLDOUT_NOMEM ((size_t)-1)
 size_t etacal_holdout_mask(const etacal_table *t, long time_col, double share, unsigned long seed,
                            unsigned char *mask);
 

@@ -183,8 +183,10 @@ int cmd_backtest(int argc, char **argv)
                 etacal_method_name(bo.method), bo.window_s / 3600, bo.every_s / 3600,
                 bo.half_life_s > 0 ? ", recency weights" : "", bo.gamma > 0 ? ", adaptive level" : "");
         text_table tt;
-        if (tt_init(&tt, 7) != 0)
+        if (tt_init(&tt, 7) != 0) {
+            etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
             goto fail;
+        }
         const char *h[7] = {"period start", "calib", "n", "on time", "95% CI", "buffer min", "level"};
         tt_add(&tt, h);
         for (int j = 1; j < 7; j++)
@@ -214,8 +216,12 @@ int cmd_backtest(int argc, char **argv)
             const char *row[7] = {a, cells[0], cells[1], cells[2], cells[3], cells[4], cells[5]};
             tt_add(&tt, row);
         }
-        tt_print(&tt, fp);
+        int tbad = tt_print(&tt, fp) != 0;
         tt_free(&tt);
+        if (tbad) {
+            etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+            goto fail;
+        }
         wilson(r.hits, r.n, &lo, &hi);
         fprintf(fp, "\noverall: %.2f%% on time (%zu/%zu), 95%% CI %.4f-%.4f, mean buffer %.2f min\n",
                 r.n ? 100.0 * (double)r.hits / (double)r.n : 0.0, r.hits, r.n, lo, hi, r.mean_buffer / 60);
@@ -264,13 +270,11 @@ int cmd_backtest(int argc, char **argv)
                                                        r.n ? json_real(hi) : json_null(),
                                                        "mean_buffer_s",
                                                        isfinite(r.mean_buffer) ? json_real(r.mean_buffer) : json_null()));
-        int bad = json_dumpf(root, fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10)) != 0;
+        rc = json_out(root, fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10),
+                      output ? output : "stdout", &err);
         json_decref(root);
-        if (bad) {
-            etacal_error_set(&err, ETACAL_EIO, output ? output : "stdout", "cannot write JSON");
+        if (rc)
             goto fail;
-        }
-        fputc('\n', fp);
     }
     if ((rc = etacal_outfile_commit(&of, &err)) != 0)
         goto fail;

@@ -104,7 +104,8 @@ static void fmt(char *buf, size_t n, const char *f, double v)
         snprintf(buf, n, f, v);
 }
 
-static void write_text(FILE *fp, const char *path, const etacal_table *t, const etacal_check_result *r,
+/* Returns 0, or -1 when out of memory. */
+static int write_text(FILE *fp, const char *path, const etacal_table *t, const etacal_check_result *r,
                        int gate)
 {
     const etacal_read_stats *st = etacal_table_stats(t);
@@ -120,7 +121,7 @@ static void write_text(FILE *fp, const char *path, const etacal_table *t, const 
     size_t ncols = nk + NFIX;
     text_table tt;
     if (tt_init(&tt, ncols) != 0)
-        return;
+        return -1;
     const char *cells[MAX_KEYS + NFIX];
     char buf[NFIX][64];
     size_t c = 0;
@@ -170,14 +171,18 @@ static void write_text(FILE *fp, const char *path, const etacal_table *t, const 
             tt_add(&tt, cells);
         }
     }
-    tt_print(&tt, fp);
+    int bad = tt_print(&tt, fp) != 0;
     tt_free(&tt);
+    if (bad)
+        return -1;
     if (r->nq_sorted >= 2) {
         const etacal_check_segment *all = &r->segs[0];
         fprintf(fp, "\ncalibration of the quantile forecast (all rows): nominal tau against the share of\n"
                     "actuals at or below the quantile\n");
         text_table ct;
-        if (tt_init(&ct, 5) == 0) {
+        if (tt_init(&ct, 5) != 0)
+            return -1;
+        {
             const char *h[5] = {"column", "tau", "share below", buf[0], "status"};
             tt_add(&ct, h);
             ct.right[1] = ct.right[2] = 1;
@@ -192,14 +197,17 @@ static void write_text(FILE *fp, const char *path, const etacal_table *t, const 
                 const char *row[5] = {b[0], b[1], b[2], b[3], b[4]};
                 tt_add(&ct, row);
             }
-            tt_print(&ct, fp);
+            bad = tt_print(&ct, fp) != 0;
             tt_free(&ct);
+            if (bad)
+                return -1;
         }
         fprintf(fp, "crossing: %zu of %zu rows have a lower-tau quantile above a higher one\n",
                 all->crossing_rows, all->n);
     }
     if (gate)
         fprintf(fp, "\ngate: %s\n", r->gate_failed ? "FAILED (a figure is under its nominal level)" : "passed");
+    return 0;
 }
 
 static void csv_num(FILE *fp, double v, const char *f)
@@ -471,17 +479,13 @@ int cmd_check(int argc, char **argv)
         goto fail;
     if (strcmp(format, "json") == 0) {
         json_t *j = build_json(path, t, r, gate);
-        int bad = !j || json_dumpf(j, of.fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10)) != 0;
+        rc = json_out(j, of.fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10),
+                      output ? output : "stdout", &err);
         json_decref(j);
-        if (bad)
-            etacal_error_set(&err, ETACAL_EIO, output ? output : "stdout", "cannot write JSON");
-        else
-            putc('\n', of.fp);
-        rc = bad ? ETACAL_EIO : 0;
     } else if (strcmp(format, "csv") == 0) {
         write_csv(of.fp, t, r);
-    } else {
-        write_text(of.fp, path, t, r, gate);
+    } else if (write_text(of.fp, path, t, r, gate) != 0) {
+        rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
     }
     if (rc == 0)
         rc = etacal_outfile_commit(&of, &err);

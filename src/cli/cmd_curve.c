@@ -191,6 +191,10 @@ int cmd_curve(int argc, char **argv)
         goto fail;
     }
     size_t held = etacal_holdout_mask(t, time_col, holdout, (unsigned long)seed, mask);
+    if (held == ETACAL_HOLDOUT_NOMEM) {
+        etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+        goto fail;
+    }
     if (held == 0 || held == n) {
         etacal_error_set(&err, ETACAL_ENUM, path, "--holdout %g leaves %s rows to %s", holdout, held ? "all" : "no",
                          held ? "fit on" : "hold out");
@@ -244,8 +248,10 @@ int cmd_curve(int argc, char **argv)
             } else {
                 fputc('\n', fp);
             }
-            if (tt_init(&tt, 7) != 0)
+            if (tt_init(&tt, 7) != 0) {
+                etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
                 goto fail;
+            }
             const char *h[7] = {"target",
                                 method == ETACAL_METHOD_ADD     ? "buffer s"
                                 : method == ETACAL_METHOD_RATIO ? "factor"
@@ -318,8 +324,13 @@ int cmd_curve(int argc, char **argv)
             prev_t = targets[ti];
         }
         if (text) {
-            tt_print(&tt, fp);
+            int tbad = tt_print(&tt, fp) != 0;
             tt_free(&tt);
+            if (tbad) {
+                json_decref(root);
+                etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+                goto fail;
+            }
         }
         if (root) {
             json_t *kv = json_object();
@@ -328,16 +339,18 @@ int cmd_curve(int argc, char **argv)
             json_array_append_new(segs, json_pack("{s:o,s:I,s:o}", "keys", kv, "held_n", (json_int_t)hn, "points", pts));
         }
     }
-    if (root) {
-        json_object_set_new(root, "segments", segs);
-        int bad = json_dumpf(root, fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10)) != 0;
+    if (strcmp(format, "json") == 0) {
+        if (root)
+            json_object_set_new(root, "segments", segs);
+        else
+            json_decref(segs);
+        rc = json_out(root, fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10),
+                      output ? output : "stdout", &err);
         json_decref(root);
-        if (bad) {
-            etacal_error_set(&err, ETACAL_EIO, output ? output : "stdout", "cannot write JSON");
+        if (rc) {
             etacal_outfile_abort(&of);
             goto fail;
         }
-        putc('\n', fp);
     }
     if ((rc = etacal_outfile_commit(&of, &err)) != 0) {
         etacal_outfile_abort(&of);

@@ -76,9 +76,11 @@ static void segment_label(char *buf, size_t n, const etacal_quotes *q, size_t g)
         snprintf(buf + w, n - w, ")");
 }
 
-static void print_summary(FILE *fp, const char *path, const char *pred, const etacal_table *t,
-                          const etacal_quotes *q, size_t min_rows)
+/* Returns 0, or -1 when out of memory (the summary is then incomplete). */
+static int print_summary(FILE *fp, const char *path, const char *pred, const etacal_table *t,
+                         const etacal_quotes *q, size_t min_rows)
 {
+    int rc = -1;
     const etacal_read_stats *st = etacal_table_stats(t);
     const etacal_accuracy *a = &q->accuracy;
     char pct[32];
@@ -103,7 +105,7 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
     size_t ncols = (nk ? nk : 1) + 2 + nt * ((add ? 2 : 1) + (conf ? 2 : 0)) + 1;
     text_table tt;
     if (tt_init(&tt, ncols) != 0)
-        return;
+        return -1;
     const char **cells = calloc(ncols, sizeof *cells);
     char (*buf)[96] = calloc(ncols, sizeof *buf);
     if (!cells || !buf)
@@ -231,7 +233,8 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
         c++;
         tt_add(&tt, cells);
     }
-    tt_print(&tt, fp);
+    if (tt_print(&tt, fp) != 0)
+        goto out;
     size_t fell = 0;
     for (size_t s = 1; s < q->nsegs; s++)
         for (size_t ti = 0; ti < nt; ti++)
@@ -242,10 +245,12 @@ static void print_summary(FILE *fp, const char *path, const char *pred, const et
     if (nk)
         fprintf(fp, "\n%zu segment%s: %zu with rows of their own for every target, %zu using a coarser level for some; table rows: %zu\n",
                 q->nsegs - 1, q->nsegs == 2 ? "" : "s", q->nsegs - 1 - fell, fell, q->nrows);
+    rc = 0;
 out:
     free(cells);
     free(buf);
     tt_free(&tt);
+    return rc;
 }
 
 static void rate_cell(char *buf, size_t n, size_t hits, size_t total)
@@ -258,8 +263,8 @@ static void rate_cell(char *buf, size_t n, size_t hits, size_t total)
         snprintf(buf, n, "%.2f%% (%zu/%zu) %.4f-%.4f", 100.0 * (double)hits / (double)total, hits, total, lo, hi);
 }
 
-static void print_holdout(FILE *fp, const etacal_quotes *q, const etacal_holdout *h, size_t held, size_t n,
-                          double share, const char *timecol)
+static int print_holdout(FILE *fp, const etacal_quotes *q, const etacal_holdout *h, size_t held, size_t n,
+                         double share, const char *timecol)
 {
     char sh[ETACAL_NUM_BUFSZ];
     etacal_percent_label(share, sh);
@@ -270,7 +275,7 @@ static void print_holdout(FILE *fp, const etacal_quotes *q, const etacal_holdout
     size_t ncols = nk + 1 + nt + 1;
     text_table tt;
     if (tt_init(&tt, ncols) != 0)
-        return;
+        return -1;
     const char *cells[MAX_KEYS + ETACAL_APPLY_MAX_TARGETS + 3];
     char buf[ETACAL_APPLY_MAX_TARGETS + 2][96];
     size_t c = 0;
@@ -307,8 +312,9 @@ static void print_holdout(FILE *fp, const etacal_quotes *q, const etacal_holdout
         cells[c++] = buf[nt];
         tt_add(&tt, cells);
     }
-    tt_print(&tt, fp);
+    int rc = tt_print(&tt, fp);
     tt_free(&tt);
+    return rc;
 }
 
 int cmd_fit(int argc, char **argv)
@@ -503,6 +509,10 @@ int cmd_fit(int argc, char **argv)
             goto fail;
         }
         held = etacal_holdout_mask(t, time_col, holdout, (unsigned long)seed, mask);
+        if (held == ETACAL_HOLDOUT_NOMEM) {
+            etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+            goto fail;
+        }
         if (held == 0 || held == n) {
             etacal_error_set(&err, ETACAL_ENUM, path, "--holdout %g leaves %s rows to %s", holdout,
                              held == 0 ? "no" : "all", held == 0 ? "hold out" : "fit on");
@@ -540,21 +550,45 @@ int cmd_fit(int argc, char **argv)
         if (rc)
             goto fail;
     }
+    /* The summary is made in memory first: when memory runs out there,
+     * no table is written either. */
+    char *sbuf = NULL;
+    size_t slen = 0;
+    if (!quiet) {
+        FILE *ms = open_memstream(&sbuf, &slen);
+        int bad = !ms || print_summary(ms, path, pred, t, q, min_rows) != 0 ||
+                  (mask && print_holdout(ms, q, &ho, held, etacal_table_rows(t), holdout, timecol) != 0);
+        /* A memory stream fails when it cannot grow.  glibc's fclose of one
+         * reports no failure of its last realloc, but then leaves the
+         * buffer as the last fflush set it: so that fflush is checked. */
+        if (ms && (fflush(ms) != 0 || ferror(ms)))
+            bad = 1;
+        if (ms && fclose(ms) != 0)
+            bad = 1;
+        if (!sbuf)
+            bad = 1;
+        if (bad) {
+            free(sbuf);
+            etacal_holdout_free(&ho);
+            etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+            goto fail;
+        }
+    }
     rc = etacal_outfile_open(&of, output ? output : "-", &err);
-    if (rc)
-        goto fail;
-    rc = etacal_quotes_write_csv(q, of.fp, &err);
+    if (rc == 0)
+        rc = etacal_quotes_write_csv(q, of.fp, &err);
     if (rc == 0)
         rc = etacal_outfile_commit(&of, &err);
     if (rc) {
         etacal_outfile_abort(&of);
+        free(sbuf);
+        etacal_holdout_free(&ho);
         goto fail;
     }
     if (!quiet) {
         FILE *fp = output ? stdout : stderr;
-        print_summary(fp, path, pred, t, q, min_rows);
-        if (mask)
-            print_holdout(fp, q, &ho, held, etacal_table_rows(t), holdout, timecol);
+        fwrite(sbuf, 1, slen, fp);
+        free(sbuf);
     }
     etacal_holdout_free(&ho);
     free(mask);

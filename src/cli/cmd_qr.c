@@ -49,8 +49,9 @@ typedef struct fitset {
 
 static double tval(double b, double se) { return isnan(se) || se == 0 ? NAN : b / se; }
 
-static void write_text(FILE *fp, const char *path, const char *yname, char **xs, const etacal_table *t,
-                       const fitset *f, int sem, size_t reps)
+/* Returns 0, or -1 when out of memory. */
+static int write_text(FILE *fp, const char *path, const char *yname, char **xs, const etacal_table *t,
+                      const fitset *f, int sem, size_t reps)
 {
     const etacal_read_stats *st = etacal_table_stats(t);
     fprintf(fp, "etacal qr: %s\n", path);
@@ -74,7 +75,7 @@ static void write_text(FILE *fp, const char *path, const char *yname, char **xs,
         fputs("\n", fp);
         text_table tt;
         if (tt_init(&tt, 5) != 0)
-            return;
+            return -1;
         const char *h[5] = {"term", "estimate", "std.error", "t", "p-value"};
         tt_add(&tt, h);
         for (int j = 1; j < 5; j++)
@@ -99,9 +100,12 @@ static void write_text(FILE *fp, const char *path, const char *yname, char **xs,
             const char *row[5] = {j == 0 ? "(intercept)" : xs[j - 1], b[0], b[1], b[2], b[3]};
             tt_add(&tt, row);
         }
-        tt_print(&tt, fp);
+        int bad = tt_print(&tt, fp) != 0;
         tt_free(&tt);
+        if (bad)
+            return -1;
     }
+    return 0;
 }
 
 static void write_csv(FILE *fp, char **xs, const fitset *f)
@@ -328,18 +332,21 @@ int cmd_qr(int argc, char **argv)
     } else {
         if (strcmp(format, "json") == 0) {
             json_t *j = build_json(path, yname, xs, t, &f, sem, reps);
-            if (!j || json_dumpf(j, of.fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(12)) != 0) {
-                json_decref(j);
+            rc = json_out(j, of.fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(12),
+                          output ? output : "stdout", &err);
+            json_decref(j);
+            if (rc) {
                 etacal_outfile_abort(&of);
-                rc = etacal_error_set(&err, ETACAL_EIO, output ? output : "stdout", "cannot write JSON");
                 goto fail;
             }
-            json_decref(j);
-            putc('\n', of.fp);
         } else if (strcmp(format, "csv") == 0) {
             write_csv(of.fp, xs, &f);
         } else {
-            write_text(of.fp, path, yname, xs, t, &f, sem, reps);
+            if (write_text(of.fp, path, yname, xs, t, &f, sem, reps) != 0) {
+                etacal_outfile_abort(&of);
+                rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+                goto fail;
+            }
         }
         rc = etacal_outfile_commit(&of, &err);
         if (rc) {

@@ -29,6 +29,7 @@ int main(int argc, char **argv)
 {
     /* GSL's default error handler aborts; the library reports errors itself. */
     gsl_set_error_handler_off();
+    json_watch_alloc();
     if (argc < 2)
         return usage_error(NULL, "no command given");
     const char *cmd = argv[1];
