@@ -10,6 +10,7 @@
  *           "coef c0 .. cK", "se s0 .. sK", "objective", "iterations", "bandwidth";
  *           SE is none, powell or boot (200 reps, seed 1); PRE 1 forces
  *           preprocessing, 2 forbids it
+ *   refcalc utf8 < hex lines              1 or 0 per line: the bytes are UTF-8 (utf8_valid)
  * Numbers are read one per line; results print with %.17g, one per line. */
 #include <stdio.h>
 #include <stdlib.h>
@@ -18,6 +19,7 @@
 #include <gsl/gsl_errno.h>
 
 #include "etacal/etacal.h"
+#include "internal.h" /* utf8_valid */
 
 static double *read_all(size_t *n)
 {
@@ -57,6 +59,18 @@ static double arg(const char *s)
 int main(int argc, char **argv)
 {
     gsl_set_error_handler_off();
+    if (argc == 2 && strcmp(argv[1], "utf8") == 0) {
+        static char line[4096];
+        unsigned char bytes[2048];
+        while (fgets(line, sizeof line, stdin)) {
+            size_t n = 0;
+            unsigned b;
+            for (const char *p = line; sscanf(p, "%2x", &b) == 1 && n < sizeof bytes; p += 2)
+                bytes[n++] = (unsigned char)b;
+            printf("%d\n", utf8_valid((const char *)bytes, n));
+        }
+        return 0;
+    }
     if (argc >= 3 && strcmp(argv[1], "type1") == 0) {
         size_t n;
         double *x = read_all(&n);
