@@ -214,8 +214,9 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
          * promised by a row of its own. */
         for (size_t j = 0; j < a->q->nkeys && !problem; j++) {
             size_t cj = (size_t)a->c_keys[j], len = rowbuf_len(b, cj);
-            if (!utf8_valid(rowbuf_get(b, cj), len)) {
-                snprintf(msg, sizeof msg, "a value of key column '%.60s' is not valid UTF-8", a->q->key_names[j]);
+            if (!utf8_valid(rowbuf_get(b, cj), len) || memchr(rowbuf_get(b, cj), '\x1f', len)) {
+                snprintf(msg, sizeof msg, "a value of key column '%.60s' is not valid UTF-8%s", a->q->key_names[j],
+                         utf8_valid(rowbuf_get(b, cj), len) ? " text (it holds the control character 0x1f)" : "");
                 problem = msg;
             }
         }

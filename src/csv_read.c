@@ -131,6 +131,11 @@ static void data_field(reader *r, size_t col, const char *s, size_t len)
                 set_bad(r, 2, "a value of key column '%s' is not valid UTF-8%s", c->name, "");
                 return;
             }
+            /* the unit separator joins key values in quote tables and apply */
+            if (memchr(s, '\x1f', len)) {
+                set_bad(r, 2, "a value of key column '%s' holds the control character 0x1f%s", c->name, "");
+                return;
+            }
             rowbuf_add(&r->pending, s, len);
             if (r->pending.oom)
                 r->fatal = ETACAL_ENOMEM; /* the value was not added: nf did not grow */

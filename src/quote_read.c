@@ -292,8 +292,13 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         size_t kl = rowbuf_len(b, j);
         /* The unit separator joins the keys below: a key holding one
          * could pass for another combination. */
-        if (!utf8_valid(kv, kl) || memchr(kv, '\x1f', kl)) {
+        if (!utf8_valid(kv, kl)) {
             stop = fail(r, line, ETACAL_EPARSE, "the value of key '%s' is not UTF-8 text", r->key_names[j]);
+            goto out;
+        }
+        if (memchr(kv, '\x1f', kl)) {
+            stop = fail(r, line, ETACAL_EPARSE, "the value of key '%s' holds the control character 0x1f",
+                        r->key_names[j]);
             goto out;
         }
         int is_star = strcmp(kv, "*") == 0;

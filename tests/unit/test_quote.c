@@ -733,7 +733,7 @@ static void test_read_errors(void **state)
     expect_read_error(f, HDR GLOBAL90 "nor\xc3th,*,0.9,add,900,811,250.25,1\n", ETACAL_EPARSE, 3,
                       "the value of key 'zone' is not UTF-8 text");
     expect_read_error(f, HDR GLOBAL90 "nor\x1fth,*,0.9,add,900,811,250.25,1\n", ETACAL_EPARSE, 3,
-                      "the value of key 'zone' is not UTF-8 text");
+                      "the value of key 'zone' holds the control character 0x1f");
     expect_read_error(f, "zone,,target,method,n,offset_s,slope\n*,*,0.9,add,50,3.5,1\n", ETACAL_EPARSE, 1,
                       "column 2 of the header has no name");
     expect_read_error(f, "zone,target,method,n,k,offset_s,slope,confidence\n*,0.9,add,50,48,3.5,1,1.5\n",
