@@ -220,10 +220,11 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
                 problem = msg;
             }
         }
-        int k = problem ? ETACAL_NUM_MISSING
-                        : etacal_num_parse(rowbuf_get(b, (size_t)a->c_pred), rowbuf_len(b, (size_t)a->c_pred), &pred);
+        int k = ETACAL_NUM_MISSING;
+        if (!problem)
+            k = etacal_num_parse(rowbuf_get(b, (size_t)a->c_pred), rowbuf_len(b, (size_t)a->c_pred), &pred);
         if (problem) {
-            /* reported below */
+            /* a key already: reported below */
         } else if (k == ETACAL_NUM_BAD) {
             bad_number(msg, sizeof msg, a->o->pred_col, rowbuf_get(b, (size_t)a->c_pred),
                        rowbuf_len(b, (size_t)a->c_pred));

@@ -59,14 +59,6 @@ static int fail(qreader *r, size_t line, int code, const char *msg, const char *
     return 1;
 }
 
-/* "3" for column index 2, in a static buffer: for one message at a time. */
-static const char *col_number(size_t i)
-{
-    static _Thread_local char buf[24];
-    snprintf(buf, sizeof buf, "%zu", i + 1);
-    return buf;
-}
-
 static int header(qreader *r, size_t line)
 {
     rowbuf *b = &r->rb;
@@ -76,10 +68,12 @@ static int header(qreader *r, size_t line)
     for (size_t i = 0; i < b->nf; i++) {
         const char *h = rowbuf_get(b, i);
         long *slot = NULL;
+        char num[24]; /* the column's number, from 1, for messages */
+        snprintf(num, sizeof num, "%zu", i + 1);
         if (!h[0])
-            return fail(r, line, ETACAL_EPARSE, "column %s of the header has no name", col_number(i));
-        if (rowbuf_len(b, i) != strlen(h) || !utf8_valid(h, rowbuf_len(b, i)))
-            return fail(r, line, ETACAL_EPARSE, "column %s of the header is not UTF-8 text", col_number(i));
+            return fail(r, line, ETACAL_EPARSE, "column %s of the header has no name", num);
+        if (!utf8_valid(h, rowbuf_len(b, i)))
+            return fail(r, line, ETACAL_EPARSE, "column %s of the header is not UTF-8 text", num);
         if (strcmp(h, "target") == 0)
             slot = &r->c_target;
         else if (strcmp(h, "method") == 0)
@@ -98,7 +92,6 @@ static int header(qreader *r, size_t line)
             slot = &r->c_covmean;
         else if (strcmp(h, "coverage_low") == 0)
             slot = &r->c_covlow;
-
         if (slot) {
             if (*slot >= 0)
                 return fail(r, line, ETACAL_EPARSE, "column '%s' appears twice in the header", h);

@@ -736,6 +736,8 @@ static void test_read_errors(void **state)
                       "the value of key 'zone' holds the control character 0x1f");
     expect_read_error(f, "zone,,target,method,n,offset_s,slope\n*,*,0.9,add,50,3.5,1\n", ETACAL_EPARSE, 1,
                       "column 2 of the header has no name");
+    expect_read_error(f, "zo\xffne,target,method,n,offset_s,slope\n*,0.9,add,50,3.5,1\n", ETACAL_EPARSE, 1,
+                      "column 1 of the header is not UTF-8 text");
     expect_read_error(f, "zone,target,method,n,k,offset_s,slope,confidence\n*,0.9,add,50,48,3.5,1,1.5\n",
                       ETACAL_EPARSE, 2, "'confidence' must be in (0,1)");
     expect_read_error(f, "zone,target,method,n,k,offset_s,slope,coverage_low\n*,0.9,add,50,48,3.5,1,-0.25\n",
