@@ -41,24 +41,78 @@ static int lower_eq(const char *s, size_t len, const char *word)
     return 1;
 }
 
+/* Significant digits kept when a long number is shortened for strtod_l.
+ * A double, and a midpoint between two doubles, has at most 767
+ * significant decimal digits, so a decimal's first 768 digits and whether
+ * any later one is nonzero decide its correct rounding: two decimals that
+ * agree there lie on the same side of every double and every midpoint. */
+#define KEEP_DIGITS 780
+
+/* s (trimmed, already checked to be a decimal number: sign, digits, one
+ * point, exponent) through strtod_l in the C locale.  A long one is first
+ * rewritten as [sign]0.DDD...[1]eN with its first KEEP_DIGITS significant
+ * digits, a sticky 1 when a later digit is nonzero, and the exponent that
+ * keeps its value: no allocation, whatever the length. */
 static double slow_parse(const char *s, size_t len, int *ok)
 {
-    char small[512];
-    char *buf = len < sizeof small ? small : malloc(len + 1);
+    char buf[KEEP_DIGITS + 64];
+    size_t w = 0;
     *ok = 0;
-    if (!buf)
-        return 0;
-    memcpy(buf, s, len);
-    buf[len] = '\0';
+    if (len < KEEP_DIGITS) {
+        memcpy(buf, s, len);
+        w = len;
+    } else {
+        const char *p = s, *end = s + len;
+        if (*p == '+' || *p == '-')
+            buf[w++] = *p++;
+        buf[w++] = '0';
+        buf[w++] = '.';
+        long long point = 0; /* the value is 0.DDD... x 10^point */
+        size_t kept = 0;
+        int nonzero = 0, sticky = 0, frac = 0;
+        for (; p < end && *p != 'e' && *p != 'E'; p++) {
+            if (*p == '.') {
+                frac = 1;
+                continue;
+            }
+            if (!nonzero && *p == '0') { /* a leading zero */
+                point -= frac;
+                continue;
+            }
+            nonzero = 1;
+            point += !frac;
+            if (kept < KEEP_DIGITS) {
+                buf[w++] = *p;
+                kept++;
+            } else if (*p != '0') {
+                sticky = 1;
+            }
+        }
+        if (!nonzero)
+            buf[w++] = '0';
+        if (sticky)
+            buf[w++] = '1';
+        long long e = 0;
+        int eneg = 0;
+        if (p < end) { /* the exponent, saturated: beyond 1e9 it only overflows or underflows */
+            p++;
+            if (p < end && (*p == '+' || *p == '-'))
+                eneg = *p++ == '-';
+            for (; p < end; p++)
+                if (e < 1000000000)
+                    e = e * 10 + (*p - '0');
+        }
+        point += eneg ? -e : e;
+        w += (size_t)snprintf(buf + w, sizeof buf - w, "e%lld", point);
+    }
+    buf[w] = '\0';
     call_once(&c_locale_once, make_c_locale);
     double v = 0;
     if (c_locale != (locale_t)0) {
-        char *end;
-        v = strtod_l(buf, &end, c_locale);
-        *ok = (end == buf + len);
+        char *endp;
+        v = strtod_l(buf, &endp, c_locale);
+        *ok = (endp == buf + w);
     }
-    if (buf != small)
-        free(buf);
     return v;
 }
 

@@ -312,6 +312,68 @@ static void test_parse_very_long_mantissa(void **state)
     assert_same_double(v, 2.385);
     assert_int_equal(parse(above, &v), ETACAL_NUM_VALUE);
     assert_same_double(v, 0x1p-1074);
+    /* Longer than the 780 digits kept: the same halfway value with 200
+     * zeros more is still exactly halfway (refused: it rounds to 0), and
+     * with a 1 after those zeros it is just above (2^-1074); the sticky
+     * digit decides, as in strtod on the whole text. */
+    char longer[1400];
+    snprintf(longer, sizeof longer, "%.*s%0200d%s", mlen, half, 0, e);
+    assert_true(strlen(longer) > 900);
+    assert_same_double(ref_strtod(longer), 0.0);
+    v = 2.385;
+    assert_int_equal(parse(longer, &v), ETACAL_NUM_BAD);
+    snprintf(longer, sizeof longer, "%.*s%0200d1%s", mlen, half, 0, e);
+    assert_same_double(ref_strtod(longer), 0x1p-1074);
+    assert_int_equal(parse(longer, &v), ETACAL_NUM_VALUE);
+    assert_same_double(v, 0x1p-1074);
+}
+
+/* Numbers of 800 to 3000 characters (shortened to 780 significant digits
+ * and a sticky digit before strtod_l) against strtod on the whole text:
+ * random digits, and ties 2^53 + 1 (halfway between two doubles) padded
+ * with zeros, with and without a last nonzero digit. */
+static void test_parse_thousands_of_digits(void **state)
+{
+    (void)state;
+    tu_rng r = {UINT64_C(20261202)};
+    static char buf[3200];
+    for (int i = 0; i < 300; i++) {
+        size_t w = 0, nd = 800 + tu_below(&r, 2100);
+        if (tu_below(&r, 2))
+            buf[w++] = '-';
+        size_t lead = tu_below(&r, 4) == 0 ? tu_below(&r, 50) : 0;
+        for (size_t j = 0; j < lead; j++)
+            buf[w++] = '0';
+        size_t point = tu_below(&r, nd + 1);
+        for (size_t j = 0; j < nd; j++) {
+            if (j == point)
+                buf[w++] = '.';
+            buf[w++] = (char)('0' + (j == 0 ? 1 + tu_below(&r, 9) : tu_below(&r, 10)));
+        }
+        w += (size_t)snprintf(buf + w, sizeof buf - w, "e%d", (int)tu_below(&r, 700) - 350 - (int)(nd - point));
+        double want = ref_strtod(buf), got = 2.385;
+        int rc = etacal_num_parse(buf, w, &got);
+        if (isinf(want) || want == 0) {
+            if (rc != ETACAL_NUM_BAD)
+                fail_msg("%zu chars: code %d, expected bad (out of range)", w, rc);
+            continue;
+        }
+        if (rc != ETACAL_NUM_VALUE || !tu_same_bits(got, want))
+            fail_msg("%zu chars (%.30s...): code %d, got %a, strtod gives %a", w, buf, rc, got, want);
+    }
+    /* 9007199254740993 = 2^53 + 1: halfway, ties to even (2^53); any later
+     * nonzero digit, however far, rounds up to 2^53 + 2 */
+    double v;
+    snprintf(buf, sizeof buf, "9007199254740993.%01500d", 0);
+    assert_int_equal(parse(buf, &v), ETACAL_NUM_VALUE);
+    assert_same_double(v, 9007199254740992.0);
+    snprintf(buf, sizeof buf, "9007199254740993.%01500d1", 0);
+    assert_int_equal(parse(buf, &v), ETACAL_NUM_VALUE);
+    assert_same_double(v, 9007199254740994.0);
+    assert_same_double(v, ref_strtod(buf));
+    snprintf(buf, sizeof buf, "0.%01500d9007199254740993e1517", 0);
+    assert_int_equal(parse(buf, &v), ETACAL_NUM_VALUE);
+    assert_same_double(v, ref_strtod(buf));
 }
 
 static size_t fmt(double x, char *buf)
@@ -534,6 +596,7 @@ int main(void)
         cmocka_unit_test(test_parse_honours_length),
         cmocka_unit_test(test_parse_missing_tokens),
         cmocka_unit_test(test_bad_reasons),
+        cmocka_unit_test(test_parse_thousands_of_digits),
         cmocka_unit_test(test_parse_rejects_malformed),
         cmocka_unit_test(test_parse_random_against_strtod),
         cmocka_unit_test(test_parse_long_mantissas),
