@@ -21,5 +21,6 @@
 #include "etacal/check.h"
 #include "etacal/quantreg.h"
 #include "etacal/backtest.h"
+#include "etacal/curve.h"
 
 #endif
