@@ -17,6 +17,7 @@ static const char usage[] =
     "  qr      linear quantile regression, with standard errors and predictions\n"
     "  curve   what each on-time target costs, measured on held-out rows\n"
     "  backtest  would the nightly job have kept its promise? (rolling origin)\n"
+    "  report  one self-contained HTML page of charts and tables about a quote table\n"
     "\n"
     "Run 'etacal COMMAND --help' for a command's options.\n"
     "  -h, --help     show this help and exit\n"
@@ -51,6 +52,8 @@ int main(int argc, char **argv)
         rc = cmd_curve(argc - 1, argv + 1);
     } else if (strcmp(cmd, "backtest") == 0) {
         rc = cmd_backtest(argc - 1, argv + 1);
+    } else if (strcmp(cmd, "report") == 0) {
+        rc = cmd_report(argc - 1, argv + 1);
     } else {
         return usage_error(NULL, "unknown command '%s'", cmd);
     }
