@@ -194,7 +194,7 @@ static void headline(FILE *fp, const etacal_report *r)
 {
     const etacal_quotes *q = r->q;
     const etacal_holdout *h = r->ho;
-    size_t ti = r->target, nt = q->ntargets;
+    size_t ti = r->target;
     const etacal_curve_point *p = &r->curve->pts[ti];
     char a[ETACAL_SVG_NUMSZ], b[ETACAL_SVG_NUMSZ], c[ETACAL_SVG_NUMSZ], tb[ETACAL_SVG_NUMSZ];
     double tau = q->targets[ti];
@@ -221,7 +221,6 @@ static void headline(FILE *fp, const etacal_report *r)
                                                   : "the 95% interval holds the target";
     fprintf(fp, "<p class=\"verdict\">Reached %s for a target of %s: %s.</p>\n",
             pct(h->n[0] ? (double)h->hits[ti] / (double)h->n[0] : NAN, 2, a), tb, verdict);
-    (void)nt;
     const etacal_read_stats *st = r->stats;
     fputs("<table class=\"facts\">\n<tr><th>rows</th><td>", fp);
     fprintf(fp, "%zu used of %zu read; %zu left out (missing actual or prediction), %zu malformed skipped",
@@ -407,6 +406,28 @@ static int calibration(FILE *fp, const etacal_report *r, etacal_error *err)
     static const int ls[] = {ETACAL_SVG_MAIN, ETACAL_SVG_REF, ETACAL_SVG_BAND}, lk[] = {2, 0, 1};
     etacal_svg_legend(&c, ll, ls, lk, 3);
     etacal_svg_end(&c);
+    /* the same as distances from the diagonal, where the band can be seen */
+    double dlo = 0, dhi = 0;
+    for (size_t i = 0; i < nt; i++) {
+        y[i] -= x[i];
+        lo[i] -= x[i];
+        hi[i] -= x[i];
+        dlo = fmin(dlo, fmin(y[i], lo[i]));
+        dhi = fmax(dhi, fmax(y[i], hi[i]));
+    }
+    fputs("<p class=\"note\">The same, as the distance from the diagonal in percentage points: above 0 the "
+          "promises keep more than they claim, below 0 less.</p>\n",
+          fp);
+    lay.ysuffix = NULL;
+    if ((rc = etacal_svg_begin(&c, fp, CHART_W, 260, 0, 100, dlo, dhi,
+                               "Calibration: observed minus nominal share in percentage points", &lay, err)) != 0)
+        goto out;
+    etacal_svg_axes(&c, "nominal level (target)", "observed \xE2\x88\x92 nominal (points)");
+    etacal_svg_band(&c, x, lo, hi, nt, ETACAL_SVG_BAND);
+    etacal_svg_hline(&c, 0, ETACAL_SVG_REF, NULL);
+    etacal_svg_markers(&c, x, y, nt, ETACAL_SVG_MAIN, 3);
+    etacal_svg_legend(&c, ll, ls, lk, 3);
+    etacal_svg_end(&c);
 out:
     fputs("</section>\n", fp);
     free(x);
@@ -516,9 +537,9 @@ static int segments(FILE *fp, const etacal_report *r, etacal_error *err)
     etacal_svg_errbars(&c, pos, lo, hi, shown, ETACAL_SVG_MAIN, 1);
     etacal_svg_markers(&c, rate, pos, shown, ETACAL_SVG_MAIN, 3.5);
     etacal_svg_markers(&c, thin, pos, shown, ETACAL_SVG_MUTED, 3.5);
-    static const char *const ll[] = {"on-time rate and 95% CI", "thin segment", "target"};
-    static const int ls[] = {ETACAL_SVG_MAIN, ETACAL_SVG_MUTED, ETACAL_SVG_ALT}, lk[] = {2, 2, 0};
-    etacal_svg_legend(&c, ll, ls, lk, nthin ? 3 : 3);
+    static const char *const ll[] = {"on-time rate and 95% CI", "target", "thin segment"};
+    static const int ls[] = {ETACAL_SVG_MAIN, ETACAL_SVG_ALT, ETACAL_SVG_MUTED}, lk[] = {2, 0, 2};
+    etacal_svg_legend(&c, ll, ls, lk, nthin ? 3 : 2);
     etacal_svg_end(&c);
 out:
     fputs("</section>\n", fp);

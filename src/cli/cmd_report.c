@@ -267,6 +267,13 @@ int cmd_report(int argc, char **argv)
                          held ? "fit on" : "hold out");
         goto fail;
     }
+    /* the levels of the grids that the rows fitted on can bound (n >= tau/(1-tau)); the chosen target
+     * stays, and says so itself when it cannot be met */
+    w = 0;
+    for (size_t i = 0; i < nt; i++)
+        if (targets[i] == target || etacal_conformal_min_n(targets[i]) <= n - held)
+            targets[w++] = targets[i];
+    nt = w;
     etacal_fit_opts fo = {method, targets, nt, min_rows, x_cols, nx, split, (unsigned long)seed, 0, mask, NULL};
     if ((rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err)) != 0)
         goto fail;
