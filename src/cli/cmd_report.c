@@ -88,7 +88,7 @@ static int cmp_double(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
-int cmd_report(int argc, char **argv)
+static int run(int argc, char **argv, const char *cmdline)
 {
     enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_X, O_SPLIT, O_SEED, O_HOLDOUT, O_TIME,
            O_WINDOW, O_EVERY, O_TITLE };
@@ -190,17 +190,6 @@ int cmd_report(int argc, char **argv)
         return usage_error("report", "--time '%s' is already the actual or the prediction", timecol);
     const char *path = argv[optind];
 
-    /* the command line as typed, for the page (argv[0] is "report") */
-    char *cmdline = NULL;
-    size_t cl_len = 0, cl_cap = 0;
-    if (append_arg(&cmdline, &cl_len, &cl_cap, "etacal") != 0)
-        return report_error(&(etacal_error){ETACAL_ENOMEM, "", "out of memory"});
-    for (int i = 0; i < argc; i++)
-        if (append_arg(&cmdline, &cl_len, &cl_cap, argv[i]) != 0) {
-            free(cmdline);
-            return report_error(&(etacal_error){ETACAL_ENOMEM, "", "out of memory"});
-        }
-
     /* the targets: the cost-curve grid, the calibration levels and the target */
     double targets[MAX_LEVELS];
     size_t nt = etacal_curve_grid(0.5, 0.99, 0.01, targets, MAX_LEVELS);
@@ -251,10 +240,8 @@ int cmd_report(int argc, char **argv)
     int have_bt = 0;
     int rc = etacal_table_read_csv(path, cols, ncol, &ro, &t, &err);
     progress_end(&pg);
-    if (rc) {
-        free(cmdline);
+    if (rc)
         return report_error(&err);
-    }
     size_t n = etacal_table_rows(t);
     mask = malloc(n ? n : 1);
     if (!mask) {
@@ -354,7 +341,6 @@ int cmd_report(int argc, char **argv)
     etacal_quotes_destroy(q);
     etacal_table_destroy(t);
     free(mask);
-    free(cmdline);
     return 0;
 fail:
     etacal_outfile_abort(&of);
@@ -365,6 +351,24 @@ fail:
     etacal_quotes_destroy(q);
     etacal_table_destroy(t);
     free(mask);
-    free(cmdline);
     return report_error(&err);
+}
+
+int cmd_report(int argc, char **argv)
+{
+    /* the command line as typed, for the page (argv[0] is "report"), taken
+     * before getopt permutes argv and parse_names cuts --by at its commas */
+    char *cmdline = NULL;
+    size_t len = 0, cap = 0;
+    int bad = append_arg(&cmdline, &len, &cap, "etacal") != 0;
+    for (int i = 0; i < argc && !bad; i++)
+        bad = append_arg(&cmdline, &len, &cap, argv[i]) != 0;
+    if (bad) {
+        free(cmdline);
+        fprintf(stderr, "etacal: out of memory\n");
+        return EXIT_DATA;
+    }
+    int rc = run(argc, argv, cmdline);
+    free(cmdline);
+    return rc;
 }
