@@ -174,6 +174,7 @@ static const char css[] =
     ".kpi{flex:1 1 220px;border:1px solid #bbb;border-left:6px solid #0072B2;padding:8px 12px}\n"
     ".kpi.bare{border-left-color:#767676}.kpi .big{font-size:28px;font-weight:bold}\n"
     ".verdict{font-weight:bold}\n"
+    ".warn{border-left:6px solid #D55E00;padding:4px 10px;background:#fbeee6}\n"
     "table{border-collapse:collapse;margin:8px 0;font-size:13px}\n"
     "th,td{border:1px solid #ccc;padding:3px 8px;text-align:left;vertical-align:top}\n"
     "td.n,th.n{text-align:right;font-variant-numeric:tabular-nums}\n"
@@ -221,6 +222,11 @@ static void headline(FILE *fp, const etacal_report *r)
                                                   : "the 95% interval holds the target";
     fprintf(fp, "<p class=\"verdict\">Reached %s for a target of %s: %s.</p>\n",
             pct(h->n[0] ? (double)h->hits[ti] / (double)h->n[0] : NAN, 2, a), tb, verdict);
+    if (r->note) {
+        fputs("<p class=\"warn\">Note: ", fp);
+        esc(fp, r->note);
+        fputs(".</p>\n", fp);
+    }
     const etacal_read_stats *st = r->stats;
     fputs("<table class=\"facts\">\n<tr><th>rows</th><td>", fp);
     fprintf(fp, "%zu used of %zu read; %zu left out (missing actual or prediction), %zu malformed skipped",

@@ -62,6 +62,7 @@ typedef struct etacal_report {
     double bt_window_s, bt_every_s;
     size_t thin;             /* a segment with fewer held-out rows is marked thin */
     double curve_from;       /* the cost curve shows the targets >= this */
+    const char *note;        /* a warning shown under the headline, or NULL */
 } etacal_report;
 
 /* Writes the page to fp.  Errors: a target index out of range, counts that

@@ -192,7 +192,10 @@ static int run(int argc, char **argv, const char *cmdline)
 
     /* the targets: the cost-curve grid, the calibration levels and the target */
     double targets[MAX_LEVELS];
-    size_t nt = etacal_curve_grid(0.5, 0.99, 0.01, targets, MAX_LEVELS);
+    /* quantile regression is fragile at extreme levels (the interior-point
+     * method may not converge at 99% on a few thousand rows): its curve
+     * stops at 95% */
+    size_t nt = etacal_curve_grid(0.5, method == ETACAL_METHOD_QR ? 0.95 : 0.99, 0.01, targets, MAX_LEVELS);
     nt += etacal_curve_grid(0.05, 0.45, 0.05, targets + nt, MAX_LEVELS - nt);
     targets[nt++] = target;
     qsort(targets, nt, sizeof *targets, cmp_double);
@@ -236,7 +239,7 @@ static int run(int argc, char **argv, const char *cmdline)
     etacal_backtest_result bt = {0};
     etacal_outfile of = {0};
     unsigned char *mask = NULL;
-    char bt_note[300] = "";
+    char bt_note[300] = "", note[400] = "";
     int have_bt = 0;
     int rc = etacal_table_read_csv(path, cols, ncol, &ro, &t, &err);
     progress_end(&pg);
@@ -262,7 +265,20 @@ static int run(int argc, char **argv, const char *cmdline)
             targets[w++] = targets[i];
     nt = w;
     etacal_fit_opts fo = {method, targets, nt, min_rows, x_cols, nx, split, (unsigned long)seed, 0, mask, NULL};
-    if ((rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err)) != 0)
+    rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err);
+    if (rc == ETACAL_ENUM && nt > 1) {
+        /* a level of the charts that cannot be fitted should not cost the
+         * page: fit the chosen target alone, and say so */
+        snprintf(note, sizeof note, "the levels of the cost curve and the calibration chart could not be fitted (%s); "
+                 "the page shows the chosen target only", err.msg);
+        etacal_error_clear(&err);
+        targets[0] = target;
+        fo.ntargets = 1;
+        rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err);
+        if (rc == 0)
+            fprintf(stderr, "etacal: report: %s\n", note);
+    }
+    if (rc)
         goto fail;
     if ((rc = etacal_report_hist_residuals(t, 0, 1, mask, &hist, &err)) != 0)
         goto fail;
@@ -324,6 +340,7 @@ static int run(int argc, char **argv, const char *cmdline)
     rep.hist = &hist;
     rep.bt = have_bt ? &bt : NULL;
     rep.bt_note = bt_note[0] ? bt_note : NULL;
+    rep.note = note[0] ? note : NULL;
     rep.bt_window_s = window;
     rep.bt_every_s = every;
     rep.thin = 30;
