@@ -547,6 +547,27 @@ static int segments(FILE *fp, const etacal_report *r, etacal_error *err)
     static const int ls[] = {ETACAL_SVG_MAIN, ETACAL_SVG_ALT, ETACAL_SVG_MUTED}, lk[] = {2, 0, 2};
     etacal_svg_legend(&c, ll, ls, lk, nthin ? 3 : 2);
     etacal_svg_end(&c);
+    /* the segments to act on, as text: the whole interval below the target */
+    size_t nbelow = 0;
+    for (size_t i = 0; i < ns; i++) {
+        const etacal_curve_point *p = &cv->pts[rk[i].s * nt + ti];
+        if (p->ci_hi < q->targets[ti] && nbelow++ == 0)
+            fputs("<table><thead><tr><th>segment below the target</th><th class=\"n\">held-out n</th>"
+                  "<th class=\"n\">on time</th><th class=\"n\">95% CI</th></tr></thead>\n<tbody>\n",
+                  fp);
+        if (!(p->ci_hi < q->targets[ti]))
+            continue;
+        char full[512], a[ETACAL_SVG_NUMSZ], b[ETACAL_SVG_NUMSZ], d[ETACAL_SVG_NUMSZ];
+        seg_label(q, cv->seg[rk[i].s], full, sizeof full);
+        fputs("<tr><td>", fp);
+        esc(fp, full);
+        fprintf(fp, "</td><td class=\"n\">%zu</td><td class=\"n\">%s (%zu/%zu)</td><td class=\"n\">%s\xE2\x80\x93%s</td></tr>\n",
+                p->n, pct((double)p->hits / (double)p->n, 2, a), p->hits, p->n, pct(p->ci_lo, 2, b), pct(p->ci_hi, 2, d));
+    }
+    if (nbelow)
+        fputs("</tbody></table>\n", fp);
+    else
+        fprintf(fp, "<p class=\"note\">No segment's 95%% interval lies wholly below the target.</p>\n");
 out:
     fputs("</section>\n", fp);
     free(rk);

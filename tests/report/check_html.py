@@ -212,6 +212,26 @@ for cells in cost:
         fail(f"target {cells[0]}: +min per point {cells[5]}, curve {float(r['marginal_s_per_point']) / 60}")
 ok(f"the cost table's {len(cost)} rows (on time, mean promise, extra, +min per point) are etacal curve's")
 
+# 6b. the segments below the target are curve's, with its Wilson intervals
+allrows = {(r["zone"], r["band"], r["target"]): r for r in csv.DictReader(cur.splitlines())}
+below = page.tables.get("segments", [])[1:]
+nbelow = 0
+for r in allrows.values():
+    if r["target"] == "0.9" and r["zone"] != "*" and float(r["ci_high"]) < 0.9:
+        nbelow += 1
+if len(below) != nbelow:
+    fail(f"{len(below)} segments listed below the target, curve has {nbelow}")
+for cells in below:
+    zone, band = cells[0].split(" / ")
+    r = allrows[(zone, band, "0.9")]
+    hits_n = re.search(r"\((\d+)/(\d+)\)", cells[2]).groups()
+    lo, hi = (float(v.rstrip("%")) for v in cells[3].split("\u2013"))
+    if hits_n != (r["held_hits"], r["held_n"]) or abs(lo - 100 * float(r["ci_low"])) > 0.005 + 1e-9 or \
+            abs(hi - 100 * float(r["ci_high"])) > 0.005 + 1e-9:
+        fail(f"segment {cells}: curve says {r}")
+ok(f"the {nbelow} segments whose interval lies below the target, with their counts and Wilson intervals, "
+   "are etacal curve's")
+
 # 7. the backtest's overall rate is etacal backtest's
 bt = run([ETACAL, "backtest", "s.csv", "--actual", "actual_s", "--pred", "pred_s", "--by", "zone,band",
           "--time", "placed_at", "--window", "14d"])
