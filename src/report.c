@@ -246,8 +246,14 @@ static void headline(FILE *fp, const etacal_report *r)
     esc(fp, r->held_how ? r->held_how : "");
     fprintf(fp, "); the table below is fitted on the other %zu</td></tr>\n", r->fitted);
     fprintf(fp, "<tr><th>target</th><td>%s on time</td></tr>\n", tb);
-    fprintf(fp, "<tr><th>method</th><td>%s: %s%s</td></tr>\n", etacal_method_name(q->method),
-            method_phrase(q->method), q->confidence > 0 ? " (rank with confidence)" : "");
+    fprintf(fp, "<tr><th>method</th><td>%s: %s%s", etacal_method_name(q->method), method_phrase(q->method),
+            q->confidence > 0 ? " (rank with confidence)" : "");
+    if (r->half_life_s > 0) {
+        char hl[ETACAL_SVG_NUMSZ + 8];
+        duration(r->half_life_s, hl);
+        fprintf(fp, "; recency weights, half-life %s", hl);
+    }
+    fputs("</td></tr>\n", fp);
     fputs("<tr><th>columns</th><td>actual ", fp);
     esc(fp, r->actual_name);
     fputs(", prediction ", fp);

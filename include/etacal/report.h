@@ -63,6 +63,7 @@ typedef struct etacal_report {
     size_t thin;             /* a segment with fewer held-out rows is marked thin */
     double curve_from;       /* the cost curve shows the targets >= this */
     const char *note;        /* a warning shown under the headline, or NULL */
+    double half_life_s;      /* > 0: the fit used recency weights with this half-life */
 } etacal_report;
 
 /* Writes the page to fp.  Errors: a target index out of range, counts that

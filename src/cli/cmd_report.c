@@ -33,6 +33,8 @@ static const char help[] =
     "  --time COL            timestamps: hold out the latest rows, show the time range,\n"
     "                        and add the rolling-origin backtest\n"
     "  --window D, --every D the backtest's window and period (default 28d, 1d)\n"
+    "  --half-life D         with --time: recency weights 2^(-age/D), as for etacal fit\n"
+    "                        (and within each backtest window)\n"
     "  --seed S              seed of the random held-out share and of --method qr (default 1)\n"
     "  --title TEXT          the page's title (default \"Promise report\")\n"
     "  -o, --output FILE     write to FILE, which appears only when complete (default: stdout)\n"
@@ -91,7 +93,7 @@ static int cmp_double(const void *a, const void *b)
 static int run(int argc, char **argv, const char *cmdline)
 {
     enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_X, O_SPLIT, O_SEED, O_HOLDOUT, O_TIME,
-           O_WINDOW, O_EVERY, O_TITLE };
+           O_WINDOW, O_EVERY, O_TITLE, O_HALFLIFE };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL},   {"pred", required_argument, 0, O_PRED},
         {"by", required_argument, 0, O_BY},           {"target", required_argument, 0, O_TARGET},
@@ -100,12 +102,13 @@ static int run(int argc, char **argv, const char *cmdline)
         {"seed", required_argument, 0, O_SEED},       {"holdout", required_argument, 0, O_HOLDOUT},
         {"time", required_argument, 0, O_TIME},       {"window", required_argument, 0, O_WINDOW},
         {"every", required_argument, 0, O_EVERY},     {"title", required_argument, 0, O_TITLE},
+        {"half-life", required_argument, 0, O_HALFLIFE},
         {"output", required_argument, 0, 'o'},        READ_OPTIONS,
         {"help", no_argument, 0, 'h'},                {0, 0, 0, 0}};
     const char *actual = NULL, *pred = NULL, *timecol = NULL, *output = NULL, *title = NULL;
     char *keys[MAX_KEYS], *xs[ETACAL_QR_MAX_COVARIATES];
     size_t nkeys = 0, nx = 0, seed = 1, min_rows = 200;
-    double target = 0.9, split = 0.5, holdout = 0.2, window = 28 * 86400.0, every = 86400.0;
+    double target = 0.9, split = 0.5, holdout = 0.2, window = 28 * 86400.0, every = 86400.0, halflife = 0;
     int method = ETACAL_METHOD_ADD, c;
     etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
     optind = 1;
@@ -160,6 +163,10 @@ static int run(int argc, char **argv, const char *cmdline)
             break;
         }
         case O_TITLE: title = optarg; break;
+        case O_HALFLIFE:
+            if (parse_duration(optarg, &halflife) != 0 || !(halflife > 0))
+                return usage_error("report", "--half-life takes a duration such as 7d, 36h, 90m or 3600 (seconds)");
+            break;
         case 'o': output = optarg; break;
         case 'h': fputs(help, stdout); return 0;
         default: {
@@ -186,6 +193,8 @@ static int run(int argc, char **argv, const char *cmdline)
             if (strcmp(keys[i], keys[j]) == 0)
                 return usage_error("report", "--by names '%s' twice", keys[j]);
     }
+    if (halflife > 0 && !timecol)
+        return usage_error("report", "--half-life needs --time (the age of each row)");
     if (timecol && (strcmp(timecol, actual) == 0 || strcmp(timecol, pred) == 0))
         return usage_error("report", "--time '%s' is already the actual or the prediction", timecol);
     const char *path = argv[optind];
@@ -239,6 +248,7 @@ static int run(int argc, char **argv, const char *cmdline)
     etacal_backtest_result bt = {0};
     etacal_outfile of = {0};
     unsigned char *mask = NULL;
+    double *wts = NULL;
     char bt_note[300] = "", note[400] = "";
     int have_bt = 0;
     int rc = etacal_table_read_csv(path, cols, ncol, &ro, &t, &err);
@@ -265,6 +275,23 @@ static int run(int argc, char **argv, const char *cmdline)
             targets[w++] = targets[i];
     nt = w;
     etacal_fit_opts fo = {method, targets, nt, min_rows, x_cols, nx, split, (unsigned long)seed, 0, mask, NULL};
+    if (halflife > 0) {
+        /* recency weights as etacal fit --half-life gives them: 2^(-age/D),
+         * the newest row fitted on having weight 1 */
+        const double *tm = etacal_table_num(t, (size_t)time_col);
+        double newest = -INFINITY;
+        for (size_t i = 0; i < n; i++)
+            if (mask[i] && tm[i] > newest)
+                newest = tm[i];
+        wts = malloc((n ? n : 1) * sizeof *wts);
+        if (!wts) {
+            etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+            goto fail;
+        }
+        for (size_t i = 0; i < n; i++)
+            wts[i] = exp2(-(newest - tm[i]) / halflife);
+        fo.weights = wts;
+    }
     rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err);
     if (rc == ETACAL_ENUM && nt > 1) {
         /* a level of the charts that cannot be fitted should not cost the
@@ -295,7 +322,7 @@ static int run(int argc, char **argv, const char *cmdline)
             tmin = i == 0 || tm[i] < tmin ? tm[i] : tmin;
             tmax = i == 0 || tm[i] > tmax ? tm[i] : tmax;
         }
-        etacal_backtest_opts bo = {method, target, window, every, min_rows, 0, 0, 0, x_cols, nx, split,
+        etacal_backtest_opts bo = {method, target, window, every, min_rows, halflife, 0, 0, x_cols, nx, split,
                                    (unsigned long)seed};
         etacal_error be;
         etacal_error_clear(&be);
@@ -341,6 +368,7 @@ static int run(int argc, char **argv, const char *cmdline)
     rep.bt = have_bt ? &bt : NULL;
     rep.bt_note = bt_note[0] ? bt_note : NULL;
     rep.note = note[0] ? note : NULL;
+    rep.half_life_s = halflife;
     rep.bt_window_s = window;
     rep.bt_every_s = every;
     rep.thin = 30;
@@ -357,6 +385,7 @@ static int run(int argc, char **argv, const char *cmdline)
     etacal_holdout_free(&ho);
     etacal_quotes_destroy(q);
     etacal_table_destroy(t);
+    free(wts);
     free(mask);
     return 0;
 fail:
@@ -367,6 +396,7 @@ fail:
     etacal_holdout_free(&ho);
     etacal_quotes_destroy(q);
     etacal_table_destroy(t);
+    free(wts);
     free(mask);
     return report_error(&err);
 }

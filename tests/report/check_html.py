@@ -191,6 +191,17 @@ if not (m and r_m and h_m) or m.group(2) != r_m.group(1) or m.group(3, 4) != h_m
 ok(f"the quote table ({len(want)} rows) and the on-time rate reached ({m.group(2)}%, "
    f"{m.group(3)}/{m.group(4)}) are etacal fit --holdout's")
 
+# 5b. the same with recency weights (etacal fit --half-life)
+run([ETACAL, "fit", "s.csv", "--actual", "actual_s", "--pred", "pred_s", "--by", "zone,band", "--target", "0.9",
+     "--holdout", "0.2", "--time", "placed_at", "--half-life", "5d", "-q", "-o", "qw.csv"])
+wrows = [r for r in csv.reader(open(os.path.join(WORK, "qw.csv"), newline=""))]
+wwant = [[r[head.index(c)] for c in ("zone", "band", "n", "k", "offset_s", "slope")] for r in wrows[1:]]
+weighted = report("s.csv", "w.html", ["--half-life", "5d"])
+wdoc, wpage, _ = check_page(weighted, "weighted report")
+if [r[:6] for r in wpage.tables["table"][1:]] != wwant or wwant == want:
+    fail("with --half-life 5d the report's quote table is not etacal fit's (or weights changed nothing)")
+ok("with --half-life 5d the quote table is etacal fit --half-life's (and differs from the unweighted one)")
+
 # 6. the cost table is etacal curve's
 cur = run([ETACAL, "curve", "s.csv", "--actual", "actual_s", "--pred", "pred_s", "--by", "zone,band",
            "--time", "placed_at", "--format", "csv"])
