@@ -753,6 +753,26 @@ static int backtest(FILE *fp, const etacal_report *r, etacal_error *err)
         tlp[nticks] = tl[nticks];
         nticks++;
     }
+    if (nticks < 2) {
+        /* less than two days: ticks at whole hours, labelled hh:mm */
+        static const double hsteps[] = {1, 2, 3, 6, 12, 24};
+        double hs = 24;
+        for (size_t i = 0; i < sizeof hsteps / sizeof *hsteps; i++)
+            if ((t1 - t0) / (hsteps[i] * 3600) <= plotw / 56) {
+                hs = hsteps[i];
+                break;
+            }
+        nticks = 0;
+        for (double d = ceil(t0 / (hs * 3600)) * hs * 3600; d <= t1 && nticks < 64; d += hs * 3600) {
+            char buf[32];
+            etacal_time_format(d, buf);
+            tpos[nticks] = d;
+            memcpy(tl[nticks], buf + 11, 5); /* hh:mm */
+            tl[nticks][5] = '\0';
+            tlp[nticks] = tl[nticks];
+            nticks++;
+        }
+    }
     etacal_svg_chart c;
     etacal_svg_layout lay = {0};
     lay.xpos = tpos;
