@@ -61,6 +61,7 @@ static void test_hand_example(void **state)
     assert_true(a->n == 4 && a->hits == 2 && b->hits == 3);
     assert_true(fabs(a->ci_lo - 0.1500) < 1e-4 && fabs(a->ci_hi - 0.8500) < 1e-4);
     assert_true(fabs(b->ci_lo - 0.3006) < 1e-4 && fabs(b->ci_hi - 0.9544) < 1e-4);
+    etacal_curve_free(&cv);
     /* errors: counts of another table, a bad confidence */
     assert_int_equal(etacal_curve_compute(q, &ho, 1.5, &cv, &err), ETACAL_EINVAL);
     etacal_holdout other = ho;
