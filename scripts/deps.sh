@@ -6,8 +6,9 @@
 #   scripts/deps.sh            build and test libraries (GSL, libcsv, cmocka)
 #   scripts/deps.sh --oracles  also the reference libraries the oracle tests
 #                              compare against (numpy, scipy, scikit-learn,
-#                              statsmodels, R's quantreg) and chromium, which
-#                              renders the report in tests/browser;
+#                              statsmodels, R's quantreg, html5lib) and
+#                              chromium, which renders the report in
+#                              tests/browser;
 #                              missing ones only make those tests skip, so
 #                              failure to install them is a warning.
 set -u
@@ -21,7 +22,7 @@ done
 
 oracles=""
 if [ "${1:-}" = "--oracles" ]; then
-    for p in python3-numpy python3-scipy python3-sklearn python3-statsmodels r-cran-quantreg chromium; do
+    for p in python3-numpy python3-scipy python3-sklearn python3-statsmodels r-cran-quantreg chromium python3-html5lib; do
         have_pkg "$p" || oracles="$oracles $p"
     done
 fi
