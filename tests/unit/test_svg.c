@@ -181,6 +181,48 @@ static void test_chart(void **state)
     free(b);
 }
 
+/* 60 date labels on a 600 px axis: only those that keep apart are drawn. */
+static void dense(FILE *fp, const void *arg)
+{
+    (void)arg;
+    static double pos[60];
+    static const char *lab[60];
+    for (int i = 0; i < 60; i++) {
+        pos[i] = i;
+        lab[i] = "2026-10-19";
+    }
+    etacal_svg_layout lay = {0};
+    lay.xpos = pos;
+    lay.xlab = lab;
+    lay.nxpos = 60;
+    etacal_svg_chart c;
+    etacal_error err;
+    assert_int_equal(etacal_svg_begin(&c, fp, 600, 300, 0, 59, 0, 1, "dense", &lay, &err), ETACAL_OK);
+    etacal_svg_axes(&c, NULL, NULL);
+    etacal_svg_end(&c);
+}
+
+static void test_labels_apart(void **state)
+{
+    (void)state;
+    char *s = capture(dense, NULL);
+    /* the x positions of the drawn labels, from their text elements */
+    double prev = -1e9, minsep = 1e9;
+    int drawn = 0;
+    for (const char *p = s; (p = strstr(p, "<text x=\"")) != NULL; p++) {
+        double x = strtod(p + 9, NULL);
+        if (!strstr(p, ">2026-10-19<") || strstr(p, ">2026-10-19<") - p > 80)
+            continue;
+        if (drawn++)
+            minsep = fmin(minsep, x - prev);
+        prev = x;
+    }
+    /* ten characters of about 7 px: centres at least 70 px apart */
+    assert_true(drawn >= 4 && drawn < 60);
+    assert_true(minsep >= 70);
+    free(s);
+}
+
 static void test_chart_errors(void **state)
 {
     (void)state;
@@ -225,6 +267,7 @@ int main(void)
         cmocka_unit_test(test_escape),         cmocka_unit_test(test_truncate), cmocka_unit_test(test_num),
         cmocka_unit_test(test_ticks),          cmocka_unit_test(test_ramp),     cmocka_unit_test(test_chart),
         cmocka_unit_test(test_chart_errors),   cmocka_unit_test(test_binom_range_args),
+        cmocka_unit_test(test_labels_apart),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
