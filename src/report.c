@@ -478,8 +478,10 @@ static int segments(FILE *fp, const etacal_report *r, etacal_error *err)
     double *x = malloc(MAX_SEG_SHOWN * sizeof *x * 5);
     char (*labs)[LABEL_CHARS * 4 + 8] = malloc(MAX_SEG_SHOWN * sizeof *labs);
     const char **lp = malloc(MAX_SEG_SHOWN * sizeof *lp);
+    char (*tips)[800] = malloc(MAX_SEG_SHOWN * sizeof *tips);
+    const char **tp = malloc(MAX_SEG_SHOWN * sizeof *tp);
     int rc = ETACAL_OK;
-    if (!rk || !x || !labs || !lp) {
+    if (!rk || !x || !labs || !lp || !tips || !tp) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
         goto out;
     }
@@ -511,6 +513,12 @@ static int segments(FILE *fp, const etacal_report *r, etacal_error *err)
         lo[k] = p->ci_lo * 100;
         hi[k] = p->ci_hi * 100;
         thin[k] = is_thin ? rate[k] : NAN;
+        {
+            char a[ETACAL_SVG_NUMSZ], b[ETACAL_SVG_NUMSZ], d[ETACAL_SVG_NUMSZ];
+            snprintf(tips[k], sizeof tips[k], "%s: %s on time (%zu/%zu), 95%% CI %s\xE2\x80\x93%s", full,
+                     pct(rk[i].rate, 2, a), p->hits, p->n, pct(p->ci_lo, 2, b), pct(p->ci_hi, 2, d));
+            tp[k] = tips[k];
+        }
         if (is_thin) {
             rate[k] = NAN;
             nthin++;
@@ -547,8 +555,8 @@ static int segments(FILE *fp, const etacal_report *r, etacal_error *err)
     etacal_svg_vline(&c, q->targets[ti] * 100, ETACAL_SVG_ALT, NULL);
     /* error bars are horizontal here: etacal_svg_errbars takes the y positions */
     etacal_svg_errbars(&c, pos, lo, hi, shown, ETACAL_SVG_MAIN, 1);
-    etacal_svg_markers(&c, rate, pos, shown, ETACAL_SVG_MAIN, 3.5);
-    etacal_svg_markers(&c, thin, pos, shown, ETACAL_SVG_MUTED, 3.5);
+    etacal_svg_markers_titled(&c, rate, pos, shown, ETACAL_SVG_MAIN, 3.5, tp);
+    etacal_svg_markers_titled(&c, thin, pos, shown, ETACAL_SVG_MUTED, 3.5, tp);
     static const char *const ll[] = {"on-time rate and 95% CI", "target", "thin segment"};
     static const int ls[] = {ETACAL_SVG_MAIN, ETACAL_SVG_ALT, ETACAL_SVG_MUTED}, lk[] = {2, 0, 2};
     etacal_svg_legend(&c, ll, ls, lk, nthin ? 3 : 2);
@@ -580,6 +588,8 @@ out:
     free(x);
     free(labs);
     free(lp);
+    free(tips);
+    free(tp);
     return rc;
 }
 

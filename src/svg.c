@@ -490,6 +490,24 @@ void etacal_svg_markers(etacal_svg_chart *c, const double *x, const double *y, s
             marker(c->fp, s, sx(c, x[i]), sy(c, y[i]), r);
 }
 
+void etacal_svg_markers_titled(etacal_svg_chart *c, const double *x, const double *y, size_t n, int style, double r,
+                               const char *const *titles)
+{
+    int s = style_ok(style);
+    for (size_t i = 0; i < n; i++) {
+        if (!(isfinite(x[i]) && isfinite(y[i])))
+            continue;
+        if (titles && titles[i]) {
+            fputs("<g><title>", c->fp);
+            etacal_svg_escape(c->fp, titles[i]);
+            fputs("</title>", c->fp);
+        }
+        marker(c->fp, s, sx(c, x[i]), sy(c, y[i]), r);
+        if (titles && titles[i])
+            fputs("</g>\n", c->fp);
+    }
+}
+
 void etacal_svg_errbars(etacal_svg_chart *c, const double *x, const double *lo, const double *hi, size_t n,
                         int style, int horizontal)
 {

@@ -104,6 +104,10 @@ void etacal_svg_axes(etacal_svg_chart *c, const char *xtitle, const char *ytitle
 void etacal_svg_line(etacal_svg_chart *c, const double *x, const double *y, size_t n, int style);
 /* The style's marker at each finite point; r is the radius in px. */
 void etacal_svg_markers(etacal_svg_chart *c, const double *x, const double *y, size_t n, int style, double r);
+/* The same, each marker with a tooltip (an SVG <title>, escaped) when
+ * titles[i] is not NULL. */
+void etacal_svg_markers_titled(etacal_svg_chart *c, const double *x, const double *y, size_t n, int style, double r,
+                               const char *const *titles);
 /* Vertical error bars from lo[i] to hi[i] at x[i] (horizontal ones when
  * horizontal is set: from lo[i] to hi[i] at height y = x[i]). */
 void etacal_svg_errbars(etacal_svg_chart *c, const double *x, const double *lo, const double *hi, size_t n,

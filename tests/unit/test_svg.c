@@ -146,6 +146,8 @@ static void draw(FILE *fp, const void *arg)
     etacal_svg_line(&c, x, y, 4, ETACAL_SVG_MAIN);
     etacal_svg_markers(&c, x, y, 4, ETACAL_SVG_ALT, 3);
     etacal_svg_errbars(&c, x, lo, hi, 4, ETACAL_SVG_MUTED, 0);
+    const char *tips[4] = {name, NULL, name, "plain"};
+    etacal_svg_markers_titled(&c, x, y, 4, ETACAL_SVG_MAIN, 3, tips);
     etacal_svg_vline(&c, 90, ETACAL_SVG_ALT, name);
     etacal_svg_hline(&c, 28, ETACAL_SVG_MUTED, "bare");
     const char *labels[2] = {name, "band"};
@@ -177,6 +179,9 @@ static void test_chart(void **state)
     assert_non_null(strstr(a, ">25</text>"));
     assert_non_null(strstr(a, ">60</text>"));
     assert_non_null(strstr(a, "9.6*")); /* a marked heat cell */
+    /* tooltips: the first point's escaped, none on the second, none for the NaN point */
+    assert_non_null(strstr(a, "<g><title>&lt;b&gt;&amp;&quot;zone</title>"));
+    assert_non_null(strstr(a, "<g><title>plain</title>"));
     free(a);
     free(b);
 }
