@@ -284,7 +284,7 @@ static int cost_curve(FILE *fp, const etacal_report *r, etacal_error *err)
     double lo = INFINITY, hi = -INFINITY, xlo = INFINITY, xhi = -INFINITY;
     for (size_t i = 0; i < nt; i++) {
         const etacal_curve_point *p = &cv->pts[i];
-        if (q->targets[i] < r->curve_from || !isfinite(p->mean_promise_s))
+        if ((q->targets[i] < r->curve_from && i != ti) || !isfinite(p->mean_promise_s))
             continue;
         x[m] = q->targets[i] * 100;
         y[m] = p->mean_promise_s / 60;
@@ -312,7 +312,7 @@ static int cost_curve(FILE *fp, const etacal_report *r, etacal_error *err)
         if ((rc = etacal_svg_begin(&c, fp, CHART_W, 360, xlo, xhi, lo, hi,
                                    "Cost curve: mean promise in minutes against the on-time target", &lay, err)) != 0)
             goto out;
-        etacal_svg_axes(&c, "on-time target (held-out orders)", "mean promise (minutes)");
+        etacal_svg_axes(&c, "on-time target", "mean promise, held-out orders (minutes)");
         char lab[256], a[ETACAL_SVG_NUMSZ], b[ETACAL_SVG_NUMSZ];
         if (isfinite(bare)) {
             snprintf(lab, sizeof lab, "bare prediction: %s min, %s on time", num(bare, 1, a),
@@ -346,7 +346,7 @@ static int cost_curve(FILE *fp, const etacal_report *r, etacal_error *err)
         int want = i == ti;
         for (size_t j = 0; j < sizeof show / sizeof *show; j++)
             want |= q->targets[i] == show[j];
-        if (!want || q->targets[i] < r->curve_from)
+        if (!want || (q->targets[i] < r->curve_from && i != ti))
             continue;
         const etacal_curve_point *p = &cv->pts[i];
         char a[ETACAL_SVG_NUMSZ], b[ETACAL_SVG_NUMSZ], c2[ETACAL_SVG_NUMSZ], d[ETACAL_SVG_NUMSZ];
