@@ -32,7 +32,7 @@ LIB      := $(BUILD)/libetacal.a
 BIN      := $(BUILD)/etacal
 CITYGEN  := $(BUILD)/citygen
 
-.PHONY: all deps demo check unit e2e ref asan install uninstall clean golden bench bench-qr format
+.PHONY: all deps demo check unit e2e ref fault asan install uninstall clean golden bench bench-qr format
 
 all: $(BIN) $(LIB)
 
@@ -69,7 +69,7 @@ $(BUILD)/tests/refcalc: tests/ref/refcalc.c $(LIB)
 # ---- tests ---------------------------------------------------------------
 check:
 	@sh scripts/deps.sh
-	@$(MAKE) --no-print-directory unit e2e ref
+	@$(MAKE) --no-print-directory unit e2e ref fault
 
 unit: $(UNIT_BIN)
 	@fail=0; for t in $(UNIT_BIN); do \
@@ -82,6 +82,10 @@ e2e: $(BIN) $(CITYGEN) $(BUILD)/quantgen
 ref: $(BIN) $(BUILD)/tests/refcalc $(CITYGEN)
 	@sh tests/ref/run.sh $(BUILD) $(PYTHON)
 
+# publish killed at random moments, a full disk, a read-only file system
+fault: $(BIN) $(CITYGEN)
+	@sh tests/fault/run.sh $(BUILD)
+
 golden: $(BIN) $(CITYGEN) $(BUILD)/quantgen
 	@ETACAL_GOLDEN=1 sh tests/e2e/run.sh $(BIN)
 
@@ -89,7 +93,7 @@ golden: $(BIN) $(CITYGEN) $(BUILD)/quantgen
 asan:
 	@$(MAKE) --no-print-directory BUILD=build-asan \
 	  SAN="-fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all" \
-	  unit e2e ref
+	  unit e2e ref fault
 
 # ---- demo ----------------------------------------------------------------
 DEMO := $(BUILD)/demo

@@ -14,6 +14,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <dirent.h>
 #include <sys/file.h>
 #include <sys/stat.h>
 #include <time.h>
@@ -397,6 +398,33 @@ void etacal_lock_release(int fd)
         (void)flock(fd, LOCK_UN);
         close(fd);
     }
+}
+
+size_t etacal_remove_stale_temps(const char *path)
+{
+    const char *slash = strrchr(path, '/');
+    char dir[4096], pre1[4096], pre2[4096];
+    const char *base = slash ? slash + 1 : path;
+    if (slash)
+        snprintf(dir, sizeof dir, "%.*s", (int)(slash - path) + (slash == path), path);
+    else
+        snprintf(dir, sizeof dir, ".");
+    snprintf(pre1, sizeof pre1, "%s.tmp.", base);
+    snprintf(pre2, sizeof pre2, "%s.prev.tmp.", base);
+    DIR *dp = opendir(dir);
+    if (!dp)
+        return 0;
+    size_t removed = 0;
+    struct dirent *de;
+    while ((de = readdir(dp)) != NULL) {
+        if (strncmp(de->d_name, pre1, strlen(pre1)) != 0 && strncmp(de->d_name, pre2, strlen(pre2)) != 0)
+            continue;
+        char full[8300];
+        snprintf(full, sizeof full, "%s/%s", dir, de->d_name);
+        removed += unlink(full) == 0;
+    }
+    closedir(dp);
+    return removed;
 }
 
 int etacal_write_file(const char *path, const void *data, size_t n, etacal_error *err)

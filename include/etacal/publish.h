@@ -84,6 +84,11 @@ double etacal_quotes_promise_at(const etacal_quotes *q, const char *const *keys,
 int etacal_lock_acquire(const char *path, double wait_s, int *fd_out, etacal_error *err);
 void etacal_lock_release(int fd);
 
+/* Removes the temporary files a killed writer of path left behind
+ * (PATH.tmp.* and the .prev copy's PATH.prev.tmp.*).  Call with the lock
+ * held.  Returns how many were removed. */
+size_t etacal_remove_stale_temps(const char *path);
+
 /* Makes keep a copy of path as it is now (a hard link when the file system
  * allows, else a byte copy), atomically: keep is the old copy or the new
  * one, never a part.  Nothing to do when path does not exist (*kept = 0). */

@@ -349,6 +349,7 @@ static int publish(int argc, char **argv, char **given)
     rc = etacal_lock_acquire(po.table, po.wait_s, &lock, &err);
     if (rc)
         return report_error(&err);
+    (void)etacal_remove_stale_temps(po.table); /* a killed publisher's */
     rc = fit_run(&a, path, &r, &err);
     if (rc)
         goto fail;
