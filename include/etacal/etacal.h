@@ -15,6 +15,7 @@
 #include "etacal/conformal.h"
 #include "etacal/table.h"
 #include "etacal/quote.h"
+#include "etacal/publish.h"
 #include "etacal/apply.h"
 #include "etacal/binom.h"
 #include "etacal/metrics.h"
