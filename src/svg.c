@@ -711,7 +711,10 @@ void etacal_svg_heat(FILE *fp, const char *label, const char *const *rows, size_
             lo = fmin(lo, v[i]);
             hi = fmax(hi, v[i]);
         }
-    double W = lw + (double)nc * cellw + 2, H = head + (double)nr * cellh + 2;
+    int has = lo <= hi;
+    double W = lw + (double)nc * cellw + 2, H = head + (double)nr * cellh + 2 + (has ? 34 : 0);
+    if (has && W < lw + 260)
+        W = lw + 260; /* room for the scale */
     fputs("<svg width=\"", fp);
     px(fp, W);
     fputs("\" height=\"", fp);
@@ -754,6 +757,24 @@ void etacal_svg_heat(FILE *fp, const char *label, const char *const *rows, size_
             text_at(fp, x + cellw / 2, y + cellh / 2 + 4, "middle",
                     isfinite(val) && t > 0.5 ? " fill=\"#fff\"" : " fill=\"#000\"", num);
         }
+    }
+    if (has) {
+        /* the scale: five steps of the ramp from the lowest value to the highest */
+        double y = head + (double)nr * cellh + 12, x0 = lw;
+        char a[ETACAL_SVG_NUMSZ], b[ETACAL_SVG_NUMSZ];
+        etacal_svg_num(lo, ndec, a);
+        etacal_svg_num(hi, ndec, b);
+        text_at(fp, x0 - 8, y + 10, "end", NULL, a);
+        for (int k = 0; k < 5; k++) {
+            char col[8];
+            etacal_svg_ramp(k / 4.0, col);
+            fputs("<rect x=\"", fp);
+            px(fp, x0 + k * 36.0);
+            fputs("\" y=\"", fp);
+            px(fp, y);
+            fprintf(fp, "\" width=\"36\" height=\"14\" fill=\"%s\"/>\n", col);
+        }
+        text_at(fp, x0 + 5 * 36.0 + 8, y + 10, "start", NULL, b);
     }
     fputs("</svg>\n", fp);
 }
