@@ -553,6 +553,8 @@ static int segments(FILE *fp, const etacal_report *r, etacal_error *err)
         goto out;
     etacal_svg_axes(&c, "on time, held-out orders", NULL);
     etacal_svg_vline(&c, q->targets[ti] * 100, ETACAL_SVG_ALT, NULL);
+    if (ns > MAX_SEG_SHOWN) /* where the segments left out would be */
+        etacal_svg_hline(&c, (double)(shown - half) + 0.5, ETACAL_SVG_REF, NULL);
     /* error bars are horizontal here: etacal_svg_errbars takes the y positions */
     etacal_svg_errbars(&c, pos, lo, hi, shown, ETACAL_SVG_MAIN, 1);
     etacal_svg_markers_titled(&c, rate, pos, shown, ETACAL_SVG_MAIN, 3.5, tp);
