@@ -25,14 +25,15 @@ LIB_SRC := $(wildcard src/*.c)
 CLI_SRC := $(wildcard src/cli/*.c)
 LIB_OBJ := $(LIB_SRC:src/%.c=$(BUILD)/obj/%.o)
 CLI_OBJ := $(CLI_SRC:src/cli/%.c=$(BUILD)/obj/cli/%.o)
-HDRS    := $(wildcard include/etacal/*.h) src/internal.h src/cli/cli.h
+HDRS    := $(wildcard include/etacal/*.h) src/internal.h $(wildcard src/cli/*.h)
 UNIT_SRC := $(wildcard tests/unit/test_*.c)
 UNIT_BIN := $(UNIT_SRC:tests/unit/%.c=$(BUILD)/tests/%)
 LIB      := $(BUILD)/libetacal.a
 BIN      := $(BUILD)/etacal
 CITYGEN  := $(BUILD)/citygen
 
-.PHONY: all deps demo check unit e2e ref asan install uninstall clean golden bench bench-qr format fuzz memcheck failmalloc
+.PHONY: all deps demo check unit e2e ref fault asan install uninstall clean golden bench bench-qr format report-check browser \
+        fuzz memcheck failmalloc
 
 all: $(BIN) $(LIB)
 
@@ -74,7 +75,7 @@ $(BUILD)/tests/refcalc: tests/ref/refcalc.c $(LIB)
 # memcheck, and the out-of-memory runs (tests/tools/failmalloc.sh).
 check:
 	@sh scripts/deps.sh
-	@$(MAKE) --no-print-directory unit e2e ref
+	@$(MAKE) --no-print-directory unit e2e ref fault report-check browser
 	@$(MAKE) --no-print-directory asan
 	@$(MAKE) --no-print-directory memcheck failmalloc
 
@@ -89,6 +90,18 @@ e2e: $(BIN) $(CITYGEN) $(BUILD)/quantgen
 ref: $(BIN) $(BUILD)/tests/refcalc $(CITYGEN)
 	@sh tests/ref/run.sh $(BUILD) $(PYTHON)
 
+# publish killed at random moments, a full disk, a read-only file system
+fault: $(BIN) $(CITYGEN)
+	@sh tests/fault/run.sh $(BUILD)
+
+# The report page as a file (tests/report), and rendered by headless
+# Chromium (tests/browser; skips visibly without chromium).
+report-check: $(BIN) $(CITYGEN)
+	@sh tests/report/run.sh $(BIN) $(CITYGEN) $(PYTHON)
+
+browser: $(BIN) $(CITYGEN)
+	@sh tests/browser/run.sh $(BUILD) $(PYTHON)
+
 golden: $(BIN) $(CITYGEN) $(BUILD)/quantgen
 	@ETACAL_GOLDEN=1 sh tests/e2e/run.sh $(BIN)
 
@@ -96,7 +109,7 @@ golden: $(BIN) $(CITYGEN) $(BUILD)/quantgen
 asan:
 	@$(MAKE) --no-print-directory BUILD=build-asan \
 	  SAN="-fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all" \
-	  unit e2e ref
+	  unit e2e ref fault report-check
 
 # A subset under valgrind memcheck, zero reports (skips without valgrind).
 memcheck: $(BIN) $(CITYGEN) $(UNIT_BIN)

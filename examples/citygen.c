@@ -578,6 +578,9 @@ static void write_period(out_t *o, const period_t *p, uint64_t rows,
     int64_t prev = INT64_MIN, end = p->start + (int64_t)p->hours * 3600;
     int hint = 0;
     order_t od;
+    /* More orders than seconds: times may repeat (several orders in one
+     * second) instead of being pushed past each other to the period's end. */
+    int strict = rows < (uint64_t)(end - p->start);
 
     for (uint64_t i = 0; i <= rows; i++)
         total += rng_exp(&pass1);
@@ -590,8 +593,10 @@ static void write_period(out_t *o, const period_t *p, uint64_t rows,
         acc += rng_exp(arrivals);
         t = period_time(p, acc * scale, &hint);
         /* Keep times strictly increasing while the period has room. */
-        if (t <= prev)
+        if (strict && t <= prev)
             t = prev + 1 < end ? prev + 1 : prev;
+        else if (t < prev)
+            t = prev;
         prev = t;
         hour = (int)((t / 3600) % 24);
         gen_order(attrs, hour, &od);

@@ -5,7 +5,7 @@
 # seed).  Fit a quote table on four weeks of delivered orders, promise the
 # next week's orders with it, show the on-time rate reached next to that of
 # the bare prediction, and check the promises per zone with their
-# confidence intervals.
+# confidence intervals, and write the report page.
 set -eu
 build=${1:-build}
 etacal=$build/etacal
@@ -35,5 +35,12 @@ echo
 echo "== 4. etacal check: do the promises keep their word on the fresh week, per zone?"
 echo "\$ etacal check $demo/promised.csv --actual actual_s --upper promise_s=0.9 --by zone --gate"
 "$etacal" check "$demo/promised.csv" --actual actual_s --upper promise_s=0.9 --by zone --gate
+
+echo
+echo "== 5. etacal report: the evidence on one HTML page (charts, tables, no scripts)"
+echo "\$ etacal report $demo/cal.csv --actual actual_s --pred pred_s --by zone,band --time placed_at --window 14d -o $demo/report.html"
+"$etacal" report "$demo/cal.csv" --actual actual_s --pred pred_s --by zone,band --time placed_at --window 14d \
+    --title "Veldmark couriers: promise report" -o "$demo/report.html"
 echo
 echo "Quote table: $demo/quotes.csv"
+echo "Report: $demo/report.html (open it in any browser; it needs no network)"

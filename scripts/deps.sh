@@ -6,9 +6,11 @@
 #   scripts/deps.sh            build and test libraries (GSL, libcsv, cmocka)
 #   scripts/deps.sh --oracles  also the reference libraries the oracle tests
 #                              compare against (numpy, scipy, scikit-learn,
-#                              statsmodels, R's quantreg) and the fault-testing
-#                              tools (valgrind for make memcheck, clang and
-#                              its sanitizer runtimes for make fuzz);
+#                              statsmodels, R's quantreg, html5lib),
+#                              chromium, which renders the report in
+#                              tests/browser, and the fault-testing tools
+#                              (valgrind for make memcheck, clang and its
+#                              sanitizer runtimes for make fuzz);
 #                              missing ones only make those tests skip, so
 #                              failure to install them is a warning.
 set -u
@@ -22,7 +24,7 @@ done
 
 oracles=""
 if [ "${1:-}" = "--oracles" ]; then
-    for p in python3-numpy python3-scipy python3-sklearn python3-statsmodels r-cran-quantreg \
+    for p in python3-numpy python3-scipy python3-sklearn python3-statsmodels r-cran-quantreg chromium python3-html5lib \
         valgrind clang libclang-rt-14-dev; do
         have_pkg "$p" || oracles="$oracles $p"
     done

@@ -5,7 +5,10 @@
 #include "internal.h"
 
 #include <gsl/gsl_cdf.h>
+#include <gsl/gsl_sf_gamma.h>
+#include <limits.h>
 #include <math.h>
+#include <stdlib.h>
 
 static int check_args(size_t x, size_t n, double conf, etacal_error *err)
 {
@@ -72,4 +75,68 @@ int etacal_binom_ci(int method, size_t x, size_t n, double conf, double *lo, dou
     if (method == ETACAL_CI_WILSON)
         return etacal_binom_wilson(x, n, conf, lo, hi, err);
     return etacal_error_set(err, ETACAL_EINVAL, NULL, "unknown interval method %d", method);
+}
+
+/* The smallest k with P(X <= k) >= q for X ~ Bin(n, p), 0 < p < 1, for
+ * q = q1 and q = q2.  GSL's binomial distribution function (through its
+ * incomplete beta function) returns NaN for n in the millions, so the
+ * probabilities are summed here: the pmf at the mode from
+ * gsl_sf_lnchoose, the others by the ratio pmf(j+1)/pmf(j) =
+ * (n-j)/(j+1) p/(1-p), over the window np +- sqrt(200 n) outside which
+ * Hoeffding's inequality leaves a mass below 2 e^-400, and normalised by
+ * the window's sum (which removes the rounding of the mode's pmf). */
+static int binom_ppf(double p, size_t n, double q1, double q2, size_t *k1, size_t *k2)
+{
+    double t = ceil(sqrt(200.0 * (double)n)) + 1, np = (double)n * p;
+    size_t a = np - t > 0 ? (size_t)floor(np - t) : 0;
+    size_t b = np + t < (double)n ? (size_t)ceil(np + t) : n;
+    size_t m = (size_t)floor((double)(n + 1) * p);
+    m = m < a ? a : m > b ? b : m;
+    double *w = malloc((b - a + 1) * sizeof *w);
+    if (!w)
+        return -1;
+    double r = p / (1 - p);
+    w[m - a] = exp(gsl_sf_lnchoose((unsigned)n, (unsigned)m) + (double)m * log(p) + (double)(n - m) * log1p(-p));
+    for (size_t j = m; j < b; j++)
+        w[j + 1 - a] = w[j - a] * ((double)(n - j) / (double)(j + 1)) * r;
+    for (size_t j = m; j > a; j--)
+        w[j - 1 - a] = w[j - a] * ((double)j / (double)(n - j + 1)) / r;
+    ksum tot = {0, 0}, cum = {0, 0};
+    for (size_t j = a; j <= b; j++)
+        ksum_add(&tot, w[j - a]);
+    double total = ksum_value(&tot);
+    *k1 = *k2 = b;
+    int got1 = 0;
+    for (size_t j = a; j <= b; j++) {
+        ksum_add(&cum, w[j - a]);
+        double c = ksum_value(&cum) / total;
+        if (!got1 && c >= q1) {
+            *k1 = j;
+            got1 = 1;
+        }
+        if (c >= q2) {
+            *k2 = j;
+            break;
+        }
+    }
+    free(w);
+    return 0;
+}
+
+int etacal_binom_range(double p, size_t n, double conf, size_t *lo, size_t *hi, etacal_error *err)
+{
+    if (n == 0 || n > UINT_MAX)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "a binomial range needs 0 < n <= %u, got %zu", UINT_MAX, n);
+    if (!(p >= 0 && p <= 1))
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "probability must be in [0,1], got %g", p);
+    if (!(conf > 0 && conf < 1))
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "confidence must be in (0,1), got %g", conf);
+    if (p == 0 || p == 1) {
+        *lo = *hi = p == 0 ? 0 : n;
+        return ETACAL_OK;
+    }
+    double a = 1 - conf;
+    if (binom_ppf(p, n, a / 2, 1 - a / 2, lo, hi) != 0)
+        return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+    return ETACAL_OK;
 }

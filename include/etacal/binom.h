@@ -28,6 +28,15 @@ int etacal_binom_exact(size_t x, size_t n, double conf, double *lo, double *hi, 
 /* Either of the above by method (ETACAL_CI_WILSON or ETACAL_CI_EXACT). */
 int etacal_binom_ci(int method, size_t x, size_t n, double conf, double *lo, double *hi, etacal_error *err);
 
+/* The central range of a binomial count: for n trials with success
+ * probability p in [0,1], *lo is the smallest k with P(X <= k) >= a/2 and
+ * *hi the smallest k with P(X <= k) >= 1 - a/2, a = 1 - conf (the
+ * definition of scipy.stats.binom.ppf).  A rate outside [lo/n, hi/n] on n
+ * rows is unlikely (at most about a) when the true rate is p: the band
+ * around the diagonal of a calibration chart.  Errors: n = 0, n above
+ * UINT_MAX, p outside [0,1], conf outside (0,1). */
+int etacal_binom_range(double p, size_t n, double conf, size_t *lo, size_t *hi, etacal_error *err);
+
 #ifdef __cplusplus
 }
 #endif

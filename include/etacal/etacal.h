@@ -15,11 +15,15 @@
 #include "etacal/conformal.h"
 #include "etacal/table.h"
 #include "etacal/quote.h"
+#include "etacal/publish.h"
 #include "etacal/apply.h"
 #include "etacal/binom.h"
 #include "etacal/metrics.h"
 #include "etacal/check.h"
 #include "etacal/quantreg.h"
 #include "etacal/backtest.h"
+#include "etacal/curve.h"
+#include "etacal/svg.h"
+#include "etacal/report.h"
 
 #endif

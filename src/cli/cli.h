@@ -18,6 +18,8 @@ int cmd_check(int argc, char **argv);
 int cmd_qr(int argc, char **argv);
 int cmd_curve(int argc, char **argv);
 int cmd_backtest(int argc, char **argv);
+int cmd_publish(int argc, char **argv);
+int cmd_report(int argc, char **argv);
 
 /* One CSV field with a comma delimiter. */
 void csv_field(FILE *fp, const char *s);

@@ -35,23 +35,6 @@ static const char help[] =
     "  --delim D, --bad-rows error|skip, --max-bad-share F   as for etacal fit\n"
     "  -h, --help            show this help and exit\n";
 
-/* The grid from, from+step, ..., to as exact decimals (rounded to 1e-9, so
- * 0.57 is 0.57 and not 0.5700000000000001). */
-static size_t grid(double from, double to, double step, double *out)
-{
-    size_t n = 0;
-    for (size_t i = 0; n < MAX_GRID; i++) {
-        double v = from + (double)i * step;
-        char b[32];
-        snprintf(b, sizeof b, "%.9f", v);
-        v = strtod(b, NULL);
-        if (v > to + 1e-12 || !(v < 1))
-            break;
-        out[n++] = v;
-    }
-    return n;
-}
-
 int cmd_curve(int argc, char **argv)
 {
     enum { O_ACTUAL = 256, O_PRED, O_BY, O_METHOD, O_FROM, O_TO, O_STEP, O_HOLDOUT, O_TIME, O_SEED, O_MINROWS,
@@ -148,7 +131,7 @@ int cmd_curve(int argc, char **argv)
     if (nx && method != ETACAL_METHOD_QR)
         return usage_error("curve", "--x goes with --method qr");
     static double targets[MAX_GRID];
-    size_t nt = grid(from, to, step, targets);
+    size_t nt = etacal_curve_grid(from, to, step, targets, MAX_GRID);
     if (nt == 0)
         return usage_error("curve", "the grid of targets is empty");
     const char *path = argv[optind];
@@ -179,6 +162,7 @@ int cmd_curve(int argc, char **argv)
     etacal_table *t = NULL;
     etacal_quotes *q = NULL;
     etacal_holdout ho = {0};
+    etacal_curve cv = {0};
     etacal_outfile of = {0};
     unsigned char *mask = NULL;
     int rc = etacal_table_read_csv(path, cols, ncol, &ro, &t, &err);
@@ -207,6 +191,8 @@ int cmd_curve(int argc, char **argv)
         mask[i] = !mask[i];
     if ((rc = etacal_quotes_holdout(q, t, 0, 1, key_cols, x_cols, mask, &ho, &err)) != 0)
         goto fail;
+    if ((rc = etacal_curve_compute(q, &ho, 0.95, &cv, &err)) != 0)
+        goto fail;
     if ((rc = etacal_outfile_open(&of, output ? output : "-", &err)) != 0)
         goto fail;
     FILE *fp = of.fp;
@@ -232,9 +218,8 @@ int cmd_curve(int argc, char **argv)
                 path, etacal_method_name(method), held, timecol ? "the latest" : "a random", sh,
                 timecol ? " by " : "", timecol ? timecol : "", n - held);
     }
-    for (size_t g = 0; g < q->nsegs; g++) {
-        if (g && (q->segs[g].level != q->nkeys || ho.n[g] == 0))
-            continue;
+    for (size_t s = 0; s < cv.nsegs; s++) {
+        size_t g = cv.seg[s];
         size_t hn = ho.n[g];
         json_t *pts = NULL;
         text_table tt;
@@ -264,23 +249,11 @@ int cmd_curve(int argc, char **argv)
         }
         if (root)
             pts = json_array();
-        double prev = NAN, prev_t = NAN;
         for (size_t ti = 0; ti < nt; ti++) {
-            double buf = q->segs[g].score_q[ti];
-            /* the promise actually given: own row or a coarser level */
-            size_t up = g;
-            while (up != 0 && q->segs[up].status[ti] != ETACAL_OWN_ROW)
-                up = q->segs[up].parent;
-            if (up != g)
-                buf = q->segs[up].score_q[ti];
-            double mp = hn ? ho.promise_sum[g * nt + ti] / (double)hn : NAN;
-            double extra = hn ? mp - ho.pred_sum[g] / (double)hn : NAN;
-            double marginal = isnan(prev) ? NAN : (mp - prev) / ((targets[ti] - prev_t) * 100);
-            size_t hits = ho.hits[g * nt + ti];
-            double lo = NAN, hi = NAN;
-            etacal_error e2;
-            if (hn)
-                etacal_binom_wilson(hits, hn, 0.95, &lo, &hi, &e2);
+            const etacal_curve_point *pt = &cv.pts[s * nt + ti];
+            double buf = pt->buffer, mp = pt->mean_promise_s, extra = pt->mean_extra_s;
+            double marginal = pt->marginal_s_per_point, lo = pt->ci_lo, hi = pt->ci_hi;
+            size_t hits = pt->hits;
             char tb[ETACAL_NUM_BUFSZ];
             etacal_num_format(targets[ti], tb);
             if (text) {
@@ -320,8 +293,6 @@ int cmd_curve(int argc, char **argv)
                     fprintf(fp, "%.10g", marginal);
                 fprintf(fp, ",%zu,%zu,%.10g,%.10g,%.10g\n", hn, hits, hn ? (double)hits / (double)hn : NAN, lo, hi);
             }
-            prev = mp;
-            prev_t = targets[ti];
         }
         if (text) {
             int tbad = tt_print(&tt, fp) != 0;
@@ -356,6 +327,7 @@ int cmd_curve(int argc, char **argv)
         etacal_outfile_abort(&of);
         goto fail;
     }
+    etacal_curve_free(&cv);
     etacal_holdout_free(&ho);
     etacal_quotes_destroy(q);
     etacal_table_destroy(t);
@@ -363,6 +335,7 @@ int cmd_curve(int argc, char **argv)
     return 0;
 fail:
     etacal_outfile_abort(&of);
+    etacal_curve_free(&cv);
     etacal_holdout_free(&ho);
     etacal_quotes_destroy(q);
     etacal_table_destroy(t);

@@ -17,13 +17,16 @@ static const char usage[] =
     "  qr      linear quantile regression, with standard errors and predictions\n"
     "  curve   what each on-time target costs, measured on held-out rows\n"
     "  backtest  would the nightly job have kept its promise? (rolling origin)\n"
+    "  publish   fit a new quote table and replace the current one only when every\n"
+    "            guard holds (atomic, locked, with a provenance record)\n"
+    "  report    one self-contained HTML page: charts and tables on a quote table\n"
     "\n"
     "Run 'etacal COMMAND --help' for a command's options.\n"
     "  -h, --help     show this help and exit\n"
     "  -V, --version  show the version and exit\n"
     "\n"
     "Exit status: 0 success, 1 data or runtime error, 2 usage error,\n"
-    "3 a gate failed (etacal check --gate).\n";
+    "3 a gate failed (etacal check --gate) or a guard refused (etacal publish).\n";
 
 int main(int argc, char **argv)
 {
@@ -52,6 +55,10 @@ int main(int argc, char **argv)
         rc = cmd_curve(argc - 1, argv + 1);
     } else if (strcmp(cmd, "backtest") == 0) {
         rc = cmd_backtest(argc - 1, argv + 1);
+    } else if (strcmp(cmd, "publish") == 0) {
+        rc = cmd_publish(argc - 1, argv + 1);
+    } else if (strcmp(cmd, "report") == 0) {
+        rc = cmd_report(argc - 1, argv + 1);
     } else {
         return usage_error(NULL, "unknown command '%s'", cmd);
     }

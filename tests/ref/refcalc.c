@@ -6,6 +6,7 @@
  *   refcalc conformal TAU    < numbers   the one-sided split-conformal bound
  *   refcalc wilson|exact CONF < "x n" lines   binomial intervals, "lo hi" per line
  *   refcalc rankconf CONF < "n tau" lines    the rank with confidence, "k mean low"
+ *   refcalc range CONF < "p n" lines   the central binomial range, "lo hi" per line
  *   refcalc qr TAU K SE [PRE] < "y x1 .. xK" lines   quantile regression: prints
  *           "coef c0 .. cK", "se s0 .. sK", "objective", "iterations", "bandwidth";
  *           SE is none, powell or boot (200 reps, seed 1); PRE 1 forces
@@ -102,6 +103,19 @@ int main(int argc, char **argv)
                 return 1;
             }
             printf("%.17g %.17g\n", lo, hi);
+        }
+        return 0;
+    }
+    if (argc == 3 && strcmp(argv[1], "range") == 0) {
+        double conf = arg(argv[2]), p;
+        size_t n, lo, hi;
+        while (scanf("%lf %zu", &p, &n) == 2) {
+            etacal_error err;
+            if (etacal_binom_range(p, n, conf, &lo, &hi, &err) != ETACAL_OK) {
+                fprintf(stderr, "refcalc: %s\n", err.msg);
+                return 1;
+            }
+            printf("%zu %zu\n", lo, hi);
         }
         return 0;
     }

@@ -1,0 +1,59 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* curve.h: the cost curve of on-time targets.  A quote table fitted at
+ * every target of a grid on the rows not held out, measured on the held-out
+ * rows (etacal_quotes_holdout): per target, the buffer, the mean promise,
+ * the mean time added to the bare prediction, the marginal cost of one more
+ * point of on-time rate and the rate reached with its Wilson interval,
+ * overall and per segment. */
+#ifndef ETACAL_CURVE_H
+#define ETACAL_CURVE_H
+
+#include <stddef.h>
+
+#include "etacal/error.h"
+#include "etacal/quote.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+typedef struct etacal_curve_point {
+    double target;
+    /* The score quantile of the row a most specific order of the segment
+     * gets (its own, or the nearest coarser level's): seconds (add, qr) or
+     * a factor (ratio); +inf when unbounded. */
+    double buffer;
+    double mean_promise_s; /* over the held-out rows; NaN when there are none */
+    double mean_extra_s;   /* mean promise - mean prediction */
+    /* (mean promise - that of the previous target) / (100 x the target
+     * step): seconds per point of on-time rate; NaN at the first target */
+    double marginal_s_per_point;
+    size_t n, hits;        /* held-out rows, and those on time */
+    double ci_lo, ci_hi;   /* Wilson interval of hits/n; NaN when n = 0 */
+} etacal_curve_point;
+
+typedef struct etacal_curve {
+    size_t ntargets;
+    size_t nsegs;
+    size_t *seg;             /* the quote-table segment of each curve segment:
+                                0 (overall), then the segments of the most
+                                specific level with held-out rows, in table order */
+    etacal_curve_point *pts; /* [s * ntargets + t] */
+} etacal_curve;
+
+/* The curve of q (fitted at its targets, ascending) measured by h (from
+ * etacal_quotes_holdout with the same table), with Wilson intervals at
+ * confidence conf in (0,1).  Fills *out (free with etacal_curve_free). */
+int etacal_curve_compute(const etacal_quotes *q, const etacal_holdout *h, double conf, etacal_curve *out,
+                         etacal_error *err);
+void etacal_curve_free(etacal_curve *c);
+
+/* The grid from, from + step, ..., up to to (and below 1) as exact
+ * decimals (rounded to 1e-9, so 0.57 is 0.57 and not
+ * 0.5700000000000001), at most max values in out; returns how many. */
+size_t etacal_curve_grid(double from, double to, double step, double *out, size_t max);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,76 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* report.h: one self-contained HTML page that shows a quote table and the
+ * evidence behind it (inline SVG charts from svg.h, tables, inline CSS; no
+ * script, nothing fetched).  The page draws numbers computed by the other
+ * modules (quote, holdout, curve, backtest, binom); it computes no
+ * statistic of its own.  Same input, same bytes; its size grows with the
+ * number of segments, targets and periods, never with the number of rows. */
+#ifndef ETACAL_REPORT_H
+#define ETACAL_REPORT_H
+
+#include <stddef.h>
+#include <stdio.h>
+
+#include "etacal/backtest.h"
+#include "etacal/curve.h"
+#include "etacal/error.h"
+#include "etacal/quote.h"
+#include "etacal/table.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* Counts of actual - prediction in bins of a nice width (1, 2 or 5 times a
+ * power of ten, in minutes) between the type-1 quantiles at 0.5% and 99.5%
+ * of the rows counted; rows outside the bins are counted in below/above. */
+typedef struct etacal_report_hist {
+    size_t nbins;
+    double *edges;   /* nbins + 1 edges, seconds */
+    size_t *counts;  /* [edges[i], edges[i+1]) */
+    size_t n, below, above;
+} etacal_report_hist;
+
+/* The histogram of actual - pred over the rows of t with mask[i] != 0 (NULL:
+ * every row).  Fills *out (free with etacal_report_hist_free).  Errors: no
+ * row, out of memory. */
+int etacal_report_hist_residuals(const etacal_table *t, size_t actual_col, size_t pred_col,
+                                 const unsigned char *mask, etacal_report_hist *out, etacal_error *err);
+void etacal_report_hist_free(etacal_report_hist *h);
+
+/* What the page shows, all borrowed. */
+typedef struct etacal_report {
+    const char *title;       /* NULL: "Promise report" */
+    const char *command;     /* the command line that made the page, shown as is */
+    const char *source;      /* the input's name */
+    const char *actual_name, *pred_name;
+    const char *time_name;   /* NULL without a time column */
+    const etacal_read_stats *stats;
+    double time_min, time_max; /* seconds since the epoch (NaN without a time column) */
+    /* The quote table fitted on the rows not held out, at every target of
+     * the page (the cost-curve grid, the calibration levels, the chosen
+     * target); its held-out counts and the curve computed from them. */
+    const etacal_quotes *q;
+    size_t target;           /* index of the chosen target in q->targets */
+    const etacal_holdout *ho;
+    const etacal_curve *curve;
+    size_t held, fitted;     /* rows held out and fitted on */
+    const char *held_how;    /* how they were chosen, as a phrase */
+    const etacal_report_hist *hist; /* residuals of the rows fitted on */
+    const etacal_backtest_result *bt; /* NULL: no backtest section */
+    const char *bt_note;     /* with bt NULL and a time column: why there is none */
+    double bt_window_s, bt_every_s;
+    size_t thin;             /* a segment with fewer held-out rows is marked thin */
+    double curve_from;       /* the cost curve shows the targets >= this */
+    const char *note;        /* a warning shown under the headline, or NULL */
+    double half_life_s;      /* > 0: the fit used recency weights with this half-life */
+} etacal_report;
+
+/* Writes the page to fp.  Errors: a target index out of range, counts that
+ * do not belong to q, a chart that cannot be laid out. */
+int etacal_report_write_html(FILE *fp, const etacal_report *r, etacal_error *err);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,86 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* fitargs.h: the options of `etacal fit`, shared with `etacal publish`
+ * (which fits the same way), and the fit run itself: read the calibration
+ * rows, fit, and score the held-out rows. */
+#ifndef ETACAL_CLI_FITARGS_H
+#define ETACAL_CLI_FITARGS_H
+
+#include "cli.h"
+
+#include <getopt.h>
+
+#define FIT_MAX_KEYS 16
+#define FIT_MAX_TARGETS ETACAL_APPLY_MAX_TARGETS
+
+enum { FO_ACTUAL = 256, FO_PRED, FO_BY, FO_TARGET, FO_METHOD, FO_MINROWS, FO_X, FO_SPLIT, FO_SEED, FO_CONF,
+       FO_HOLDOUT, FO_TIME, FO_HALFLIFE };
+
+#define FIT_OPTIONS                                                                                           \
+    {"actual", required_argument, 0, FO_ACTUAL}, {"pred", required_argument, 0, FO_PRED},                    \
+        {"by", required_argument, 0, FO_BY}, {"target", required_argument, 0, FO_TARGET},                    \
+        {"method", required_argument, 0, FO_METHOD}, {"min-rows", required_argument, 0, FO_MINROWS},         \
+        {"x", required_argument, 0, FO_X}, {"split", required_argument, 0, FO_SPLIT},                        \
+        {"seed", required_argument, 0, FO_SEED}, {"confidence", required_argument, 0, FO_CONF},              \
+        {"holdout", required_argument, 0, FO_HOLDOUT}, {"time", required_argument, 0, FO_TIME},              \
+        {"half-life", required_argument, 0, FO_HALFLIFE}
+
+/* The help lines of FIT_OPTIONS (without --holdout's and --time's, which
+ * each command words for itself). */
+#define FIT_OPTIONS_HELP                                                                                      \
+    "  --actual COL          column of actual durations, seconds (required)\n"                               \
+    "  --pred COL            column of predicted durations, seconds (required)\n"                            \
+    "  --by COL[,COL...]     key columns that define segments (default: one global segment)\n"              \
+    "  --target T[,T...]     on-time targets in (0,1) (default 0.9); repeatable\n"                           \
+    "  --method add|ratio|qr add: promise = pred + buffer (default);\n"                                      \
+    "                        ratio: promise = pred * factor (predictions must be > 0);\n"                    \
+    "                        qr: quantile regression of actual on pred (and --x), plus a\n"                  \
+    "                        conformal correction from held-back rows\n"                                     \
+    "  --x COL[,COL...]      method qr: extra covariates of the regression\n"                                \
+    "  --split F             method qr: share of each segment's rows for the regression,\n"                  \
+    "                        the rest calibrates the correction (default 0.5)\n"                             \
+    "  --seed S              method qr: seed of the random split (default 1)\n"                              \
+    "  --min-rows N          a segment with fewer rows uses the nearest level above\n"                       \
+    "                        (default 200)\n"
+
+typedef struct fit_args {
+    const char *actual, *pred, *timecol;
+    char *keys[FIT_MAX_KEYS];
+    size_t nkeys;
+    char *xs[ETACAL_QR_MAX_COVARIATES];
+    size_t nx;
+    double targets[FIT_MAX_TARGETS];
+    size_t ntargets, min_rows, seed;
+    double split, confidence, holdout, halflife;
+    int method;
+    etacal_read_opts ro;
+} fit_args;
+
+void fit_args_init(fit_args *a);
+/* One option of FIT_OPTIONS: 0 when handled, EXIT_USAGE after a message
+ * for a bad value, -1 when c is not one of them. */
+int fit_option(int c, const char *cmd, fit_args *a);
+/* Cross-checks the options after parsing (and sets the default target):
+ * 0, else a usage error. */
+int fit_args_check(fit_args *a, const char *cmd);
+
+/* What a fit run produces.  Zero-initialise; fit_result_free releases. */
+typedef struct fit_result {
+    etacal_table *t;
+    etacal_quotes *q;
+    size_t key_cols[FIT_MAX_KEYS], x_cols[ETACAL_QR_MAX_COVARIATES];
+    long time_col;           /* column of the table, or -1 */
+    unsigned char *mask;     /* with --holdout: 1 for the held-out rows */
+    size_t held;             /* held-out rows */
+    etacal_holdout ho;       /* with --holdout: on-time rates on them */
+} fit_result;
+
+/* Reads path (columns: actual 0, pred 1, keys, covariates, time) and fits. */
+int fit_run(const fit_args *a, const char *path, fit_result *r, etacal_error *err);
+void fit_result_free(fit_result *r);
+
+/* The summary `etacal fit` prints, and its held-out table: 0, or -1 when
+ * out of memory (then what was printed is incomplete). */
+int fit_print_summary(FILE *fp, const char *path, const fit_args *a, const fit_result *r);
+int fit_print_holdout(FILE *fp, const fit_args *a, const fit_result *r);
+
+#endif
