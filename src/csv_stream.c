@@ -148,7 +148,8 @@ int csvstream_run_range(const char *path, char delim, int raw, const csvstream_c
     } else {
         fp = fopen(path, "rb");
         if (!fp) {
-            rc = etacal_error_set(err, ETACAL_EIO, path, "cannot open: %s", strerror(errno));
+            rc = errno == ENOMEM ? etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory")
+                                 : etacal_error_set(err, ETACAL_EIO, path, "cannot open: %s", strerror(errno));
             goto done;
         }
     }

@@ -407,7 +407,10 @@ static int publish(int argc, char **argv, char **given)
         goto fail;
     }
     rc = etacal_quotes_write_csv(r.q, ms, &err);
-    if (fclose(ms) != 0 && rc == 0)
+    /* glibc's fclose of a memory stream hides a failed last realloc, but
+     * leaves the buffer as the last fflush set it: so that is checked */
+    int ms_bad = fflush(ms) != 0 || ferror(ms);
+    if ((fclose(ms) != 0 || ms_bad || !buf) && rc == 0)
         rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
     if (rc)
         goto fail;
@@ -539,7 +542,13 @@ static int publish(int argc, char **argv, char **given)
     {
         etacal_error e4;
         etacal_error_clear(&e4);
-        if (etacal_quotes_read_csv(of.tmp, ',', &back, &e4) != 0)
+        int rb = etacal_quotes_read_csv(of.tmp, ',', &back, &e4);
+        if (rb == ETACAL_ENOMEM) {
+            err = e4;
+            rc = rb;
+            goto fail;
+        }
+        if (rb != 0)
             snprintf(gp->detail, sizeof gp->detail, "the new table does not read back: %.200s", e4.msg);
         else if (!same_table(r.q, back))
             snprintf(gp->detail, sizeof gp->detail, "the new table reads back different from what was written");
@@ -632,16 +641,29 @@ static int publish(int argc, char **argv, char **given)
         json_array_append_new(gj, o);
     }
     json_object_set_new(rec, "guards", gj);
-    char *rec_text = json_dumps(rec, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(15));
-    if (!rec_text) {
+    char *rec_text = NULL;
+    size_t rec_len = 0;
+    FILE *rs_fp = open_memstream(&rec_text, &rec_len);
+    int jrc = rs_fp ? json_out(rec, rs_fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(15), NULL, &err)
+                    : etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+    int rs_bad = rs_fp && (fflush(rs_fp) != 0 || ferror(rs_fp));
+    if (rs_fp && (fclose(rs_fp) != 0 || rs_bad || !rec_text) && jrc == 0)
+        jrc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+    if (jrc) {
+        free(rec_text);
         json_decref(rec);
-        rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+        rc = jrc;
+        if (!refused && !po.dry_run) {
+            fprintf(stderr, "etacal: publish: the table is published, but its provenance record is not: %s\n",
+                    err.msg);
+            status = EXIT_DATA;
+            goto report;
+        }
         goto fail;
     }
     if (!refused && !po.dry_run) {
-        size_t len = strlen(rec_text);
-        rec_text[len] = '\n'; /* json_dumps leaves no newline; replace the NUL */
-        rc = etacal_write_file(meta, rec_text, len + 1, &err);
+        size_t len = rec_len;
+        rc = etacal_write_file(meta, rec_text, len, &err);
         if (rc == 0 && po.history) {
             if (mkdir(po.history, 0777) != 0 && errno != EEXIST) {
                 rc = etacal_error_set(&err, ETACAL_EIO, po.history, "cannot create the history directory: %s",
@@ -662,11 +684,10 @@ static int publish(int argc, char **argv, char **given)
                 if (rc == 0) {
                     char hm[4200];
                     snprintf(hm, sizeof hm, "%s.meta.json", hist);
-                    rc = etacal_write_file(hm, rec_text, len + 1, &err);
+                    rc = etacal_write_file(hm, rec_text, len, &err);
                 }
             }
         }
-        rec_text[len] = '\0';
         if (rc) {
             free(rec_text);
             json_decref(rec);
@@ -680,8 +701,9 @@ static int publish(int argc, char **argv, char **given)
     free(rec_text);
     json_decref(rec);
 
-report:
+report:;
     /* ---- the change report ---- */
+    int report_bad = 0;
     if (have_cur)
         qsort(d.moves, d.nmoves, sizeof *d.moves, by_size_of_move);
     if (po.quiet) {
@@ -733,8 +755,9 @@ report:
             json_array_append_new(gr, o);
         }
         json_object_set_new(root, "guards", gr);
-        if (json_dumpf(root, stdout, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10)) == 0)
-            putchar('\n');
+        etacal_error je;
+        if (json_out(root, stdout, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10), "stdout", &je))
+            report_bad = 1;
     } else {
         printf("etacal publish: %s from %s\n", po.table, path);
         printf("rows: %zu read, %zu used, %zu left out (missing actual or prediction), %zu malformed skipped\n",
@@ -755,7 +778,9 @@ report:
                 printf("\nlargest moves of the promise at the reference order:\n");
                 size_t nk = r.q->nkeys ? r.q->nkeys : 1;
                 text_table tt;
-                if (tt_init(&tt, nk + 4) == 0) {
+                if (tt_init(&tt, nk + 4) != 0) {
+                    report_bad = 1;
+                } else {
                     const char *cells[FIT_MAX_KEYS + 4];
                     char b[4][48];
                     size_t k = 0;
@@ -790,7 +815,8 @@ report:
                         tt_add(&tt, cells);
                         listed++;
                     }
-                    tt_print(&tt, stdout);
+                    if (tt_print(&tt, stdout) != 0)
+                        report_bad = 1;
                     tt_free(&tt);
                 }
             }
@@ -810,13 +836,16 @@ report:
         }
         printf("\nguards:\n");
         text_table tt;
-        if (tt_init(&tt, 3) == 0) {
+        if (tt_init(&tt, 3) != 0) {
+            report_bad = 1;
+        } else {
             for (size_t i = 0; i < ng; i++) {
                 const char *cells[3] = {g[i].name, g[i].ok > 0 ? "ok" : g[i].ok == 0 ? "FAILED" : "-",
                                         g[i].detail};
                 tt_add(&tt, cells);
             }
-            tt_print(&tt, stdout);
+            if (tt_print(&tt, stdout) != 0)
+                report_bad = 1;
             tt_free(&tt);
         }
         putchar('\n');
@@ -834,11 +863,17 @@ report:
             putchar('\n');
         }
     }
+    if (report_bad) {
+        fprintf(stderr, "etacal: publish: out of memory: the change report is incomplete%s\n",
+                refused || po.dry_run ? "; nothing replaced" : "; the table is published");
+        status = EXIT_DATA;
+    }
     if (refused) {
         for (size_t i = 0; i < ng; i++)
             if (g[i].ok == 0)
                 fprintf(stderr, "etacal: publish: refused by the %s guard: %s\n", g[i].name, g[i].detail);
-        status = EXIT_REFUSED;
+        if (!report_bad)
+            status = EXIT_REFUSED;
     }
     json_decref(root);
     free(buf);
