@@ -721,7 +721,7 @@ int etacal_qr_fit(const double *y, const double *const *x, size_t k, const doubl
     if (rc)
         return rc;
     double eps = opts->eps > 0 ? opts->eps : 1e-6;
-    int maxit = opts->maxit > 0 ? opts->maxit : 50;
+    int maxit = opts->maxit > 0 ? opts->maxit : 500;
     int pre = opts->preprocess == 1 || (opts->preprocess == 0 && n > 20000);
     fnwork W = {0};
     double b[PMAX];

@@ -20,7 +20,7 @@ extern "C" {
 
 typedef struct etacal_qr_opts {
     double eps;          /* duality-gap tolerance (absolute); 0 means 1e-6 */
-    int maxit;           /* Newton iterations per solve; 0 means 50 */
+    int maxit;           /* Newton iterations per solve; 0 means 500 */
     int preprocess;      /* 0: auto (on for n > 20000), 1: on, 2: off */
     unsigned long seed;  /* of the preprocessing subsamples */
 } etacal_qr_opts;

@@ -201,10 +201,7 @@ static int run(int argc, char **argv, const char *cmdline)
 
     /* the targets: the cost-curve grid, the calibration levels and the target */
     double targets[MAX_LEVELS];
-    /* quantile regression is fragile at extreme levels (the interior-point
-     * method may not converge at 99% on a few thousand rows): its curve
-     * stops at 95% */
-    size_t nt = etacal_curve_grid(0.5, method == ETACAL_METHOD_QR ? 0.95 : 0.99, 0.01, targets, MAX_LEVELS);
+    size_t nt = etacal_curve_grid(0.5, 0.99, 0.01, targets, MAX_LEVELS);
     nt += etacal_curve_grid(0.05, 0.45, 0.05, targets + nt, MAX_LEVELS - nt);
     targets[nt++] = target;
     qsort(targets, nt, sizeof *targets, cmp_double);
