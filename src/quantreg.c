@@ -291,13 +291,17 @@ static void pool_drain(pool *P)
     }
 }
 
+/* Polls of a worker before it sleeps (some tens of microseconds): the
+ * interior-point passes follow each other that closely. */
+#define SPIN 200000L
+
 static int pool_main(void *arg)
 {
     pool *P = arg;
     unsigned long seen = 0;
     for (;;) {
         /* a short spin first: the next pass usually follows at once */
-        for (int i = 0; i < 4000 && atomic_load(&P->pub) == seen && !atomic_load(&P->quit); i++)
+        for (long i = 0; i < SPIN && atomic_load(&P->pub) == seen && !atomic_load(&P->quit); i++)
             ;
         if (atomic_load(&P->pub) == seen) {
             mtx_lock(&P->mu);
@@ -421,7 +425,7 @@ KERNEL void rowdot(const double *restrict X, size_t ld, size_t p, const double *
  * matrix, then scalars */
 #define NSCAL 8
 #define SLOT (2 * PMAX + PMAX * (PMAX + 1) / 2 + NSCAL)
-enum { S_GAP = SLOT - NSCAL, S_AP, S_AD, S_S1, S_S2, S_S3, S_G }; /* offsets of the scalars */
+enum { S_GAP = SLOT - NSCAL, S_AP, S_AD, S_S1, S_S2, S_S3 }; /* offsets of the scalars */
 
 typedef struct fnwork {
     size_t cap, chcap;
@@ -521,7 +525,8 @@ KERNEL void k_start(const fnctx *F, size_t i0, size_t n, double *slot)
 
 /* The step to the new point (update) or the first dual point (init), the
  * gap there, and (prep) the next Newton system: q = 1/(z/x + w/s), the
- * right-hand side's part X'(q(z - w) - x) and X'QX. */
+ * right-hand side's part X'(q(z - w) - x) and X'QX, and X'e1 of the
+ * corrector, e1 = q(1/s - 1/x). */
 KERNEL void k_a(const fnctx *F, size_t i0, size_t n, double *slot)
 {
     size_t m = F->m, p = F->p;
@@ -571,9 +576,12 @@ KERNEL void k_a(const fnctx *F, size_t i0, size_t n, double *slot)
         is[i] = 1 / s[i];
         q[i] = 1 / (z[i] * ix[i] + w[i] * is[i]);
         v[i] = q[i] * (z[i] - w[i]) - x[i];
+        qx[i] = q[i] * (is[i] - ix[i]);
     }
-    for (size_t j = 0; j < p; j++)
+    for (size_t j = 0; j < p; j++) {
         slot[j] = dotv(X + j * m, v, n);
+        slot[p + j] = dotv(X + j * m, qx, n);
+    }
     double *M = slot + 2 * p;
     for (size_t r = 0; r < p; r++) {
         const double *restrict xr = X + r * m;
@@ -621,7 +629,8 @@ KERNEL void steps_and_sums(const fnwork *W, size_t i0, size_t n, double *slot)
 }
 
 /* The affine-scaling direction: dx = q(X dy - z + w), ds = -dx,
- * dz = -z(1 + dx/x), dw = -w(1 + ds/s). */
+ * dz = -z(1 + dx/x), dw = -w(1 + ds/s); and X'e2 of the corrector, e2 =
+ * q(dx dz/x - ds dw/s). */
 KERNEL void k_b(const fnctx *F, size_t i0, size_t n, double *slot)
 {
     fnwork *W = F->W;
@@ -630,38 +639,19 @@ KERNEL void k_b(const fnctx *F, size_t i0, size_t n, double *slot)
     const double *restrict z = W->z + i0, *restrict w = W->w + i0, *restrict q = W->q + i0;
     const double *restrict ix = W->ix + i0, *restrict is = W->is + i0;
     double *restrict dx = W->dx + i0, *restrict dz = W->dz + i0, *restrict dw = W->dw + i0;
+    double e2[FN_CH];
     for (size_t i = 0; i < n; i++) {
         double d = q[i] * (xdy[i] - (z[i] - w[i]));
+        double a = -z[i] * (1 + d * ix[i]), c = -w[i] * (1 - d * is[i]);
         dx[i] = d;
-        dz[i] = -z[i] * (1 + d * ix[i]);
-        dw[i] = -w[i] * (1 - d * is[i]);
+        dz[i] = a;
+        dw[i] = c;
+        e2[i] = q[i] * d * (a * ix[i] + c * is[i]);
     }
-    steps_and_sums(W, i0, n, slot);
-}
-
-/* Mehrotra's corrector, sums: g = sum (x + aP dx)(z + aD dz) + (s + aP
- * ds)(w + aD dw), and X'e1, X'e2 with t = mu e1 + e2, e1 = q(1/s - 1/x),
- * e2 = q(dx dz/x - ds dw/s). */
-KERNEL void k_c(const fnctx *F, size_t i0, size_t n, double *slot)
-{
-    size_t m = F->m, p = F->p;
-    const fnwork *W = F->W;
-    const double *restrict x = W->x + i0, *restrict s = W->s + i0, *restrict z = W->z + i0, *restrict w = W->w + i0;
-    const double *restrict dx = W->dx + i0, *restrict dz = W->dz + i0, *restrict dw = W->dw + i0;
-    const double *restrict q = W->q + i0, *restrict ix = W->ix + i0, *restrict is = W->is + i0;
-    double e1[FN_CH], e2[FN_CH], g0 = 0;
-    double aP = F->aP, aD = F->aD;
-    for (size_t i = 0; i < n; i++) {
-        g0 += (x[i] + aP * dx[i]) * (z[i] + aD * dz[i]) + (s[i] - aP * dx[i]) * (w[i] + aD * dw[i]);
-        e1[i] = q[i] * (is[i] - ix[i]);
-        e2[i] = q[i] * dx[i] * (dz[i] * ix[i] + dw[i] * is[i]);
-    }
-    slot[S_G] = g0;
     const double *X = F->X + i0;
-    for (size_t j = 0; j < p; j++) {
-        slot[j] = dotv(X + j * m, e1, n);
-        slot[p + j] = dotv(X + j * m, e2, n);
-    }
+    for (size_t j = 0; j < F->p; j++)
+        slot[j] = dotv(X + j * F->m, e2, n);
+    steps_and_sums(W, i0, n, slot);
 }
 
 /* The corrected direction (dy solved with the corrector's right-hand side). */
@@ -699,7 +689,6 @@ KERNEL void k_d(const fnctx *F, size_t i0, size_t n, double *slot)
 CHUNK_WRAPPER(run_start, k_start)
 CHUNK_WRAPPER(run_a, k_a)
 CHUNK_WRAPPER(run_b, k_b)
-CHUNK_WRAPPER(run_c, k_c)
 CHUNK_WRAPPER(run_d, k_d)
 
 /* Adds the chunks' slots in chunk order: the first nv entries, and the
@@ -757,7 +746,7 @@ static int fn_solve(const double *X, const double *Y, size_t m, size_t p, double
     F.tau = tau;
     F.eps = eps;
     F.W = W;
-    double bvec[PMAX], rhs[PMAX], sums[2 * PMAX + PMAX * (PMAX + 1) / 2];
+    double bvec[PMAX], rhs[PMAX], u1[PMAX], sums[2 * PMAX + PMAX * (PMAX + 1) / 2];
     /* b = (1 - tau) X'1, x = (1 - tau) 1, s = tau 1; y_d from (X'X) y_d = X'c */
     pool_run(P, run_start, &F, nch);
     reduce(W->part, nch, 2 * p + np2, sums);
@@ -785,8 +774,10 @@ static int fn_solve(const double *X, const double *Y, size_t m, size_t p, double
             pool_run(P, run_a, &F, nch);
         }
         reduce(W->part, nch, 2 * p + np2, sums);
-        for (size_t j = 0; j < p; j++)
+        for (size_t j = 0; j < p; j++) {
             rhs[j] = bvec[j] + sums[j];
+            u1[j] = sums[p + j];
+        }
         if (factor_packed(&Fa, sums + 2 * p, p) != GSL_SUCCESS) {
             rc = etacal_error_set(err, ETACAL_ENUM, NULL, "Newton step failed (matrix not positive definite)");
             goto done;
@@ -796,15 +787,14 @@ static int fn_solve(const double *X, const double *Y, size_t m, size_t p, double
         pool_run(P, run_b, &F, nch);
                 double aP = reduce_min(W->part, nch, S_AP), aD = reduce_min(W->part, nch, S_AD);
         if (aP < 1 || aD < 1) {
-            /* Mehrotra corrector with the same factorisation */
-            F.aP = aP;
-            F.aD = aD;
-            pool_run(P, run_c, &F, nch);
-            double g = reduce_scalar(W->part, nch, S_G), mu = gap;
-            mu = mu * pow(g / mu, 3) / (2 * (double)m);
-            reduce(W->part, nch, 2 * p, sums);
+            /* Mehrotra corrector with the same factorisation: g is the
+             * gap after the affine step, t = mu e1 + e2 */
+            double g = gap + aD * reduce_scalar(W->part, nch, S_S1) + aP * reduce_scalar(W->part, nch, S_S2) +
+                       aP * aD * reduce_scalar(W->part, nch, S_S3);
+            double mu = gap * pow(g / gap, 3) / (2 * (double)m);
+            reduce(W->part, nch, p, sums);
             for (size_t j = 0; j < p; j++)
-                F.dy[j] = rhs[j] + (mu * sums[j] + sums[p + j]);
+                F.dy[j] = rhs[j] + (mu * u1[j] + sums[j]);
             solve(&Fa, F.dy, p);
             F.mu = mu;
             pool_run(P, run_d, &F, nch);
@@ -1433,13 +1423,6 @@ static int fit_pre(design *d, double tau, double eps, int maxit, unsigned long s
             for (size_t i = 0; i < ms; i++)
                 c[i] = Xs[i] * (c[i] - mj) * ij;
         }
-        int it;
-        double bs[PMAX], gap;
-        double eps_s = eps > SUB_REL_GAP * sy ? eps : SUB_REL_GAP * sy;
-        if ((rc = fn_solve(Xs, Ys, ms, p, tau, eps, eps_s, maxit, W, P, bs, &it, &gap, err)) != 0)
-            goto done;
-        out->iterations += it;
-        out->solves++;
         /* band_i = sqrt(x_i' (Xs'Xs)^-1 x_i) through the Cholesky factor */
         double g[PMAX * PMAX] = {0};
         for (size_t a = 0; a < p; a++)
@@ -1452,6 +1435,13 @@ static int fit_pre(design *d, double tau, double eps, int maxit, unsigned long s
                 rc = etacal_error_set(err, ETACAL_ENUM, NULL, "the subsample's design is singular");
             goto done;
         }
+        int it;
+        double bs[PMAX], gap;
+        double eps_s = eps > SUB_REL_GAP * sy ? eps : SUB_REL_GAP * sy;
+        if ((rc = fn_solve(Xs, Ys, ms, p, tau, eps, eps_s, maxit, W, P, bs, &it, &gap, err)) != 0)
+            goto done;
+        out->iterations += it;
+        out->solves++;
         /* Linv = L^-1 (lower triangular), so that band_i = |Linv x_i| takes
          * multiplications only */
         double Linv[PMAX * PMAX] = {0};
