@@ -22,6 +22,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <threads.h>
+#include <time.h>
 #include <unistd.h>
 
 #define PMAX (ETACAL_QR_MAX_COVARIATES + 1)
@@ -273,7 +274,15 @@ typedef struct pool {
     job jobs[2];
     _Atomic uint64_t ticket;
     atomic_int inflight;
+    int started;         /* workers started (workers drops to 0 after stalls) */
+    int stalls, stalled; /* passes held up by a paused worker */
 } pool;
+
+/* A pass held up this long after the caller's last chunk counts as a
+ * stall (a chunk takes well under a millisecond); MAX_STALLS of them and
+ * the workers are left out. */
+#define STALL_S 0.002
+#define MAX_STALLS 3
 
 static void pool_drain(pool *P)
 {
@@ -339,6 +348,7 @@ static void pool_start(pool *P, int nthreads)
             break;
         P->workers++;
     }
+    P->started = P->workers;
 }
 
 static void pool_stop(pool *P)
@@ -349,7 +359,7 @@ static void pool_stop(pool *P)
     atomic_store(&P->quit, 1);
     cnd_broadcast(&P->go);
     mtx_unlock(&P->mu);
-    for (int t = 0; t < P->workers; t++)
+    for (int t = 0; t < P->started; t++)
         thrd_join(P->th[t], NULL);
     cnd_destroy(&P->go);
     mtx_destroy(&P->mu);
@@ -375,9 +385,28 @@ static void pool_run(pool *P, chunk_fn fn, void *ctx, size_t nchunks)
     cnd_broadcast(&P->go);
     mtx_unlock(&P->mu);
     pool_drain(P);
-    for (int i = 0; atomic_load(&P->inflight) != 0; i++)
-        if (i > 1000)
+    /* Wait for the chunks in progress.  A worker that the system has
+     * paused with a chunk in hand (the other CPUs busy with other work)
+     * holds the pass up for a time slice: after a few such stalls the fit
+     * goes on with the calling thread alone (the same answer). */
+    struct timespec t0 = {0, 0};
+    for (long i = 0; atomic_load(&P->inflight) != 0; i++) {
+        if (i == 1000)
+            clock_gettime(CLOCK_MONOTONIC, &t0);
+        if (i > 1000 && i % 256 == 0) {
+            struct timespec t1;
+            clock_gettime(CLOCK_MONOTONIC, &t1);
+            double waited = (double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec);
+            if (waited > STALL_S && !P->stalled) {
+                P->stalled = 1;
+                P->stalls++;
+            }
             thrd_yield();
+        }
+    }
+    P->stalled = 0;
+    if (P->stalls >= MAX_STALLS)
+        P->workers = 0; /* they sleep until pool_stop */
 }
 
 /* The kernels below are written for a chunk of any length and inlined twice,
@@ -387,6 +416,16 @@ static void pool_run(pool *P, chunk_fn fn, void *ctx, size_t nchunks)
 #define KERNEL static inline __attribute__((always_inline))
 #else
 #define KERNEL static inline
+#endif
+
+#if defined(__GNUC__)
+typedef double v2d __attribute__((vector_size(16)));
+static inline v2d vld(const double *p)
+{
+    v2d v;
+    memcpy(&v, p, sizeof v);
+    return v;
+}
 #endif
 
 /* sum a[i] b[i] over n, four partial sums (a fixed order) */
@@ -405,16 +444,105 @@ KERNEL double dotv(const double *restrict a, const double *restrict b, size_t n)
     return (s0 + s1) + (s2 + s3);
 }
 
+/* Two sums at once over one column: sum a[i] u[i] and sum a[i] v[i]. */
+KERNEL void dot2v(const double *restrict a, const double *restrict u, const double *restrict v, size_t n,
+                  double *su, double *sv)
+{
+#if defined(__GNUC__)
+    /* two lanes, GCC's vector extension (SSE2 on x86-64, scalar elsewhere) */
+    v2d s0 = {0, 0}, s1 = {0, 0};
+    size_t i = 0;
+    for (; i + 2 <= n; i += 2) {
+        v2d x = vld(a + i);
+        s0 += x * vld(u + i);
+        s1 += x * vld(v + i);
+    }
+    double t0 = s0[0] + s0[1], t1 = s1[0] + s1[1];
+    for (; i < n; i++) {
+        t0 += a[i] * u[i];
+        t1 += a[i] * v[i];
+    }
+    *su = t0;
+    *sv = t1;
+#else
+    *su = dotv(a, u, n);
+    *sv = dotv(a, v, n);
+#endif
+}
+
+/* The 2 x 2 block of sums a_r[i] b_c[i], r, c in {0, 1}: out = (00, 01,
+ * 10, 11); each column is loaded once for two products. */
+KERNEL void gram22(const double *restrict a0, const double *restrict a1, const double *restrict b0,
+                   const double *restrict b1, size_t n, double *out)
+{
+#if defined(__GNUC__)
+    v2d s00 = {0, 0}, s01 = {0, 0}, s10 = {0, 0}, s11 = {0, 0};
+    size_t i = 0;
+    for (; i + 2 <= n; i += 2) {
+        v2d x0 = vld(a0 + i), x1 = vld(a1 + i), y0 = vld(b0 + i), y1 = vld(b1 + i);
+        s00 += x0 * y0;
+        s01 += x0 * y1;
+        s10 += x1 * y0;
+        s11 += x1 * y1;
+    }
+    double t00 = s00[0] + s00[1], t01 = s01[0] + s01[1], t10 = s10[0] + s10[1], t11 = s11[0] + s11[1];
+    for (; i < n; i++) {
+        t00 += a0[i] * b0[i];
+        t01 += a0[i] * b1[i];
+        t10 += a1[i] * b0[i];
+        t11 += a1[i] * b1[i];
+    }
+    out[0] = t00;
+    out[1] = t01;
+    out[2] = t10;
+    out[3] = t11;
+#else
+    out[0] = dotv(a0, b0, n);
+    out[1] = dotv(a0, b1, n);
+    out[2] = dotv(a1, b0, n);
+    out[3] = dotv(a1, b1, n);
+#endif
+}
+
+/* The packed lower triangle of sum_i A_r[i] B_c[i] (A_r = column r of A,
+ * leading dimensions la, lb), in 2 x 2 blocks. */
+KERNEL void gram_packed(const double *A, size_t la, const double *B, size_t lb, size_t p, size_t n, double *M)
+{
+    for (size_t r = 0; r < p; r += 2) {
+        size_t r1 = r + 1 < p ? r + 1 : r;
+        for (size_t c = 0; c <= r; c += 2) {
+            double o[4];
+            size_t c1 = c + 1 < p ? c + 1 : c;
+            gram22(A + r * la, A + r1 * la, B + c * lb, B + c1 * lb, n, o);
+            M[r * (r + 1) / 2 + c] = o[0];
+            if (c + 1 <= r)
+                M[r * (r + 1) / 2 + c + 1] = o[1];
+            if (r + 1 < p) {
+                M[r1 * (r1 + 1) / 2 + c] = o[2];
+                M[r1 * (r1 + 1) / 2 + c + 1] = o[3];
+            }
+        }
+    }
+}
+
 /* out[i] = sum_j v[j] X[j*ld + i] for the rows of a chunk */
 KERNEL void rowdot(const double *restrict X, size_t ld, size_t p, const double *v, double *restrict out, size_t n)
 {
-    for (size_t i = 0; i < n; i++)
-        out[i] = v[0] * X[i];
-    for (size_t j = 1; j < p; j++) {
-        const double *restrict c = X + j * ld;
-        double vj = v[j];
-        for (size_t i = 0; i < n; i++)
-            out[i] += vj * c[i];
+    size_t i = 0;
+#if defined(__GNUC__)
+    /* two rows at a time, the sum kept in a register (same order of terms) */
+    for (; i + 2 <= n; i += 2) {
+        v2d acc = v[0] * vld(X + i);
+        for (size_t j = 1; j < p; j++)
+            acc += v[j] * vld(X + j * ld + i);
+        memcpy(out + i, &acc, sizeof acc);
+    }
+#endif
+    for (; i < n; i++) {
+        double acc = v[0] * X[i];
+        for (size_t j = 1; j < p; j++)
+            acc += v[j] * X[j * ld + i];
+        out[i] = acc;
     }
 }
 
@@ -517,10 +645,7 @@ KERNEL void k_start(const fnctx *F, size_t i0, size_t n, double *slot)
         slot[j] = dotv(X + j * m, one, n);
         slot[p + j] = -dotv(X + j * m, Y, n);
     }
-    double *M = slot + 2 * p;
-    for (size_t r = 0; r < p; r++)
-        for (size_t c = 0; c <= r; c++)
-            M[r * (r + 1) / 2 + c] = dotv(X + r * m, X + c * m, n);
+    gram_packed(X, m, X, m, p, n, slot + 2 * p);
 }
 
 /* The step to the new point (update) or the first dual point (init), the
@@ -578,18 +703,16 @@ KERNEL void k_a(const fnctx *F, size_t i0, size_t n, double *slot)
         v[i] = q[i] * (z[i] - w[i]) - x[i];
         qx[i] = q[i] * (is[i] - ix[i]);
     }
-    for (size_t j = 0; j < p; j++) {
-        slot[j] = dotv(X + j * m, v, n);
-        slot[p + j] = dotv(X + j * m, qx, n);
-    }
-    double *M = slot + 2 * p;
+    for (size_t j = 0; j < p; j++)
+        dot2v(X + j * m, v, qx, n, &slot[j], &slot[p + j]);
+    /* X'QX: the columns q x_r, then the triangle in 2 x 2 blocks */
+    double QX[PMAX][FN_CH];
     for (size_t r = 0; r < p; r++) {
         const double *restrict xr = X + r * m;
         for (i = 0; i < n; i++)
-            qx[i] = q[i] * xr[i];
-        for (size_t c = 0; c <= r; c++)
-            M[r * (r + 1) / 2 + c] = dotv(qx, X + c * m, n);
+            QX[r][i] = q[i] * xr[i];
     }
+    gram_packed(QX[0], FN_CH, X, m, p, n, slot + 2 * p);
 }
 
 /* Largest steps of a chunk, and the sums that give the gap after a step
@@ -885,7 +1008,7 @@ KERNEL void block_ratio(const dpass *P, size_t i0, size_t n, double D[][VB], dou
 {
     const design *d = P->d;
     size_t k = d->k, p = d->p;
-    double fit[VB], b2[VB], t[VB], r[VB];
+    double fit[VB], b2[VB], r[VB];
     const double *restrict y = d->y + i0;
     for (size_t j = 0; j < k; j++) {
         const double *restrict xj = d->x[j] + i0;
@@ -910,20 +1033,34 @@ KERNEL void block_ratio(const dpass *P, size_t i0, size_t n, double D[][VB], dou
         r[i] = wv[i] * (y[i] - fit[i]);
         b2[i] = 0;
     }
-    for (size_t a = 0; a < p; a++) {
-        const double *la = P->Ls + a * p;
-        for (size_t i = 0; i < n; i++)
-            t[i] = la[0];
-        for (size_t c = 1; c <= a; c++) {
-            double l = la[c];
-            for (size_t i = 0; i < n; i++)
-                t[i] += l * D[c - 1][i];
+    size_t i = 0;
+#if defined(__GNUC__)
+    /* two rows at a time, each term of the band in a register */
+    for (; i + 2 <= n; i += 2) {
+        v2d acc = {0, 0};
+        for (size_t a = 0; a < p; a++) {
+            const double *la = P->Ls + a * p;
+            v2d ta = {la[0], la[0]};
+            for (size_t c = 1; c <= a; c++)
+                ta += la[c] * vld(&D[c - 1][i]);
+            acc += ta * ta;
         }
-        for (size_t i = 0; i < n; i++)
-            b2[i] += t[i] * t[i];
+        memcpy(b2 + i, &acc, sizeof acc);
+    }
+#endif
+    for (; i < n; i++) {
+        double acc = 0;
+        for (size_t a = 0; a < p; a++) {
+            const double *la = P->Ls + a * p;
+            double ta = la[0];
+            for (size_t c = 1; c <= a; c++)
+                ta += la[c] * D[c - 1][i];
+            acc += ta * ta;
+        }
+        b2[i] = acc;
     }
     double eps = P->eps, acc = 0;
-    for (size_t i = 0; i < n; i++) {
+    for (i = 0; i < n; i++) {
         double band = wv[i] * sqrt(b2[i]);
         ratio[i] = r[i] / (band > eps ? band : eps);
         /* NaN when y, a covariate or the weight is not finite */
