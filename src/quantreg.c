@@ -848,9 +848,12 @@ static double reduce_min(const double *part, size_t nch, size_t off)
 /* Frisch-Newton (rqfnb's steps, METHODS.md): rows X (m x p, column j at
  * X + j*m), responses Y; writes the coefficients (scaled space) to b.  eps
  * is rqfnb's eps of the starting point, tol the duality gap at which it
- * stops (eps but for the subsample's fit). */
+ * stops (eps but for the subsample's fit).  warm (or NULL): coefficients
+ * to start the dual from instead of least squares (the subsample's fit for
+ * the reduced problem: a few Newton steps fewer). */
 static int fn_solve(const double *X, const double *Y, size_t m, size_t p, double tau, double eps, double tol,
-                    int maxit, fnwork *W, pool *P, double *b, int *iters, double *gap_out, etacal_error *err)
+                    int maxit, const double *warm, fnwork *W, pool *P, double *b, int *iters, double *gap_out,
+                    etacal_error *err)
 {
     if (fnwork_reserve(W, m) != 0)
         return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
@@ -885,6 +888,9 @@ static int fn_solve(const double *X, const double *Y, size_t m, size_t p, double
         goto done;
     }
     solve(&Fa, F.yd, p);
+    if (warm)
+        for (size_t j = 0; j < p; j++)
+            F.yd[j] = -warm[j];
     F.init = 1;
     F.prep = 1;
     pool_run(P, run_a, &F, nch);
@@ -1307,7 +1313,7 @@ static int fit_all(const design *d, double tau, double eps, int maxit, fnwork *W
     if (gather_all(d, &X, &Y) != 0)
         return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
     int it = 0;
-    int rc = fn_solve(X, Y, d->n, d->p, tau, eps, eps, maxit, W, P, b, &it, &out->gap, err);
+    int rc = fn_solve(X, Y, d->n, d->p, tau, eps, eps, maxit, NULL, W, P, b, &it, &out->gap, err);
     free(X);
     free(Y);
     out->iterations += it;
@@ -1578,7 +1584,7 @@ static int fit_pre(design *d, double tau, double eps, int maxit, unsigned long s
         int it;
         double bs[PMAX], gap;
         double eps_s = eps > SUB_REL_GAP * sy ? eps : SUB_REL_GAP * sy;
-        if ((rc = fn_solve(Xs, Ys, ms, p, tau, eps, eps_s, maxit, W, P, bs, &it, &gap, err)) != 0)
+        if ((rc = fn_solve(Xs, Ys, ms, p, tau, eps, eps_s, maxit, NULL, W, P, bs, &it, &gap, err)) != 0)
             goto done;
         out->iterations += it;
         out->solves++;
@@ -1689,9 +1695,10 @@ static int fit_pre(design *d, double tau, double eps, int maxit, unsigned long s
             goto done;
         }
         int grow = 0;
+        double b[PMAX];
+        memcpy(b, bs, sizeof b);
         for (int fix = 0; fix < 3; fix++) {
-            double b[PMAX];
-            rc = fn_solve(Xr, Yr, mr, p, tau, eps, eps, maxit, W, P, b, &it, &out->gap, err);
+            rc = fn_solve(Xr, Yr, mr, p, tau, eps, eps, maxit, b, W, P, b, &it, &out->gap, err);
             if (rc)
                 goto done;
             out->iterations += it;
