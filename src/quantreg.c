@@ -557,13 +557,13 @@ enum { S_GAP = SLOT - NSCAL, S_AP, S_AD, S_S1, S_S2, S_S3 }; /* offsets of the s
 
 typedef struct fnwork {
     size_t cap, chcap;
-    double *x, *s, *z, *w, *q, *dx, *dz, *dw;
+    double *x, *s, *z, *w, *dx, *dz, *dw;
     double *part;
 } fnwork;
 
 static void fnwork_free(fnwork *f)
 {
-    double **arr[] = {&f->x, &f->s, &f->z, &f->w, &f->q, &f->dx, &f->dz, &f->dw};
+    double **arr[] = {&f->x, &f->s, &f->z, &f->w, &f->dx, &f->dz, &f->dw};
     for (size_t i = 0; i < sizeof arr / sizeof *arr; i++) {
         free(*arr[i]);
         *arr[i] = NULL;
@@ -579,7 +579,7 @@ static int fnwork_reserve(fnwork *f, size_t m)
     if (m <= f->cap && nch <= f->chcap)
         return 0;
     fnwork_free(f);
-    double **arr[] = {&f->x, &f->s, &f->z, &f->w, &f->q, &f->dx, &f->dz, &f->dw};
+    double **arr[] = {&f->x, &f->s, &f->z, &f->w, &f->dx, &f->dz, &f->dw};
     for (size_t i = 0; i < sizeof arr / sizeof *arr; i++)
         if (!(*arr[i] = malloc(m * sizeof(double)))) {
             fnwork_free(f);
@@ -694,8 +694,7 @@ KERNEL void k_a(const fnctx *F, size_t i0, size_t n, double *slot)
     slot[S_GAP] = g0 + g1;
     if (!F->prep)
         return;
-    double *restrict q = W->q + i0;
-    double v[FN_CH], qx[FN_CH];
+    double q[FN_CH], v[FN_CH], qx[FN_CH];
     for (i = 0; i < n; i++) {
         double ix = 1 / x[i], is = 1 / s[i];
         q[i] = 1 / (z[i] * ix + w[i] * is);
@@ -758,20 +757,20 @@ KERNEL void k_b(const fnctx *F, size_t i0, size_t n, double *slot)
     fnwork *W = F->W;
     double xdy[FN_CH];
     rowdot(F->X + i0, F->m, F->p, F->dy, xdy, n);
-    const double *restrict z = W->z + i0, *restrict w = W->w + i0, *restrict q = W->q + i0;
+    const double *restrict z = W->z + i0, *restrict w = W->w + i0;
     const double *restrict x = W->x + i0, *restrict s = W->s + i0;
     double *restrict dx = W->dx + i0, *restrict dz = W->dz + i0, *restrict dw = W->dw + i0;
     double e2[FN_CH];
     for (size_t i = 0; i < n; i++) {
-        double d = q[i] * (xdy[i] - (z[i] - w[i]));
-        /* 1/x and 1/s again rather than stored: the passes are bound by
-         * memory traffic, not by divisions */
-        double ix = 1 / x[i], is = 1 / s[i];
+        /* 1/x, 1/s and q again (as k_a has them) rather than stored: the
+         * passes are bound by memory traffic, not by divisions */
+        double ix = 1 / x[i], is = 1 / s[i], q = 1 / (z[i] * ix + w[i] * is);
+        double d = q * (xdy[i] - (z[i] - w[i]));
         double a = -z[i] * (1 + d * ix), c = -w[i] * (1 - d * is);
         dx[i] = d;
         dz[i] = a;
         dw[i] = c;
-        e2[i] = q[i] * d * (a * ix + c * is);
+        e2[i] = q * d * (a * ix + c * is);
     }
     const double *X = F->X + i0;
     for (size_t j = 0; j < F->p; j++)
@@ -785,15 +784,15 @@ KERNEL void k_d(const fnctx *F, size_t i0, size_t n, double *slot)
     fnwork *W = F->W;
     double xdy[FN_CH];
     rowdot(F->X + i0, F->m, F->p, F->dy, xdy, n);
-    const double *restrict z = W->z + i0, *restrict w = W->w + i0, *restrict q = W->q + i0;
+    const double *restrict z = W->z + i0, *restrict w = W->w + i0;
     const double *restrict x = W->x + i0, *restrict s = W->s + i0;
     double *restrict dx = W->dx + i0, *restrict dz = W->dz + i0, *restrict dw = W->dw + i0;
     double mu = F->mu;
     for (size_t i = 0; i < n; i++) {
         double dxa = dx[i], dza = dz[i], dwa = dw[i];
-        double ix = 1 / x[i], is = 1 / s[i];
-        double t = q[i] * (mu * (is - ix) + dxa * (dza * ix + dwa * is));
-        double d = q[i] * (xdy[i] - z[i] + w[i]) - t;
+        double ix = 1 / x[i], is = 1 / s[i], q = 1 / (z[i] * ix + w[i] * is);
+        double t = q * (mu * (is - ix) + dxa * (dza * ix + dwa * is));
+        double d = q * (xdy[i] - z[i] + w[i]) - t;
         dx[i] = d;
         dz[i] = -z[i] + (mu - z[i] * d - dxa * dza) * ix;
         dw[i] = -w[i] + (mu + w[i] * d + dxa * dwa) * is;
