@@ -552,7 +552,9 @@ KERNEL void rowdot(const double *restrict X, size_t ld, size_t p, const double *
 /* a chunk's slot: two p-vectors, the packed lower triangle of a p x p
  * matrix, then scalars */
 #define NSCAL 8
-#define SLOT (2 * PMAX + PMAX * (PMAX + 1) / 2 + NSCAL)
+/* rounded up to whole cache lines of 64 bytes, so that two chunks' slots
+ * never share one (threads writing to one line slow each other down) */
+#define SLOT ((2 * PMAX + PMAX * (PMAX + 1) / 2 + NSCAL + 7) / 8 * 8)
 enum { S_GAP = SLOT - NSCAL, S_AP, S_AD, S_S1, S_S2, S_S3 }; /* offsets of the scalars */
 
 typedef struct fnwork {
@@ -560,6 +562,13 @@ typedef struct fnwork {
     double *x, *s, *z, *w, *dx, *dz, *dw;
     double *part;
 } fnwork;
+
+/* Memory starting on a cache line (64 bytes): a chunk of FN_CH doubles
+ * then covers whole lines, and no line is written by two threads. */
+static void *lines_alloc(size_t bytes)
+{
+    return aligned_alloc(64, (bytes + 63) / 64 * 64);
+}
 
 static void fnwork_free(fnwork *f)
 {
@@ -581,11 +590,11 @@ static int fnwork_reserve(fnwork *f, size_t m)
     fnwork_free(f);
     double **arr[] = {&f->x, &f->s, &f->z, &f->w, &f->dx, &f->dz, &f->dw};
     for (size_t i = 0; i < sizeof arr / sizeof *arr; i++)
-        if (!(*arr[i] = malloc(m * sizeof(double)))) {
+        if (!(*arr[i] = lines_alloc(m * sizeof(double)))) {
             fnwork_free(f);
             return -1;
         }
-    if (!(f->part = malloc(nch * SLOT * sizeof(double)))) {
+    if (!(f->part = lines_alloc(nch * SLOT * sizeof(double)))) {
         fnwork_free(f);
         return -1;
     }
@@ -976,7 +985,8 @@ typedef struct chunkout {
     double *cand;
     size_t ncand, cap;
     int nonfinite, oom;
-} chunkout;
+    char pad[64 - (2 * (PMAX + 1) * sizeof(ksum) + 5 * sizeof(size_t) + sizeof(double *) + 2 * sizeof(int)) % 64];
+} chunkout; /* a whole number of cache lines (see lines_alloc) */
 
 typedef struct dpass {
     const design *d;
@@ -1222,14 +1232,14 @@ static void run_data(void *ctx, size_t c)
     dpass *P = ctx;
     size_t n = P->d->n, i0 = c * DATA_CH, e = n - i0 < DATA_CH ? n : i0 + DATA_CH;
     if (P->mode == PASS_CHECK) {
-        size_t *bad = &P->cbad[c];
-        *bad = 0;
+        size_t bad = 0; /* counted here, stored once: the chunks' counts share cache lines */
         for (size_t b = i0; b < e; b += OBJ_BLK) {
             if (e - b >= OBJ_BLK)
-                k_check(P, b, OBJ_BLK, bad);
+                k_check(P, b, OBJ_BLK, &bad);
             else
-                k_check(P, b, e - b, bad);
+                k_check(P, b, e - b, &bad);
         }
+        P->cbad[c] = bad;
         return;
     }
     chunkout *o = &P->out[c];
@@ -1253,7 +1263,7 @@ static int check_pass(const design *d, double tau, const double *coef, unsigned 
                       double *objective)
 {
     size_t nch = data_chunks(d->n);
-    double *objblk = malloc(((d->n + OBJ_BLK - 1) / OBJ_BLK) * sizeof *objblk);
+    double *objblk = lines_alloc(((d->n + OBJ_BLK - 1) / OBJ_BLK) * sizeof *objblk);
     size_t *cbad = malloc(nch * sizeof *cbad);
     if (!objblk || !cbad) {
         free(objblk);
@@ -1471,9 +1481,11 @@ static int fit_pre(design *d, double tau, double eps, int maxit, unsigned long s
 {
     int rc = ETACAL_OK;
     size_t n = d->n, p = d->p, k = d->k, nch = data_chunks(n), nwords = (n + 63) / 64;
-    unsigned char *flags = malloc(n);
+    unsigned char *flags = lines_alloc(n);
     uint64_t *bits = malloc(nwords * sizeof *bits);
-    chunkout *co = calloc(nch, sizeof *co);
+    chunkout *co = lines_alloc(nch * sizeof *co);
+    if (co)
+        memset(co, 0, nch * sizeof *co);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     double *Xs = NULL, *Ys = NULL, *Xr = NULL, *Yr = NULL, *sel = NULL, *ratio = NULL;
     if (!flags || !bits || !co || !rng) {
