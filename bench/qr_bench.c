@@ -2,10 +2,10 @@
 /* qr_bench.c: times etacal's quantile regression fit alone (no file
  * reading) on seeded data, and can write the same data as CSV for the
  * reference solvers (R's quantreg, statsmodels).
- *   qr_bench N P TAU [--csv FILE] [--reps R]
+ *   qr_bench N P TAU [--csv FILE] [--reps R] [--threads T] [--seed S]
  * N rows, P covariates; y = 1500 + sum b_j x_j + (60 + 20|x_1|) e, rounded
  * to whole seconds (many ties, as real durations have).  Prints one line:
- *   n p tau seconds(min of R runs) objective iterations coef-checksum */
+ *   n p tau seconds(min of R runs) objective iterations coef-checksum solves */
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
@@ -27,19 +27,24 @@ static double now(void)
 int main(int argc, char **argv)
 {
     if (argc < 4) {
-        fprintf(stderr, "usage: qr_bench N P TAU [--csv FILE] [--reps R]\n");
+        fprintf(stderr, "usage: qr_bench N P TAU [--csv FILE] [--reps R] [--threads T] [--seed S]\n");
         return 2;
     }
     gsl_set_error_handler_off();
     size_t n = (size_t)strtoull(argv[1], NULL, 10), p = (size_t)strtoul(argv[2], NULL, 10);
     double tau = strtod(argv[3], NULL);
     const char *csv = NULL;
-    int reps = 1;
+    int reps = 1, threads = 0;
+    unsigned long seed = 0;
     for (int i = 4; i + 1 < argc; i += 2) {
         if (strcmp(argv[i], "--csv") == 0)
             csv = argv[i + 1];
         else if (strcmp(argv[i], "--reps") == 0)
             reps = atoi(argv[i + 1]);
+        else if (strcmp(argv[i], "--threads") == 0)
+            threads = atoi(argv[i + 1]);
+        else if (strcmp(argv[i], "--seed") == 0)
+            seed = strtoul(argv[i + 1], NULL, 10);
     }
     if (p < 1 || p > ETACAL_QR_MAX_COVARIATES || n < 10)
         return 2;
@@ -83,10 +88,13 @@ int main(int argc, char **argv)
     double best = INFINITY;
     etacal_qr_result res;
     unsigned long long sum = 0;
+    etacal_qr_opts opts = {0};
+    opts.threads = threads;
+    opts.seed = seed;
     for (int k = 0; k < reps; k++) {
         etacal_error err;
         double t0 = now();
-        if (etacal_qr_fit(y, (const double *const *)x, p, NULL, n, tau, NULL, NULL, &res, &err) != ETACAL_OK) {
+        if (etacal_qr_fit(y, (const double *const *)x, p, NULL, n, tau, NULL, &opts, &res, &err) != ETACAL_OK) {
             fprintf(stderr, "qr_bench: %s\n", err.msg);
             return 1;
         }
@@ -105,7 +113,7 @@ int main(int argc, char **argv)
         }
         sum = s;
     }
-    printf("%zu %zu %g %.4f %.17g %d %016llx\n", n, p, tau, best, res.objective, res.iterations, sum);
+    printf("%zu %zu %g %.4f %.17g %d %016llx %d\n", n, p, tau, best, res.objective, res.iterations, sum, res.solves);
     for (size_t j = 0; j < p; j++)
         free(x[j]);
     free(y);

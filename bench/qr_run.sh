@@ -5,7 +5,9 @@
 # user-level rq() formula call with "pfn") and statsmodels' QuantReg on the
 # same seeded data, in one run; prints a markdown table with the ratios and
 # the objectives.  etacal's time is the best of 3 fits, each checked to give
-# the same coefficients bit for bit.  Run from the repo root after `make`:
+# the same coefficients bit for bit, with the default threads (one per CPU)
+# and with one thread (the two must agree bit for bit too).  Run from the
+# repo root after `make`:
 #   bash bench/qr_run.sh          (needs r-cran-quantreg, python3-statsmodels
 #                                   for the reference columns; skips them if missing)
 set -euo pipefail
@@ -50,18 +52,21 @@ PY
 tau=0.9
 echo "## quantile regression fit, tau $tau, $(date -u +%Y-%m-%dT%H:%M:%SZ)"
 echo
-echo "| n | p | etacal s | rq.fit fn s | rq.fit pfn s | rq(pfn) s | statsmodels s | fastest rq.fit / etacal | rq(pfn) / etacal | etacal objective | R objective (best) | statsmodels objective |"
-echo "| ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: |"
-for case in "100000 3" "1000000 3" "1000000 10" "10000000 3"; do
+echo "| n | p | etacal s | etacal 1 thread s | same bits | rq.fit fn s | rq.fit pfn s | rq(pfn) s | statsmodels s | fastest rq.fit / etacal | rq(pfn) / etacal | etacal objective | R objective (best) | statsmodels objective |"
+echo "| ---: | ---: | ---: | ---: | :---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: |"
+for case in "100000 3" "1000000 3" "1000000 10" "10000000 3" "10000000 10"; do
     read -r n p <<<"$case"
     csv="$B/qr-$n-$p.csv"
     want_ref=1
     [[ $n -gt 1000000 ]] && want_ref=0
     if [[ $want_ref = 1 && ! -f $csv ]]; then
-        read -r _ _ _ et eo _ _ < <("$B/qr_bench" "$n" "$p" "$tau" --reps 3 --csv "$csv")
+        read -r _ _ _ et eo _ ck _ < <("$B/qr_bench" "$n" "$p" "$tau" --reps 3 --csv "$csv")
     else
-        read -r _ _ _ et eo _ _ < <("$B/qr_bench" "$n" "$p" "$tau" --reps 3)
+        read -r _ _ _ et eo _ ck _ < <("$B/qr_bench" "$n" "$p" "$tau" --reps 3)
     fi
+    read -r _ _ _ et1 _ _ ck1 _ < <("$B/qr_bench" "$n" "$p" "$tau" --reps 3 --threads 1)
+    same=no
+    [[ $ck = "$ck1" ]] && same=yes
     fn=- pfn=- smt=- ro=- so=- ratio=- rq=- ratio2=-
     if [[ $want_ref = 1 && $have_r = 1 ]]; then
         read -r pfn pfo < <(rfit "$csv" pfn "$tau")
@@ -80,5 +85,5 @@ for case in "100000 3" "1000000 3" "1000000 10" "10000000 3"; do
         read -r smt so < <(smfit "$csv" "$tau")
         smt=$(printf '%.2f' "$smt")
     fi
-    echo "| $n | $p | $et | $fn | $pfn | $rq | $smt | $ratio | $ratio2 | $eo | $ro | $so |"
+    echo "| $n | $p | $et | $et1 | $same | $fn | $pfn | $rq | $smt | $ratio | $ratio2 | $eo | $ro | $so |"
 done

@@ -23,6 +23,14 @@ typedef struct etacal_qr_opts {
     int maxit;           /* Newton iterations per solve; 0 means 500 */
     int preprocess;      /* 0: auto (on for n > 20000), 1: on, 2: off */
     unsigned long seed;  /* of the preprocessing subsamples */
+    /* Threads for the passes over the rows: 0 (default) one per online CPU
+     * (at most 8), 1 the calling thread only, n at most n.  Fits of fewer
+     * than 16,384 rows always run on the calling thread, and a fit whose
+     * helper threads are held up (the CPUs busy with other work) goes on
+     * with the calling thread alone.  The rows are cut into chunks of a
+     * fixed size and the chunks' sums added in a fixed order, so the answer
+     * is the same bit for bit whatever the number.  Negative: an error. */
+    int threads;
 } etacal_qr_opts;
 
 typedef struct etacal_qr_result {
@@ -42,7 +50,10 @@ typedef struct etacal_qr_result {
  * optional non-negative weights w (NULL for none).  names[j] names covariate
  * j in messages (may be NULL).  Errors: tau outside (0,1), n <= k, non-finite
  * data or a negative weight, a constant covariate or one that is a linear
- * combination of others (the message names it), no convergence. */
+ * combination of others (the message names it), no convergence, a negative
+ * opts->threads.  With preprocessing (large n) the data are checked on a
+ * subsample and in the passes over all rows; a bad value anywhere gives the
+ * same message as without. */
 int etacal_qr_fit(const double *y, const double *const *x, size_t k, const double *w, size_t n, double tau,
                   const char *const *names, const etacal_qr_opts *opts, etacal_qr_result *out,
                   etacal_error *err);
