@@ -5,14 +5,14 @@
  * calibration chart, measures them on the held-out rows, runs the backtest
  * when there is a time column, and hands the results to
  * etacal_report_write_html.  No statistics here. */
-#include "cli.h"
+#include "fitargs.h"
 
 #include <getopt.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
-#define MAX_KEYS 16
+#define MAX_KEYS FIT_MAX_KEYS
 #define MAX_LEVELS 128
 
 static const char help[] =
@@ -92,68 +92,29 @@ static int cmp_double(const void *a, const void *b)
 
 static int run(int argc, char **argv, const char *cmdline)
 {
-    enum { O_ACTUAL = 256, O_PRED, O_BY, O_TARGET, O_METHOD, O_MINROWS, O_X, O_SPLIT, O_SEED, O_HOLDOUT, O_TIME,
-           O_WINDOW, O_EVERY, O_TITLE, O_HALFLIFE };
+    /* the options it shares with fit (fitargs.h), and its own */
+    enum { O_TARGET1 = 700, O_WINDOW, O_EVERY, O_TITLE };
     static const struct option longopts[] = {
-        {"actual", required_argument, 0, O_ACTUAL},   {"pred", required_argument, 0, O_PRED},
-        {"by", required_argument, 0, O_BY},           {"target", required_argument, 0, O_TARGET},
-        {"method", required_argument, 0, O_METHOD},   {"min-rows", required_argument, 0, O_MINROWS},
-        {"x", required_argument, 0, O_X},             {"split", required_argument, 0, O_SPLIT},
-        {"seed", required_argument, 0, O_SEED},       {"holdout", required_argument, 0, O_HOLDOUT},
-        {"time", required_argument, 0, O_TIME},       {"window", required_argument, 0, O_WINDOW},
-        {"every", required_argument, 0, O_EVERY},     {"title", required_argument, 0, O_TITLE},
-        {"half-life", required_argument, 0, O_HALFLIFE},
-        {"output", required_argument, 0, 'o'},        READ_OPTIONS,
-        {"help", no_argument, 0, 'h'},                {0, 0, 0, 0}};
-    const char *actual = NULL, *pred = NULL, *timecol = NULL, *output = NULL, *title = NULL;
-    char *keys[MAX_KEYS], *xs[ETACAL_QR_MAX_COVARIATES];
-    size_t nkeys = 0, nx = 0, seed = 1, min_rows = 200;
-    double target = 0.9, split = 0.5, holdout = 0.2, window = 28 * 86400.0, every = 86400.0, halflife = 0;
-    int method = ETACAL_METHOD_ADD, c;
-    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
+        {"target", required_argument, 0, O_TARGET1}, /* before FIT_OPTIONS': one target only */
+        FIT_OPTIONS,
+        {"window", required_argument, 0, O_WINDOW},  {"every", required_argument, 0, O_EVERY},
+        {"title", required_argument, 0, O_TITLE},    {"output", required_argument, 0, 'o'},
+        READ_OPTIONS,                                {"help", no_argument, 0, 'h'},
+        {0, 0, 0, 0}};
+    fit_args a;
+    fit_args_init(&a);
+    a.holdout = 0.2;
+    const char *output = NULL, *title = NULL;
+    double target = 0.9, window = 28 * 86400.0, every = 86400.0;
+    int c;
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
         switch (c) {
-        case O_ACTUAL: actual = optarg; break;
-        case O_PRED: pred = optarg; break;
-        case O_BY:
-            nkeys = 0;
-            if (parse_names(optarg, keys, &nkeys, MAX_KEYS) != 0)
-                return usage_error("report", "--by takes up to %d comma-separated column names", MAX_KEYS);
-            break;
-        case O_TARGET:
+        case O_TARGET1:
             if (parse_share(optarg, &target) != 0 || !(target > 0 && target < 1))
                 return usage_error("report", "--target takes one on-time rate in (0,1), such as 0.9");
             break;
-        case O_METHOD:
-            method = etacal_method_parse(optarg);
-            if (method < 0)
-                return usage_error("report", "--method must be add, ratio or qr, not '%s'", optarg);
-            break;
-        case O_MINROWS:
-            if (parse_size(optarg, &min_rows) != 0 || min_rows == 0)
-                return usage_error("report", "--min-rows takes a whole number >= 1");
-            break;
-        case O_X:
-            nx = 0;
-            if (parse_names(optarg, xs, &nx, ETACAL_QR_MAX_COVARIATES - 1) != 0)
-                return usage_error("report", "--x takes up to %d comma-separated column names",
-                                   ETACAL_QR_MAX_COVARIATES - 1);
-            break;
-        case O_SPLIT:
-            if (parse_share(optarg, &split) != 0 || !(split > 0 && split < 1))
-                return usage_error("report", "--split takes a share in (0,1)");
-            break;
-        case O_SEED:
-            if (parse_size(optarg, &seed) != 0)
-                return usage_error("report", "--seed takes a whole number");
-            break;
-        case O_HOLDOUT:
-            if (parse_share(optarg, &holdout) != 0 || !(holdout > 0 && holdout < 1))
-                return usage_error("report", "--holdout takes a share in (0,1), such as 0.2");
-            break;
-        case O_TIME: timecol = optarg; break;
         case O_WINDOW:
         case O_EVERY: {
             double v;
@@ -163,14 +124,12 @@ static int run(int argc, char **argv, const char *cmdline)
             break;
         }
         case O_TITLE: title = optarg; break;
-        case O_HALFLIFE:
-            if (parse_duration(optarg, &halflife) != 0 || !(halflife > 0))
-                return usage_error("report", "--half-life takes a duration such as 7d, 36h, 90m or 3600 (seconds)");
-            break;
         case 'o': output = optarg; break;
         case 'h': fputs(help, stdout); return 0;
         default: {
-            int r = other_option(c, "report", &ro, argv);
+            int r = fit_option(c, "report", &a);
+            if (r < 0)
+                r = other_option(c, "report", &a.ro, argv);
             if (r)
                 return r;
             break;
@@ -180,23 +139,19 @@ static int run(int argc, char **argv, const char *cmdline)
     int nin = one_input(argc, argv, "report", "calibration file");
     if (nin)
         return nin;
-    if (!actual || !pred)
-        return usage_error("report", "--actual and --pred are required");
-    if (strcmp(actual, pred) == 0)
-        return usage_error("report", "--actual and --pred name the same column");
-    if (nx && method != ETACAL_METHOD_QR)
-        return usage_error("report", "--x goes with --method qr");
-    for (size_t j = 0; j < nkeys; j++) {
-        if (strcmp(keys[j], actual) == 0 || strcmp(keys[j], pred) == 0 || (timecol && strcmp(keys[j], timecol) == 0))
-            return usage_error("report", "'%s' cannot be both a key and a number column", keys[j]);
-        for (size_t i = 0; i < j; i++)
-            if (strcmp(keys[i], keys[j]) == 0)
-                return usage_error("report", "--by names '%s' twice", keys[j]);
-    }
-    if (halflife > 0 && !timecol)
-        return usage_error("report", "--half-life needs --time (the age of each row)");
-    if (timecol && (strcmp(timecol, actual) == 0 || strcmp(timecol, pred) == 0))
-        return usage_error("report", "--time '%s' is already the actual or the prediction", timecol);
+    if (a.confidence > 0)
+        return usage_error("report", "--confidence is not offered by report (use etacal fit or curve)");
+    a.ntargets = 1;
+    a.targets[0] = target;
+    int u = fit_args_check(&a, "report");
+    if (u)
+        return u;
+    const char *actual = a.actual, *pred = a.pred, *timecol = a.timecol;
+    char **keys = a.keys, **xs = a.xs;
+    size_t nkeys = a.nkeys, nx = a.nx, seed = a.seed, min_rows = a.min_rows;
+    double split = a.split, holdout = a.holdout, halflife = a.halflife;
+    int method = a.method;
+    etacal_read_opts ro = a.ro;
     const char *path = argv[optind];
 
     /* the targets: the cost-curve grid, the calibration levels and the target */
