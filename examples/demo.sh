@@ -5,7 +5,8 @@
 # seed).  Fit a quote table on four weeks of delivered orders, promise the
 # next week's orders with it, show the on-time rate reached next to that of
 # the bare prediction, and check the promises per zone with their
-# confidence intervals, and write the report page.
+# confidence intervals, write the report page, publish a table as the
+# nightly job would and show a guard refusing a thin night.
 set -eu
 build=${1:-build}
 etacal=$build/etacal
@@ -41,6 +42,25 @@ echo "== 5. etacal report: the evidence on one HTML page (charts, tables, no scr
 echo "\$ etacal report $demo/cal.csv --actual actual_s --pred pred_s --by zone,band --time placed_at --window 14d -o $demo/report.html"
 "$etacal" report "$demo/cal.csv" --actual actual_s --pred pred_s --by zone,band --time placed_at --window 14d \
     --title "Veldmark couriers: promise report" -o "$demo/report.html"
+
+echo
+echo "== 6. etacal publish: the nightly job, which replaces a table only when every guard holds"
+pub=$demo/published
+rm -rf "$pub"
+mkdir -p "$pub"
+opts="--actual actual_s --pred pred_s --by zone,band --time placed_at --holdout 0.2 --require-holdout"
+echo "\$ etacal publish $demo/cal.csv --table $pub/quotes.csv $opts -q"
+# shellcheck disable=SC2086
+"$etacal" publish "$demo/cal.csv" --table "$pub/quotes.csv" $opts -q
+echo "first table published: $pub/quotes.csv, provenance in $pub/quotes.csv.meta.json"
+echo "A night with only one week of data, as a dry run (a guard should refuse it):"
+echo "\$ etacal publish $demo/fresh.csv --table $pub/quotes.csv $opts --max-change 5m --show 5 --dry-run"
+status=0
+# shellcheck disable=SC2086
+"$etacal" publish "$demo/fresh.csv" --table "$pub/quotes.csv" $opts --max-change 5m --show 5 --dry-run || status=$?
+echo "exit status $status (3: refused by a guard; the published table is unchanged)"
+[ "$status" = 3 ] || { echo "demo: expected the change guard to refuse"; exit 1; }
+
 echo
 echo "Quote table: $demo/quotes.csv"
 echo "Report: $demo/report.html (open it in any browser; it needs no network)"

@@ -863,6 +863,7 @@ report:;
             putchar('\n');
         }
     }
+    fflush(stdout); /* the report before the lines on stderr */
     if (report_bad) {
         fprintf(stderr, "etacal: publish: out of memory: the change report is incomplete%s\n",
                 refused || po.dry_run ? "; nothing replaced" : "; the table is published");
