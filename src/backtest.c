@@ -59,14 +59,11 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
         pd->end = pd->start + o->every_s;
         pd->level = level;
         pd->mean_buffer = NAN;
-        double newest = -INFINITY;
         for (size_t i = 0; i < n; i++) {
             fitm[i] = tm[i] >= pd->start - o->window_s && tm[i] < pd->start;
             evm[i] = tm[i] >= pd->start && tm[i] < pd->end;
             pd->calib += fitm[i];
             pd->n += evm[i];
-            if (fitm[i] && tm[i] > newest)
-                newest = tm[i];
         }
         if (pd->n == 0)
             continue;
@@ -77,9 +74,11 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
         } else {
             if (lv < 0.001)
                 lv = 0.001;
-            if (w)
+            if (w) {
+                etacal_recency_weights(tm, n, fitm, o->half_life_s, w);
                 for (size_t i = 0; i < n; i++)
-                    w[i] = fitm[i] ? exp2(-(newest - tm[i]) / o->half_life_s) : 0;
+                    w[i] = fitm[i] ? w[i] : 0;
+            }
             etacal_fit_opts fo = {o->method, &lv, 1, o->min_rows, o->x_cols, o->nx, o->split, o->seed,
                                   o->confidence, fitm, w};
             etacal_quotes *q = NULL;

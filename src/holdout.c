@@ -6,6 +6,7 @@
 #include "internal.h"
 
 #include <gsl/gsl_rng.h>
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -162,4 +163,15 @@ size_t etacal_holdout_mask(const etacal_table *t, long time_col, double share, u
         }
     gsl_rng_free(r);
     return held;
+}
+
+void etacal_recency_weights(const double *time, size_t n, const unsigned char *mask, double half_life,
+                            double *w)
+{
+    double newest = -INFINITY;
+    for (size_t i = 0; i < n; i++)
+        if ((!mask || mask[i]) && time[i] > newest)
+            newest = time[i];
+    for (size_t i = 0; i < n; i++)
+        w[i] = exp2(-(newest - time[i]) / half_life);
 }

@@ -183,6 +183,12 @@ int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, et
 
 void etacal_quotes_destroy(etacal_quotes *q);
 
+/* Recency weights for etacal_fit_opts.weights: w[i] = 2^(-age_i / half_life)
+ * with age_i = newest - time[i], newest the latest time among the rows with
+ * mask[i] != 0 (NULL: all rows), so the newest row fitted on weighs 1. */
+void etacal_recency_weights(const double *time, size_t n, const unsigned char *mask, double half_life,
+                            double *w);
+
 /* Index of the target equal to tau, or -1. */
 long etacal_quotes_find_target(const etacal_quotes *q, double tau);
 

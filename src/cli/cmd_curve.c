@@ -4,7 +4,7 @@
  * then on the held-out rows: the on-time rate reached (Wilson interval), the
  * mean promise and the mean time added to the bare prediction, overall and
  * per segment.  The text view marks the marginal cost of each extra point. */
-#include "cli.h"
+#include "fitargs.h"
 
 #include <getopt.h>
 #include <jansson.h>
@@ -169,21 +169,9 @@ int cmd_curve(int argc, char **argv)
     if (rc)
         return report_error(&err);
     size_t n = etacal_table_rows(t);
-    mask = malloc(n ? n : 1);
-    if (!mask) {
-        etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+    size_t held = 0;
+    if (holdout_rows(t, time_col, holdout, seed, path, &mask, &held, &err) != 0)
         goto fail;
-    }
-    size_t held = etacal_holdout_mask(t, time_col, holdout, (unsigned long)seed, mask);
-    if (held == ETACAL_HOLDOUT_NOMEM) {
-        etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
-        goto fail;
-    }
-    if (held == 0 || held == n) {
-        etacal_error_set(&err, ETACAL_ENUM, path, "--holdout %g leaves %s rows to %s", holdout, held ? "all" : "no",
-                         held ? "fit on" : "hold out");
-        goto fail;
-    }
     etacal_fit_opts fo = {method, targets, nt, min_rows, x_cols, nx, split, (unsigned long)seed, confidence, mask, NULL};
     if ((rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err)) != 0)
         goto fail;

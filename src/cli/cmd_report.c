@@ -208,21 +208,9 @@ static int run(int argc, char **argv, const char *cmdline)
     if (rc)
         return report_error(&err);
     size_t n = etacal_table_rows(t);
-    mask = malloc(n ? n : 1);
-    if (!mask) {
-        etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+    size_t held = 0;
+    if (holdout_rows(t, time_col, holdout, seed, path, &mask, &held, &err) != 0)
         goto fail;
-    }
-    size_t held = etacal_holdout_mask(t, time_col, holdout, (unsigned long)seed, mask);
-    if (held == ETACAL_HOLDOUT_NOMEM) {
-        etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
-        goto fail;
-    }
-    if (held == 0 || held == n) {
-        etacal_error_set(&err, ETACAL_ENUM, path, "--holdout %g leaves %s rows to %s", holdout, held ? "all" : "no",
-                         held ? "fit on" : "hold out");
-        goto fail;
-    }
     /* the levels of the grids that the rows fitted on can bound (n >= tau/(1-tau)); the chosen target
      * stays, and says so itself when it cannot be met */
     w = 0;
@@ -232,20 +220,12 @@ static int run(int argc, char **argv, const char *cmdline)
     nt = w;
     etacal_fit_opts fo = {method, targets, nt, min_rows, x_cols, nx, split, (unsigned long)seed, 0, mask, NULL};
     if (halflife > 0) {
-        /* recency weights as etacal fit --half-life gives them: 2^(-age/D),
-         * the newest row fitted on having weight 1 */
-        const double *tm = etacal_table_num(t, (size_t)time_col);
-        double newest = -INFINITY;
-        for (size_t i = 0; i < n; i++)
-            if (mask[i] && tm[i] > newest)
-                newest = tm[i];
         wts = malloc((n ? n : 1) * sizeof *wts);
         if (!wts) {
             etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
             goto fail;
         }
-        for (size_t i = 0; i < n; i++)
-            wts[i] = exp2(-(newest - tm[i]) / halflife);
+        etacal_recency_weights(etacal_table_num(t, (size_t)time_col), n, mask, halflife, wts);
         fo.weights = wts;
     }
     rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err);

@@ -404,6 +404,22 @@ int fit_args_check(fit_args *a, const char *cmd)
     return 0;
 }
 
+int holdout_rows(const etacal_table *t, long time_col, double share, size_t seed, const char *path,
+                 unsigned char **mask, size_t *held, etacal_error *err)
+{
+    size_t n = etacal_table_rows(t);
+    *mask = malloc(n ? n : 1);
+    if (!*mask)
+        return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+    *held = etacal_holdout_mask(t, time_col, share, (unsigned long)seed, *mask);
+    if (*held == ETACAL_HOLDOUT_NOMEM)
+        return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+    if (*held == 0 || *held == n)
+        return etacal_error_set(err, ETACAL_ENUM, path, "--holdout %g leaves %s rows to %s", share,
+                                *held == 0 ? "no" : "all", *held == 0 ? "hold out" : "fit on");
+    return ETACAL_OK;
+}
+
 int fit_run(const fit_args *a, const char *path, fit_result *r, etacal_error *err)
 {
     etacal_colspec cols[3 + MAX_KEYS + ETACAL_QR_MAX_COVARIATES];
@@ -440,30 +456,17 @@ int fit_run(const fit_args *a, const char *path, fit_result *r, etacal_error *er
                           (unsigned long)a->seed, a->confidence, NULL, NULL};
     size_t n = etacal_table_rows(r->t);
     if (a->holdout > 0) {
-        r->mask = malloc(n ? n : 1);
-        if (!r->mask)
-            return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-        r->held = etacal_holdout_mask(r->t, r->time_col, a->holdout, (unsigned long)a->seed, r->mask);
-        if (r->held == ETACAL_HOLDOUT_NOMEM)
-            return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-        if (r->held == 0 || r->held == n)
-            return etacal_error_set(err, ETACAL_ENUM, path, "--holdout %g leaves %s rows to %s", a->holdout,
-                                    r->held == 0 ? "no" : "all", r->held == 0 ? "hold out" : "fit on");
+        int hr = holdout_rows(r->t, r->time_col, a->holdout, a->seed, path, &r->mask, &r->held, err);
+        if (hr)
+            return hr;
         fo.mask = r->mask;
     }
     double *wts = NULL;
     if (a->halflife > 0) {
-        /* recency weights, the newest row of the fit having weight 1 */
-        const double *tm = etacal_table_num(r->t, (size_t)r->time_col);
-        double newest = -INFINITY;
-        for (size_t i = 0; i < n; i++)
-            if ((!r->mask || r->mask[i]) && tm[i] > newest)
-                newest = tm[i];
         wts = malloc((n ? n : 1) * sizeof *wts);
         if (!wts)
             return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-        for (size_t i = 0; i < n; i++)
-            wts[i] = exp2(-(newest - tm[i]) / a->halflife);
+        etacal_recency_weights(etacal_table_num(r->t, (size_t)r->time_col), n, r->mask, a->halflife, wts);
         fo.weights = wts;
     }
     rc = etacal_quotes_fit(r->t, 0, 1, r->key_cols, a->nkeys, &fo, &r->q, err);

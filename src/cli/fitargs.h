@@ -74,6 +74,12 @@ typedef struct fit_result {
     etacal_holdout ho;       /* with --holdout: on-time rates on them */
 } fit_result;
 
+/* The held-out rows of t (etacal_holdout_mask) in a new *mask (the
+ * caller's to free, also after an error): an error when memory runs out or
+ * the share leaves no row on one side. */
+int holdout_rows(const etacal_table *t, long time_col, double share, size_t seed, const char *path,
+                 unsigned char **mask, size_t *held, etacal_error *err);
+
 /* Reads path (columns: actual 0, pred 1, keys, covariates, time) and fits. */
 int fit_run(const fit_args *a, const char *path, fit_result *r, etacal_error *err);
 void fit_result_free(fit_result *r);

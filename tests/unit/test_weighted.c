@@ -136,12 +136,30 @@ static void test_drift(void **state)
     free(w);
 }
 
+/* Recency weights 2^(-age/half-life), by hand: ages of 2, 1 and 0 half-lives
+ * give 1/4, 1/2 and 1; with the newest row masked out, the newest kept row
+ * weighs 1 and the later one 2. */
+static void test_recency_weights(void **state)
+{
+    (void)state;
+    const double t[3] = {0, 86400, 172800};
+    double w[3];
+    etacal_recency_weights(t, 3, NULL, 86400, w);
+    assert_true(w[0] == 0.25 && w[1] == 0.5 && w[2] == 1);
+    const unsigned char mask[3] = {1, 1, 0};
+    etacal_recency_weights(t, 3, mask, 86400, w);
+    assert_true(w[0] == 0.5 && w[1] == 1 && w[2] == 2);
+    etacal_recency_weights(t, 3, NULL, 43200, w);
+    assert_true(w[0] == 0.0625 && w[1] == 0.25 && w[2] == 1);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_hand_example),
         cmocka_unit_test(test_equal_weights),
         cmocka_unit_test(test_drift),
+        cmocka_unit_test(test_recency_weights),
     };
     return cmocka_run_group_tests_name("weighted", tests, NULL, NULL);
 }
