@@ -1019,16 +1019,11 @@ static int cand_push(chunkout *o, size_t rec, const double *v)
     return 0;
 }
 
-/* Ratio residual / band of the pilot fit for a block of rows, with the
- * centred covariates in D (k rows of VB). */
-KERNEL void block_ratio(const dpass *P, size_t i0, size_t n, double D[][VB], double *restrict wv,
-                        double *restrict ratio, double *nfacc)
+/* A block of n rows from i0: the centred covariates into D (k rows of VB)
+ * and the weights (1 without weights) into wv. */
+KERNEL void load_block(const design *d, size_t i0, size_t n, double D[][VB], double *restrict wv)
 {
-    const design *d = P->d;
-    size_t k = d->k, p = d->p;
-    double fit[VB], b2[VB], r[VB];
-    const double *restrict y = d->y + i0;
-    for (size_t j = 0; j < k; j++) {
+    for (size_t j = 0; j < d->k; j++) {
         const double *restrict xj = d->x[j] + i0;
         double mj = d->mean[j + 1];
         for (size_t i = 0; i < n; i++)
@@ -1040,6 +1035,18 @@ KERNEL void block_ratio(const dpass *P, size_t i0, size_t n, double D[][VB], dou
     else
         for (size_t i = 0; i < n; i++)
             wv[i] = 1;
+}
+
+/* Ratio residual / band of the pilot fit for a block of rows, with the
+ * centred covariates in D (k rows of VB). */
+KERNEL void block_ratio(const dpass *P, size_t i0, size_t n, double D[][VB], double *restrict wv,
+                        double *restrict ratio, double *nfacc)
+{
+    const design *d = P->d;
+    size_t k = d->k, p = d->p;
+    double fit[VB], b2[VB], r[VB];
+    const double *restrict y = d->y + i0;
+    load_block(d, i0, n, D, wv);
     for (size_t i = 0; i < n; i++)
         fit[i] = P->bc[0];
     for (size_t j = 0; j < k; j++) {
@@ -1113,18 +1120,7 @@ KERNEL void k_split(const dpass *P, size_t i0, size_t n, chunkout *o)
     size_t k = d->k, p = d->p, rec = p + 3;
     double D[ETACAL_QR_MAX_COVARIATES][VB], wv[VB], ratio[VB], wl[VB], wh[VB], nfacc = 0;
     if (P->mode == PASS_FLAGS) {
-        for (size_t j = 0; j < k; j++) {
-            const double *restrict xj = d->x[j] + i0;
-            double mj = d->mean[j + 1];
-            for (size_t i = 0; i < n; i++)
-                D[j][i] = xj[i] - mj;
-        }
-        if (d->w)
-            for (size_t i = 0; i < n; i++)
-                wv[i] = d->w[i0 + i];
-        else
-            for (size_t i = 0; i < n; i++)
-                wv[i] = 1;
+        load_block(d, i0, n, D, wv);
         for (size_t i = 0; i < n; i++)
             ratio[i] = 0;
     } else {

@@ -12,7 +12,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-#define MAX_KEYS 16
+#define MAX_KEYS FIT_MAX_KEYS
 #define MAX_GRID 1000
 
 static const char help[] =
@@ -37,54 +37,24 @@ static const char help[] =
 
 int cmd_curve(int argc, char **argv)
 {
-    enum { O_ACTUAL = 256, O_PRED, O_BY, O_METHOD, O_FROM, O_TO, O_STEP, O_HOLDOUT, O_TIME, O_SEED, O_MINROWS,
-           O_FORMAT, O_X, O_SPLIT, O_CONF };
+    /* the options it shares with fit (fitargs.h), and its own */
+    enum { O_FROM = 700, O_TO, O_STEP, O_FORMAT };
     static const struct option longopts[] = {
-        {"actual", required_argument, 0, O_ACTUAL},   {"pred", required_argument, 0, O_PRED},
-        {"by", required_argument, 0, O_BY},           {"method", required_argument, 0, O_METHOD},
-        {"from", required_argument, 0, O_FROM},       {"to", required_argument, 0, O_TO},
-        {"step", required_argument, 0, O_STEP},       {"holdout", required_argument, 0, O_HOLDOUT},
-        {"time", required_argument, 0, O_TIME},       {"seed", required_argument, 0, O_SEED},
-        {"min-rows", required_argument, 0, O_MINROWS}, {"format", required_argument, 0, O_FORMAT},
-        {"output", required_argument, 0, 'o'},        {"x", required_argument, 0, O_X},             {"split", required_argument, 0, O_SPLIT},
-        {"confidence", required_argument, 0, O_CONF}, READ_OPTIONS, {"help", no_argument, 0, 'h'},
-        {0, 0, 0, 0}};
-    const char *actual = NULL, *pred = NULL, *timecol = NULL, *output = NULL, *format = "text";
-    char *keys[MAX_KEYS], *xs[ETACAL_QR_MAX_COVARIATES];
-    size_t nkeys = 0, seed = 1, min_rows = 200, nx = 0;
-    double from = 0.5, to = 0.99, step = 0.01, holdout = 0.2, split = 0.5, confidence = 0;
-    int method = ETACAL_METHOD_ADD, c;
-    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
+        FIT_OPTIONS,
+        {"from", required_argument, 0, O_FROM},     {"to", required_argument, 0, O_TO},
+        {"step", required_argument, 0, O_STEP},     {"format", required_argument, 0, O_FORMAT},
+        {"output", required_argument, 0, 'o'},      READ_OPTIONS,
+        {"help", no_argument, 0, 'h'},              {0, 0, 0, 0}};
+    fit_args a;
+    fit_args_init(&a);
+    a.holdout = 0.2;
+    const char *output = NULL, *format = "text";
+    double from = 0.5, to = 0.99, step = 0.01;
+    int c;
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
         switch (c) {
-        case O_ACTUAL: actual = optarg; break;
-        case O_PRED: pred = optarg; break;
-        case O_BY:
-            nkeys = 0;
-            if (parse_names(optarg, keys, &nkeys, MAX_KEYS) != 0)
-                return usage_error("curve", "--by takes up to %d comma-separated column names", MAX_KEYS);
-            break;
-        case O_METHOD:
-            method = etacal_method_parse(optarg);
-            if (method < 0)
-                return usage_error("curve", "--method must be add, ratio or qr");
-            break;
-        case O_X:
-            nx = 0;
-            if (parse_names(optarg, xs, &nx, ETACAL_QR_MAX_COVARIATES - 1) != 0)
-                return usage_error("curve", "--x takes up to %d comma-separated column names",
-                                   ETACAL_QR_MAX_COVARIATES - 1);
-            break;
-        case O_SPLIT:
-            if (parse_share(optarg, &split) != 0 || !(split > 0 && split < 1))
-                return usage_error("curve", "--split takes a share in (0,1)");
-            break;
-        case O_CONF:
-            if (parse_share(optarg, &confidence) != 0 || !(confidence > 0 && confidence < 1))
-                return usage_error("curve", "--confidence takes a probability in (0,1)");
-            break;
         case O_FROM:
         case O_TO:
         case O_STEP: {
@@ -94,27 +64,18 @@ int cmd_curve(int argc, char **argv)
             *(c == O_FROM ? &from : c == O_TO ? &to : &step) = v;
             break;
         }
-        case O_HOLDOUT:
-            if (parse_share(optarg, &holdout) != 0 || !(holdout > 0 && holdout < 1))
-                return usage_error("curve", "--holdout takes a share in (0,1)");
-            break;
-        case O_TIME: timecol = optarg; break;
-        case O_SEED:
-            if (parse_size(optarg, &seed) != 0)
-                return usage_error("curve", "--seed takes a whole number");
-            break;
-        case O_MINROWS:
-            if (parse_size(optarg, &min_rows) != 0 || min_rows == 0)
-                return usage_error("curve", "--min-rows takes a whole number >= 1");
-            break;
         case O_FORMAT:
             if (parse_format(optarg, "curve", &format) != 0)
                 return EXIT_USAGE;
             break;
+        case FO_TARGET: return usage_error("curve", "curve takes a grid of targets: --from, --to, --step");
+        case FO_HALFLIFE: return usage_error("curve", "--half-life is not offered by curve (use etacal fit)");
         case 'o': output = optarg; break;
         case 'h': fputs(help, stdout); return 0;
         default: {
-            int r = other_option(c, "curve", &ro, argv);
+            int r = fit_option(c, "curve", &a);
+            if (r < 0)
+                r = other_option(c, "curve", &a.ro, argv);
             if (r)
                 return r;
             break;
@@ -124,39 +85,28 @@ int cmd_curve(int argc, char **argv)
     int nin = one_input(argc, argv, "curve", "calibration file");
     if (nin)
         return nin;
-    if (!actual || !pred)
-        return usage_error("curve", "--actual and --pred are required");
+    a.ntargets = 1; /* checked by fit_args_check; the grid below is the fit's */
+    a.targets[0] = 0.9;
+    int u = fit_args_check(&a, "curve");
+    if (u)
+        return u;
     if (from > to)
         return usage_error("curve", "--from must not be above --to");
-    if (nx && method != ETACAL_METHOD_QR)
-        return usage_error("curve", "--x goes with --method qr");
     static double targets[MAX_GRID];
     size_t nt = etacal_curve_grid(from, to, step, targets, MAX_GRID);
     if (nt == 0)
         return usage_error("curve", "the grid of targets is empty");
     const char *path = argv[optind];
+    const char *timecol = a.timecol;
+    char *const *keys = a.keys;
+    size_t nkeys = a.nkeys, nx = a.nx, seed = a.seed, min_rows = a.min_rows;
+    double split = a.split, holdout = a.holdout, confidence = a.confidence;
+    int method = a.method;
 
-    etacal_colspec cols[3 + MAX_KEYS + ETACAL_QR_MAX_COVARIATES];
-    unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
-    cols[0] = (etacal_colspec){actual, ETACAL_COL_NUM, flags, "duration"};
-    cols[1] = (etacal_colspec){pred, ETACAL_COL_NUM,
-                               flags | (method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u), "prediction"};
-    size_t key_cols[MAX_KEYS], ncol = 2;
-    for (size_t j = 0; j < nkeys; j++) {
-        cols[ncol] = (etacal_colspec){keys[j], ETACAL_COL_KEY, 0, NULL};
-        key_cols[j] = ncol++;
-    }
-    size_t x_cols[ETACAL_QR_MAX_COVARIATES];
-    for (size_t j = 0; j < nx; j++) {
-        cols[ncol] = (etacal_colspec){xs[j], ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE, "covariate"};
-        x_cols[j] = ncol++;
-    }
-    long time_col = -1;
-    if (timecol) {
-        cols[ncol] = (etacal_colspec){timecol, ETACAL_COL_NUM,
-                                      ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_TIME, "timestamp"};
-        time_col = (long)ncol++;
-    }
+    etacal_colspec cols[FIT_MAX_COLS];
+    size_t key_cols[MAX_KEYS], x_cols[ETACAL_QR_MAX_COVARIATES];
+    long time_col;
+    size_t ncol = fit_columns(&a, cols, key_cols, x_cols, &time_col);
     etacal_error err;
     etacal_error_clear(&err);
     etacal_table *t = NULL;
@@ -165,7 +115,7 @@ int cmd_curve(int argc, char **argv)
     etacal_curve cv = {0};
     etacal_outfile of = {0};
     unsigned char *mask = NULL;
-    int rc = etacal_table_read_csv(path, cols, ncol, &ro, &t, &err);
+    int rc = etacal_table_read_csv(path, cols, ncol, &a.ro, &t, &err);
     if (rc)
         return report_error(&err);
     size_t n = etacal_table_rows(t);

@@ -147,7 +147,6 @@ static int run(int argc, char **argv, const char *cmdline)
     if (u)
         return u;
     const char *actual = a.actual, *pred = a.pred, *timecol = a.timecol;
-    char **keys = a.keys, **xs = a.xs;
     size_t nkeys = a.nkeys, nx = a.nx, seed = a.seed, min_rows = a.min_rows;
     double split = a.split, holdout = a.holdout, halflife = a.halflife;
     int method = a.method;
@@ -166,26 +165,10 @@ static int run(int argc, char **argv, const char *cmdline)
             targets[w++] = targets[i];
     nt = w;
 
-    etacal_colspec cols[3 + MAX_KEYS + ETACAL_QR_MAX_COVARIATES];
-    unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
-    cols[0] = (etacal_colspec){actual, ETACAL_COL_NUM, flags, "duration"};
-    cols[1] = (etacal_colspec){pred, ETACAL_COL_NUM, flags | (method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u),
-                               "prediction"};
-    size_t key_cols[MAX_KEYS], x_cols[ETACAL_QR_MAX_COVARIATES], ncol = 2;
-    for (size_t j = 0; j < nkeys; j++) {
-        cols[ncol] = (etacal_colspec){keys[j], ETACAL_COL_KEY, 0, NULL};
-        key_cols[j] = ncol++;
-    }
-    for (size_t j = 0; j < nx; j++) {
-        cols[ncol] = (etacal_colspec){xs[j], ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE, "covariate"};
-        x_cols[j] = ncol++;
-    }
-    long time_col = -1;
-    if (timecol) {
-        cols[ncol] = (etacal_colspec){timecol, ETACAL_COL_NUM,
-                                      ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_TIME, "timestamp"};
-        time_col = (long)ncol++;
-    }
+    etacal_colspec cols[FIT_MAX_COLS];
+    size_t key_cols[MAX_KEYS], x_cols[ETACAL_QR_MAX_COVARIATES];
+    long time_col;
+    size_t ncol = fit_columns(&a, cols, key_cols, x_cols, &time_col);
     progress pg = {path, 0, -1};
     ro.progress = progress_cb;
     ro.progress_ud = &pg;
@@ -209,7 +192,7 @@ static int run(int argc, char **argv, const char *cmdline)
         return report_error(&err);
     size_t n = etacal_table_rows(t);
     size_t held = 0;
-    if (holdout_rows(t, time_col, holdout, seed, path, &mask, &held, &err) != 0)
+    if ((rc = holdout_rows(t, time_col, holdout, seed, path, &mask, &held, &err)) != 0)
         goto fail;
     /* the levels of the grids that the rows fitted on can bound (n >= tau/(1-tau)); the chosen target
      * stays, and says so itself when it cannot be met */
@@ -222,7 +205,7 @@ static int run(int argc, char **argv, const char *cmdline)
     if (halflife > 0) {
         wts = malloc((n ? n : 1) * sizeof *wts);
         if (!wts) {
-            etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+            rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
             goto fail;
         }
         etacal_recency_weights(etacal_table_num(t, (size_t)time_col), n, mask, halflife, wts);
@@ -313,19 +296,9 @@ static int run(int argc, char **argv, const char *cmdline)
         goto fail;
     if ((rc = etacal_report_write_html(of.fp, &rep, &err)) != 0)
         goto fail;
-    if ((rc = etacal_outfile_commit(&of, &err)) != 0)
-        goto fail;
-    etacal_backtest_free(&bt);
-    etacal_report_hist_free(&hist);
-    etacal_curve_free(&cv);
-    etacal_holdout_free(&ho);
-    etacal_quotes_destroy(q);
-    etacal_table_destroy(t);
-    free(wts);
-    free(mask);
-    return 0;
+    rc = etacal_outfile_commit(&of, &err);
 fail:
-    etacal_outfile_abort(&of);
+    etacal_outfile_abort(&of); /* nothing left to abort after a commit */
     etacal_backtest_free(&bt);
     etacal_report_hist_free(&hist);
     etacal_curve_free(&cv);
@@ -334,7 +307,7 @@ fail:
     etacal_table_destroy(t);
     free(wts);
     free(mask);
-    return report_error(&err);
+    return rc ? report_error(&err) : 0;
 }
 
 int cmd_report(int argc, char **argv)

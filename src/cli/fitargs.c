@@ -404,6 +404,32 @@ int fit_args_check(fit_args *a, const char *cmd)
     return 0;
 }
 
+size_t fit_columns(const fit_args *a, etacal_colspec *cols, size_t *key_cols, size_t *x_cols, long *time_col)
+{
+    unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
+    cols[0] = (etacal_colspec){a->actual, ETACAL_COL_NUM, flags, "duration"};
+    cols[1] = (etacal_colspec){a->pred, ETACAL_COL_NUM,
+                               flags | (a->method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u),
+                               "prediction"};
+    size_t ncol = 2;
+    for (size_t j = 0; j < a->nkeys; j++) {
+        cols[ncol] = (etacal_colspec){a->keys[j], ETACAL_COL_KEY, 0, NULL};
+        key_cols[j] = ncol++;
+    }
+    for (size_t j = 0; j < a->nx; j++) {
+        cols[ncol] = (etacal_colspec){a->xs[j], ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE,
+                                      "covariate"};
+        x_cols[j] = ncol++;
+    }
+    *time_col = -1;
+    if (a->timecol) {
+        cols[ncol] = (etacal_colspec){a->timecol, ETACAL_COL_NUM,
+                                      ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_TIME, "timestamp"};
+        *time_col = (long)ncol++;
+    }
+    return ncol;
+}
+
 int holdout_rows(const etacal_table *t, long time_col, double share, size_t seed, const char *path,
                  unsigned char **mask, size_t *held, etacal_error *err)
 {
@@ -422,28 +448,8 @@ int holdout_rows(const etacal_table *t, long time_col, double share, size_t seed
 
 int fit_run(const fit_args *a, const char *path, fit_result *r, etacal_error *err)
 {
-    etacal_colspec cols[3 + MAX_KEYS + ETACAL_QR_MAX_COVARIATES];
-    unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
-    cols[0] = (etacal_colspec){a->actual, ETACAL_COL_NUM, flags, "duration"};
-    cols[1] = (etacal_colspec){a->pred, ETACAL_COL_NUM,
-                               flags | (a->method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u),
-                               "prediction"};
-    for (size_t j = 0; j < a->nkeys; j++) {
-        cols[2 + j] = (etacal_colspec){a->keys[j], ETACAL_COL_KEY, 0, NULL};
-        r->key_cols[j] = 2 + j;
-    }
-    for (size_t j = 0; j < a->nx; j++) {
-        cols[2 + a->nkeys + j] =
-            (etacal_colspec){a->xs[j], ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE, "covariate"};
-        r->x_cols[j] = 2 + a->nkeys + j;
-    }
-    size_t ncol = 2 + a->nkeys + a->nx;
-    r->time_col = -1;
-    if (a->timecol) {
-        cols[ncol] = (etacal_colspec){a->timecol, ETACAL_COL_NUM,
-                                      ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_TIME, "timestamp"};
-        r->time_col = (long)ncol++;
-    }
+    etacal_colspec cols[FIT_MAX_COLS];
+    size_t ncol = fit_columns(a, cols, r->key_cols, r->x_cols, &r->time_col);
     progress pg = {path, 0, -1};
     etacal_read_opts ro = a->ro;
     ro.progress = progress_cb;

@@ -74,6 +74,13 @@ typedef struct fit_result {
     etacal_holdout ho;       /* with --holdout: on-time rates on them */
 } fit_result;
 
+/* The columns a fit reads: actual 0, pred 1, then the keys, the
+ * covariates and the time (when given); their indices in key_cols, x_cols
+ * and *time_col (-1 without --time).  Returns how many (at most
+ * FIT_MAX_COLS). */
+#define FIT_MAX_COLS (3 + FIT_MAX_KEYS + ETACAL_QR_MAX_COVARIATES)
+size_t fit_columns(const fit_args *a, etacal_colspec *cols, size_t *key_cols, size_t *x_cols, long *time_col);
+
 /* The held-out rows of t (etacal_holdout_mask) in a new *mask (the
  * caller's to free, also after an error): an error when memory runs out or
  * the share leaves no row on one side. */
