@@ -9,6 +9,7 @@
  * trace in the columns. */
 #define _DEFAULT_SOURCE
 #include "internal.h"
+#include "table_impl.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -17,44 +18,6 @@
 #include <sys/stat.h>
 #include <threads.h>
 #include <unistd.h>
-
-typedef struct column {
-    char *name;
-    int type;
-    unsigned flags;
-    const char *what;
-    double *num;
-    void *key; /* ids: uint16_t while the dictionary is small, else uint32_t */
-    int kw;    /* bytes per id: 2 or 4 */
-    strdict dict;
-} column;
-
-static inline uint32_t key_get(const column *c, size_t i)
-{
-    return c->kw == 2 ? ((const uint16_t *)c->key)[i] : ((const uint32_t *)c->key)[i];
-}
-
-/* Switches a column's ids from 16 to 32 bits (for n rows, capacity cap). */
-static int key_widen(column *c, size_t n, size_t cap)
-{
-    uint32_t *w = malloc((cap ? cap : 1) * sizeof *w);
-    if (!w)
-        return -1;
-    for (size_t i = 0; i < n; i++)
-        w[i] = ((const uint16_t *)c->key)[i];
-    free(c->key);
-    c->key = w;
-    c->kw = 4;
-    return 0;
-}
-
-struct etacal_table {
-    char *source;
-    size_t ncols;
-    column *cols;
-    size_t rows, cap;
-    etacal_read_stats stats;
-};
 
 typedef struct reader {
     etacal_table *t;
@@ -318,7 +281,8 @@ void etacal_table_destroy(etacal_table *t)
         return;
     for (size_t i = 0; t->cols && i < t->ncols; i++) { /* cols NULL: table_new ran out of memory */
         free(t->cols[i].name);
-        free(t->cols[i].num);
+        if (!t->cols[i].num_borrowed)
+            free(t->cols[i].num);
         free(t->cols[i].key);
         strdict_free(&t->cols[i].dict);
     }

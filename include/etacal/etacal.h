@@ -6,8 +6,7 @@
 #ifndef ETACAL_H
 #define ETACAL_H
 
-#define ETACAL_VERSION "0.1.0"
-
+#include "etacal/version.h"
 #include "etacal/error.h"
 #include "etacal/numparse.h"
 #include "etacal/timeparse.h"

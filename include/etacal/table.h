@@ -80,6 +80,41 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
 
 void etacal_table_destroy(etacal_table *t);
 
+/* One column's values handed over from memory (etacal_table_from_arrays):
+ * set num for a numeric column; for a key column either str (the values as
+ * text) or codes with labels (pre-coded values, as a categorical column
+ * holds them).  Every array has nrows entries. */
+typedef struct etacal_column_data {
+    const double *num;        /* NaN is a missing value (as an empty CSV field) */
+    const char *const *str;   /* NUL-terminated UTF-8; NULL stands for "" */
+    const int32_t *codes;     /* indices into labels; a negative code stands for "" */
+    const char *const *labels;
+    size_t nlabels;
+} etacal_column_data;
+
+/* Flags of etacal_table_from_arrays. */
+enum {
+    /* The table may keep pointers to the caller's numeric arrays instead of
+     * copying them (when no row is left out): the caller keeps them alive
+     * and unchanged until etacal_table_destroy. */
+    ETACAL_TABLE_BORROW = 1
+};
+
+/* Builds a table from ncols arrays of nrows values, without a file: column
+ * i of the table is cols[i] with the values data[i].  The same rules as
+ * etacal_table_read_csv: flags ETACAL_NUM_* are checked (a value breaking
+ * one is an error), a NaN in an ETACAL_NUM_SKIP_MISSING column leaves its
+ * row out (counted in the stats as missing), other NaNs stay as missing
+ * values; ETACAL_NUM_TIME values are seconds since the Unix epoch already.
+ * Key values may not be "*", hold the character 0x1f or be invalid UTF-8.
+ * source names the data in messages; errors carry "SOURCE: row I" in
+ * err->where, I counting rows from 0 as array indices do.  On success *out
+ * is a new table (free with etacal_table_destroy). */
+int etacal_table_from_arrays(const etacal_colspec *cols, const etacal_column_data *data, size_t ncols,
+                             size_t nrows, const char *source, unsigned flags, etacal_table **out,
+                             etacal_error *err);
+
+
 size_t etacal_table_rows(const etacal_table *t);
 size_t etacal_table_cols(const etacal_table *t);
 const char *etacal_table_col_name(const etacal_table *t, size_t col);
