@@ -42,8 +42,11 @@ int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t 
                           const size_t *key_cols, const size_t *x_cols, const unsigned char *mask,
                           etacal_holdout *out, etacal_error *err)
 {
-    int rc = ETACAL_OK;
     memset(out, 0, sizeof *out);
+    if (q->nkeys > ETACAL_MAX_KEYS)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "a quote table has at most %d key columns",
+                                ETACAL_MAX_KEYS);
+    int rc = ETACAL_OK;
     strdict d;
     strdict_init(&d);
     long *segrow = NULL;
@@ -70,7 +73,7 @@ int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t 
     for (size_t r = 0; r < q->nrows; r++)
         segrow[q->rows[r].seg * nt + q->rows[r].target] = (long)r;
     const double *y = etacal_table_num(t, actual_col), *p = etacal_table_num(t, pred_col);
-    const char *texts[ETACAL_QR_MAX_COVARIATES + 1];
+    const char *texts[ETACAL_MAX_KEYS + 1];
     size_t n = etacal_table_rows(t);
     for (size_t i = 0; i < n; i++) {
         if (mask && !mask[i])

@@ -235,6 +235,10 @@ static inline uint32_t seghier_row(const seghier *h, size_t L, size_t i)
 /* The p-quantile of Beta(a, b) by bisection (binom.c). */
 double beta_quantile(double p, double a, double b);
 
+/* 1 when a key column may not have this name: a quote-table column
+ * (target, method, n, k, offset_s, slope, ...) or a coef_ column (fit.c). */
+int fit_key_name_reserved(const char *name);
+
 /* Shared by the table fitter and reader. */
 int quotes_set_targets(etacal_quotes *q, const double *targets, size_t n, etacal_error *err);
 int segment_alloc(etacal_segment *s, size_t nkeys, size_t ntargets);

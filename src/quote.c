@@ -234,7 +234,7 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
     uint32_t *idx = malloc((nk ? nk : 1) * n * sizeof *idx), *gidx = malloc(n * sizeof *gidx);
     size_t *start = calloc(nseg + 1, sizeof *start), *fill = calloc(nseg, sizeof *fill);
     size_t *count = calloc(nseg, sizeof *count), *nbseg = calloc(nseg, sizeof *nbseg);
-    size_t lvl_off[ETACAL_QR_MAX_COVARIATES + 1] = {0};
+    size_t lvl_off[ETACAL_MAX_KEYS + 1] = {0};
     unsigned char *fitpart = malloc(n);
     double *buf = malloc(n * (p + 1) * sizeof *buf);
     double *wbuf = o->weights ? malloc(n * sizeof *wbuf) : NULL;
@@ -577,6 +577,14 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         if (!etacal_table_num(t, opts->x_cols[j]))
             return etacal_error_set(err, ETACAL_EINVAL, NULL, "covariate '%s' is not a numeric column",
                                     etacal_table_col_name(t, opts->x_cols[j]));
+    if (nkeys > ETACAL_MAX_KEYS)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "at most %d key columns, not %zu", ETACAL_MAX_KEYS, nkeys);
+    for (size_t j = 0; j < nkeys; j++) {
+        const char *name = etacal_table_col_name(t, key_cols[j]);
+        if (fit_key_name_reserved(name))
+            return etacal_error_set(err, ETACAL_EINVAL, NULL,
+                                    "a key column cannot be called '%s' (a quote-table column)", name);
+    }
     size_t min_rows = opts->min_rows ? opts->min_rows : 200;
 
     etacal_quotes *q = calloc(1, sizeof *q);

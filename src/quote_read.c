@@ -120,6 +120,9 @@ static int header(qreader *r, size_t line)
             return fail(r, line, ETACAL_EPARSE, "not a quote table: no column '%s' in the header",
                         req[i]);
     r->nkeys = (size_t)r->c_target;
+    if (r->nkeys > ETACAL_MAX_KEYS)
+        return fail(r, line, ETACAL_EPARSE, "more than 16 key columns before '%s'", "target");
+    _Static_assert(ETACAL_MAX_KEYS == 16, "the message above says 16");
     long opt[] = {r->c_k, r->c_conf, r->c_covmean, r->c_covlow};
     static const char *optname[] = {"k", "confidence", "coverage_mean", "coverage_low"};
     for (size_t i = 0; i < 4; i++)

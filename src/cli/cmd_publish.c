@@ -515,11 +515,11 @@ static int publish(int argc, char **argv, char **given)
     gp = &g[ng++];
     *gp = (guard){"holdout", -1, ""};
     if (a.holdout > 0) {
-        size_t nt = r.q->ntargets, w = 0, n = r.ho.n[0];
+        size_t nt = r.q->ntargets, w = 0, n = r.ho->n[0];
         int ok = 1;
         for (size_t t = 0; t < nt && w < sizeof gp->detail; t++) {
             double lo = 0, hi = 0;
-            size_t hits = r.ho.hits[t];
+            size_t hits = r.ho->hits[t];
             etacal_error e3;
             if (n == 0 || etacal_binom_wilson(hits, n, 0.95, &lo, &hi, &e3) != ETACAL_OK)
                 ok = 0;

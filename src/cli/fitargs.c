@@ -280,7 +280,7 @@ int fit_print_summary(FILE *fp, const char *path, const fit_args *a, const fit_r
 int fit_print_holdout(FILE *fp, const fit_args *a, const fit_result *r)
 {
     if (r->mask)
-        return print_holdout(fp, r->q, &r->ho, r->held, etacal_table_rows(r->t), a->holdout, a->timecol);
+        return print_holdout(fp, r->q, r->ho, r->held, etacal_table_rows(r->t), a->holdout, a->timecol);
     return 0;
 }
 
@@ -350,83 +350,49 @@ int fit_option(int c, const char *cmd, fit_args *a)
     }
 }
 
+void fit_spec(const fit_args *a, etacal_fitspec *s)
+{
+    etacal_fitspec_init(s);
+    s->actual = a->actual;
+    s->pred = a->pred;
+    s->keys = (const char *const *)a->keys;
+    s->nkeys = a->nkeys;
+    s->xs = (const char *const *)a->xs;
+    s->nx = a->nx;
+    s->targets = a->targets;
+    s->ntargets = a->ntargets;
+    s->method = a->method;
+    s->min_rows = a->min_rows;
+    s->split = a->split;
+    s->seed = (unsigned long)a->seed;
+    s->confidence = a->confidence;
+    s->holdout = a->holdout;
+    s->time = a->timecol;
+    s->half_life = a->halflife;
+}
+
 int fit_args_check(fit_args *a, const char *cmd)
 {
-    if (!a->actual || !a->pred)
-        return usage_error(cmd, "--actual and --pred are required");
-    if (strcmp(a->actual, a->pred) == 0)
-        return usage_error(cmd, "--actual and --pred name the same column");
-    static const char *reserved[] = {"target", "method", "n", "k", "offset_s", "slope"};
-    for (size_t j = 0; j < a->nkeys; j++)
-        if (strncmp(a->keys[j], "coef_", 5) == 0)
-            return usage_error(cmd, "a key column cannot be called '%s' (coef_ columns hold coefficients)",
-                               a->keys[j]);
-    for (size_t j = 0; j < a->nkeys; j++) {
-        if (strcmp(a->keys[j], a->actual) == 0 || strcmp(a->keys[j], a->pred) == 0)
-            return usage_error(cmd, "'%s' cannot be both a key and a duration column", a->keys[j]);
-        for (size_t i = 0; i < sizeof reserved / sizeof *reserved; i++)
-            if (strcmp(a->keys[j], reserved[i]) == 0)
-                return usage_error(cmd, "a key column cannot be called '%s' (a quote-table column)", a->keys[j]);
-        for (size_t i = 0; i < j; i++)
-            if (strcmp(a->keys[i], a->keys[j]) == 0)
-                return usage_error(cmd, "--by names '%s' twice", a->keys[j]);
-    }
-    if (a->nx && a->method != ETACAL_METHOD_QR)
-        return usage_error(cmd, "--x goes with --method qr");
-    for (size_t j = 0; j < a->nx; j++) {
-        if (strcmp(a->xs[j], a->actual) == 0 || strcmp(a->xs[j], a->pred) == 0)
-            return usage_error(cmd, "--x '%s' is already the actual or the prediction", a->xs[j]);
-        for (size_t i = 0; i < a->nkeys; i++)
-            if (strcmp(a->xs[j], a->keys[i]) == 0)
-                return usage_error(cmd, "'%s' cannot be both a key and a covariate", a->xs[j]);
-        for (size_t i = 0; i < j; i++)
-            if (strcmp(a->xs[i], a->xs[j]) == 0)
-                return usage_error(cmd, "--x names '%s' twice", a->xs[j]);
-    }
+    etacal_fitspec s;
+    etacal_error err;
+    fit_spec(a, &s);
+    if (etacal_fitspec_check(&s, &err) != 0)
+        return usage_error(cmd, "%s", err.msg);
     if (a->ntargets == 0)
         a->targets[a->ntargets++] = 0.9;
-    if (a->timecol && !a->holdout && !a->halflife)
-        return usage_error(cmd, "--time goes with --holdout or --half-life");
-    if (a->halflife && !a->timecol)
-        return usage_error(cmd, "--half-life needs --time (the age of each row)");
-    if (a->halflife && a->confidence > 0)
-        return usage_error(cmd, "--half-life does not go with --confidence");
-    if (a->timecol) {
-        if (strcmp(a->timecol, a->actual) == 0 || strcmp(a->timecol, a->pred) == 0)
-            return usage_error(cmd, "--time '%s' is already the actual or the prediction", a->timecol);
-        for (size_t i = 0; i < a->nkeys; i++)
-            if (strcmp(a->timecol, a->keys[i]) == 0)
-                return usage_error(cmd, "'%s' cannot be both a key and the time", a->timecol);
-        for (size_t i = 0; i < a->nx; i++)
-            if (strcmp(a->timecol, a->xs[i]) == 0)
-                return usage_error(cmd, "'%s' cannot be both a covariate and the time", a->timecol);
-    }
     return 0;
 }
 
 size_t fit_columns(const fit_args *a, etacal_colspec *cols, size_t *key_cols, size_t *x_cols, long *time_col)
 {
-    unsigned flags = ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_NONNEG;
-    cols[0] = (etacal_colspec){a->actual, ETACAL_COL_NUM, flags, "duration"};
-    cols[1] = (etacal_colspec){a->pred, ETACAL_COL_NUM,
-                               flags | (a->method == ETACAL_METHOD_RATIO ? ETACAL_NUM_POSITIVE : 0u),
-                               "prediction"};
-    size_t ncol = 2;
-    for (size_t j = 0; j < a->nkeys; j++) {
-        cols[ncol] = (etacal_colspec){a->keys[j], ETACAL_COL_KEY, 0, NULL};
-        key_cols[j] = ncol++;
-    }
-    for (size_t j = 0; j < a->nx; j++) {
-        cols[ncol] = (etacal_colspec){a->xs[j], ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE,
-                                      "covariate"};
-        x_cols[j] = ncol++;
-    }
-    *time_col = -1;
-    if (a->timecol) {
-        cols[ncol] = (etacal_colspec){a->timecol, ETACAL_COL_NUM,
-                                      ETACAL_NUM_SKIP_MISSING | ETACAL_NUM_FINITE | ETACAL_NUM_TIME, "timestamp"};
-        *time_col = (long)ncol++;
-    }
+    etacal_fitspec s;
+    fit_spec(a, &s);
+    size_t ncol = etacal_fitspec_columns(&s, cols);
+    for (size_t j = 0; j < a->nkeys; j++)
+        key_cols[j] = 2 + j;
+    for (size_t j = 0; j < a->nx; j++)
+        x_cols[j] = 2 + a->nkeys + j;
+    *time_col = a->timecol ? (long)(ncol - 1) : -1;
     return ncol;
 }
 
@@ -448,53 +414,29 @@ int holdout_rows(const etacal_table *t, long time_col, double share, size_t seed
 
 int fit_run(const fit_args *a, const char *path, fit_result *r, etacal_error *err)
 {
-    etacal_colspec cols[FIT_MAX_COLS];
-    size_t ncol = fit_columns(a, cols, r->key_cols, r->x_cols, &r->time_col);
+    etacal_fitspec s;
+    fit_spec(a, &s);
     progress pg = {path, 0, -1};
     etacal_read_opts ro = a->ro;
     ro.progress = progress_cb;
     ro.progress_ud = &pg;
-    int rc = etacal_table_read_csv(path, cols, ncol, &ro, &r->t, err);
+    int rc = etacal_fit_csv(&s, path, &ro, &r->run, err);
     progress_end(&pg);
     if (rc)
         return rc;
-    etacal_fit_opts fo = {a->method,     a->targets, a->ntargets, a->min_rows, r->x_cols, a->nx, a->split,
-                          (unsigned long)a->seed, a->confidence, NULL, NULL};
-    size_t n = etacal_table_rows(r->t);
-    if (a->holdout > 0) {
-        int hr = holdout_rows(r->t, r->time_col, a->holdout, a->seed, path, &r->mask, &r->held, err);
-        if (hr)
-            return hr;
-        fo.mask = r->mask;
-    }
-    double *wts = NULL;
-    if (a->halflife > 0) {
-        wts = malloc((n ? n : 1) * sizeof *wts);
-        if (!wts)
-            return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-        etacal_recency_weights(etacal_table_num(r->t, (size_t)r->time_col), n, r->mask, a->halflife, wts);
-        fo.weights = wts;
-    }
-    rc = etacal_quotes_fit(r->t, 0, 1, r->key_cols, a->nkeys, &fo, &r->q, err);
-    free(wts);
-    if (rc)
-        return rc;
-    if (r->mask) {
-        /* the mask fitted on the kept rows; flip it to score the held-out ones */
-        for (size_t i = 0; i < n; i++)
-            r->mask[i] = !r->mask[i];
-        rc = etacal_quotes_holdout(r->q, r->t, 0, 1, r->key_cols, r->x_cols, r->mask, &r->ho, err);
-        if (rc)
-            return rc;
-    }
+    r->t = etacal_fit_run_rows(r->run);
+    r->q = etacal_fit_run_quotes(r->run);
+    r->key_cols = etacal_fit_run_key_cols(r->run);
+    r->x_cols = etacal_fit_run_x_cols(r->run);
+    r->time_col = etacal_fit_run_time_col(r->run);
+    r->mask = etacal_fit_run_held_mask(r->run);
+    r->held = etacal_fit_run_held(r->run);
+    r->ho = etacal_fit_run_holdout(r->run);
     return ETACAL_OK;
 }
 
 void fit_result_free(fit_result *r)
 {
-    etacal_holdout_free(&r->ho);
-    free(r->mask);
-    etacal_quotes_destroy(r->q);
-    etacal_table_destroy(r->t);
+    etacal_fit_run_destroy(r->run);
     memset(r, 0, sizeof *r);
 }

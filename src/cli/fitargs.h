@@ -9,8 +9,8 @@
 
 #include <getopt.h>
 
-#define FIT_MAX_KEYS 16
-#define FIT_MAX_TARGETS ETACAL_APPLY_MAX_TARGETS
+#define FIT_MAX_KEYS ETACAL_MAX_KEYS
+#define FIT_MAX_TARGETS ETACAL_MAX_TARGETS
 
 enum { FO_ACTUAL = 256, FO_PRED, FO_BY, FO_TARGET, FO_METHOD, FO_MINROWS, FO_X, FO_SPLIT, FO_SEED, FO_CONF,
        FO_HOLDOUT, FO_TIME, FO_HALFLIFE };
@@ -63,22 +63,28 @@ int fit_option(int c, const char *cmd, fit_args *a);
  * 0, else a usage error. */
 int fit_args_check(fit_args *a, const char *cmd);
 
-/* What a fit run produces.  Zero-initialise; fit_result_free releases. */
+/* What a fit run produces: the library's run (etacal_fit_csv) and views
+ * into it.  Zero-initialise; fit_result_free releases. */
 typedef struct fit_result {
-    etacal_table *t;
-    etacal_quotes *q;
-    size_t key_cols[FIT_MAX_KEYS], x_cols[ETACAL_QR_MAX_COVARIATES];
-    long time_col;           /* column of the table, or -1 */
-    unsigned char *mask;     /* with --holdout: 1 for the held-out rows */
-    size_t held;             /* held-out rows */
-    etacal_holdout ho;       /* with --holdout: on-time rates on them */
+    etacal_fit_run *run;
+    const etacal_table *t;
+    const etacal_quotes *q;
+    const size_t *key_cols, *x_cols;
+    long time_col;               /* column of the table, or -1 */
+    const unsigned char *mask;   /* with --holdout: 1 for the held-out rows */
+    size_t held;                 /* held-out rows */
+    const etacal_holdout *ho;    /* with --holdout: on-time rates on them */
 } fit_result;
+
+/* The library's specification of the fit these options ask for (the
+ * arrays stay a's). */
+void fit_spec(const fit_args *a, etacal_fitspec *s);
 
 /* The columns a fit reads: actual 0, pred 1, then the keys, the
  * covariates and the time (when given); their indices in key_cols, x_cols
  * and *time_col (-1 without --time).  Returns how many (at most
  * FIT_MAX_COLS). */
-#define FIT_MAX_COLS (3 + FIT_MAX_KEYS + ETACAL_QR_MAX_COVARIATES)
+#define FIT_MAX_COLS ETACAL_FIT_MAX_COLS
 size_t fit_columns(const fit_args *a, etacal_colspec *cols, size_t *key_cols, size_t *x_cols, long *time_col);
 
 /* The held-out rows of t (etacal_holdout_mask) in a new *mask (the
