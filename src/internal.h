@@ -247,6 +247,15 @@ int segment_alloc(etacal_segment *s, size_t nkeys, size_t ntargets);
  * decimal noise of 1e-9 units. */
 double ceil_scaled(double x, double scale);
 
+/* A stream over a caller's sink (io.c), for the library's stdio writers;
+ * NULL when out of memory or without a write function.  sink_fclose flushes
+ * and closes it and returns rc when nonzero, else ETACAL_OK or an I/O error
+ * when the sink refused bytes. */
+FILE *sink_fopen(const etacal_sink *s);
+/* etacal_outfile_open for a path taken as it is ("-" is a file name here). */
+int outfile_open_path(etacal_outfile *o, const char *path, etacal_error *err);
+int sink_fclose(FILE *fp, int rc, etacal_error *err);
+
 /* Writes a raw record without its line terminator and returns the
  * terminator ("\n" or "\r\n"; "\n" when there was none). */
 const char *csv_put_record(FILE *out, const char *raw, size_t len);

@@ -19,6 +19,14 @@ int etacal_outfile_open(etacal_outfile *o, const char *path, etacal_error *err)
         o->is_stdout = 1;
         return ETACAL_OK;
     }
+    return outfile_open_path(o, path, err);
+}
+
+int outfile_open_path(etacal_outfile *o, const char *path, etacal_error *err)
+{
+    memset(o, 0, sizeof *o);
+    if (!path || !path[0])
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "no output path");
     size_t len = strlen(path);
     o->path = malloc(len + 1);
     o->tmp = malloc(len + 16);
@@ -117,4 +125,60 @@ void etacal_outfile_abort(etacal_outfile *o)
     free(o->path);
     o->tmp = NULL;
     o->path = NULL;
+}
+
+/* ---- sinks ---------------------------------------------------------------
+ * The writers inside the library print with stdio; a caller's sink is
+ * wrapped in a stream of its own (glibc's fopencookie), so one writer serves
+ * files, paths and callbacks alike. */
+typedef struct sink_cookie {
+    etacal_sink sink;
+    int failed;
+} sink_cookie;
+
+static ssize_t sink_write(void *c, const char *buf, size_t len)
+{
+    sink_cookie *k = c;
+    if (k->failed || k->sink.write(k->sink.ud, buf, len) != 0) {
+        k->failed = 1;
+        errno = EIO;
+        return -1;
+    }
+    return (ssize_t)len;
+}
+
+static int sink_close(void *c)
+{
+    sink_cookie *k = c;
+    int failed = k->failed;
+    free(k);
+    return failed ? -1 : 0;
+}
+
+FILE *sink_fopen(const etacal_sink *s)
+{
+    if (!s || !s->write)
+        return NULL;
+    sink_cookie *k = malloc(sizeof *k);
+    if (!k)
+        return NULL;
+    k->sink = *s;
+    k->failed = 0;
+    cookie_io_functions_t io = {NULL, sink_write, NULL, sink_close};
+    FILE *fp = fopencookie(k, "w", io);
+    if (!fp)
+        free(k);
+    return fp;
+}
+
+int sink_fclose(FILE *fp, int rc, etacal_error *err)
+{
+    int bad = fflush(fp) != 0 || ferror(fp);
+    if (fclose(fp) != 0)
+        bad = 1;
+    if (rc)
+        return rc;
+    if (bad)
+        return etacal_error_set(err, ETACAL_EIO, NULL, "the output sink refused the data");
+    return ETACAL_OK;
 }

@@ -7,6 +7,7 @@
 #include <stdio.h>
 
 #include "etacal/error.h"
+#include "etacal/io.h"
 #include "etacal/quote.h"
 
 #ifdef __cplusplus
@@ -57,6 +58,12 @@ typedef struct etacal_apply_stats {
  * appearing. */
 int etacal_apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,
                      const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err);
+/* The same stream to a sink (incomplete after an error, as a stream is), or
+ * to a file at out_path that appears only when every order is written. */
+int etacal_apply(const etacal_quotes *q, const char *in_path, const etacal_sink *out,
+                 const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err);
+int etacal_apply_path(const etacal_quotes *q, const char *in_path, const char *out_path,
+                      const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err);
 
 /* Rounds a promise up to a multiple of round_s (> 0), or to the next whole
  * millisecond when round_s is 0. */

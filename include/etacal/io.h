@@ -32,6 +32,16 @@ int etacal_outfile_commit(etacal_outfile *o, etacal_error *err);
  * zeroed, committed or already aborted outfile. */
 void etacal_outfile_abort(etacal_outfile *o);
 
+/* Where a writer's bytes go: write(ud, buf, len) takes len bytes and
+ * returns 0, or nonzero to stop; the writer then fails with ETACAL_EIO.
+ * Every writer of the library takes a sink or a path, so a program can send
+ * output anywhere (a buffer, a socket, a database) without a FILE.  Bytes
+ * arrive in chunks of any size, in order. */
+typedef struct etacal_sink {
+    int (*write)(void *ud, const char *buf, size_t len);
+    void *ud;
+} etacal_sink;
+
 /* Writes one CSV field (RFC 4180): quoted, with inner quotes doubled, only
  * when it holds the delimiter, a quote, a line break or edge spaces. */
 void etacal_csv_put_field(FILE *fp, const char *s, size_t len, char delim);

@@ -1,0 +1,55 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* writers.c: the public writers over a sink or a path.  Each wraps the
+ * module's stdio writer: a sink through a stream of its own (io.c), a path
+ * through an output file that appears whole or not at all.  A path is taken
+ * as it is ("-" names a file called "-"; standard output is the caller's
+ * business). */
+#include "internal.h"
+
+#include <string.h>
+
+int etacal_quotes_write(const etacal_quotes *q, const etacal_sink *out, etacal_error *err)
+{
+    FILE *fp = sink_fopen(out);
+    if (!fp)
+        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
+                                out && out->write ? "out of memory" : "no sink to write to");
+    return sink_fclose(fp, etacal_quotes_write_csv(q, fp, err), err);
+}
+
+int etacal_quotes_write_path(const etacal_quotes *q, const char *path, etacal_error *err)
+{
+    etacal_outfile of;
+    int rc = outfile_open_path(&of, path, err);
+    if (rc)
+        return rc;
+    if ((rc = etacal_quotes_write_csv(q, of.fp, err)) != 0) {
+        etacal_outfile_abort(&of);
+        return rc;
+    }
+    return etacal_outfile_commit(&of, err);
+}
+
+int etacal_apply(const etacal_quotes *q, const char *in_path, const etacal_sink *out,
+                 const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err)
+{
+    FILE *fp = sink_fopen(out);
+    if (!fp)
+        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
+                                out && out->write ? "out of memory" : "no sink to write to");
+    return sink_fclose(fp, etacal_apply_csv(q, in_path, fp, opts, stats, err), err);
+}
+
+int etacal_apply_path(const etacal_quotes *q, const char *in_path, const char *out_path,
+                      const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err)
+{
+    etacal_outfile of;
+    int rc = outfile_open_path(&of, out_path, err);
+    if (rc)
+        return rc;
+    if ((rc = etacal_apply_csv(q, in_path, of.fp, opts, stats, err)) != 0) {
+        etacal_outfile_abort(&of);
+        return rc;
+    }
+    return etacal_outfile_commit(&of, err);
+}
