@@ -14,6 +14,7 @@
 #include "etacal/conformal.h"
 #include "etacal/table.h"
 #include "etacal/quote.h"
+#include "etacal/quote_index.h"
 #include "etacal/fit.h"
 #include "etacal/publish.h"
 #include "etacal/apply.h"
