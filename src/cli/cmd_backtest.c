@@ -245,9 +245,10 @@ int cmd_backtest(int argc, char **argv)
         fprintf(fp, "\noverall: %.2f%% on time (%zu/%zu), 95%% CI %.4f-%.4f, mean buffer %s over the %zu orders "
                     "with a finite promise\n",
                 r.n ? 100.0 * (double)r.hits / (double)r.n : 0.0, r.hits, r.n, lo, hi, mb, r.finite_n);
-        fprintf(fp, "promises: %zu periods finite (%zu orders), %zu unbounded (%zu orders, all on time), "
+        fprintf(fp, "promises: %zu period%s finite (%zu orders), %zu unbounded (%zu orders, all on time), "
                     "%zu none (%zu orders, all late)\n",
-                r.finite_periods, r.finite_n, r.unbounded_periods, r.unbounded_n, r.none_periods, r.none_n);
+                r.finite_periods, r.finite_periods == 1 ? "" : "s", r.finite_n, r.unbounded_periods, r.unbounded_n,
+                r.none_periods, r.none_n);
     } else if (strcmp(format, "csv") == 0) {
         fputs("period_start,period_end,calib,n,hits,on_time,ci_low,ci_high,mean_buffer_s,level,promise\n", fp);
         for (size_t k = 0; k < r.nperiods; k++) {
