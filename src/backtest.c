@@ -2,7 +2,13 @@
 /* backtest.c: rolling-origin evaluation of quote tables, optionally with
  * recency weights and adaptive conformal inference (Gibbs & Candes 2021,
  * "Adaptive conformal inference under distribution shift": alpha_{t+1} =
- * alpha_t + gamma (alpha - err_t), here per period, err_t its miss rate). */
+ * alpha_t + gamma (alpha - err_t), here per period, err_t its miss rate).
+ * Each period is calibrated only on the rows delivered by its start.  At
+ * alpha_t <= 0 (or when the rank k exceeds n) the promise is unbounded and
+ * every order on time; at alpha_t >= 1 there is none and every order is
+ * late; either way the level keeps moving, so that (their Lemma 4.1) it
+ * stays in [-gamma, 1 + gamma] and the long-run miss rate obeys their
+ * Prop. 4.1. */
 #include "internal.h"
 
 #include <math.h>
@@ -51,6 +57,11 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
         goto done;
     }
     out->nperiods = np;
+    const double *y = etacal_table_num(t, actual_col);
+    if (!y) {
+        rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "the actual column must be numeric");
+        goto done;
+    }
     double level = o->target, bufsum = 0;
     size_t bufn = 0;
     for (size_t k = 0; k < np; k++) {
@@ -60,20 +71,25 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
         pd->level = level;
         pd->mean_buffer = NAN;
         for (size_t i = 0; i < n; i++) {
-            fitm[i] = tm[i] >= pd->start - o->window_s && tm[i] < pd->start;
+            /* no look-ahead: the job at pd->start knows only the orders
+             * delivered by then (placed + actual duration <= start) */
+            fitm[i] = tm[i] >= pd->start - o->window_s && tm[i] < pd->start && tm[i] + y[i] <= pd->start;
             evm[i] = tm[i] >= pd->start && tm[i] < pd->end;
             pd->calib += fitm[i];
             pd->n += evm[i];
         }
         if (pd->n == 0)
-            continue;
+            continue; /* no order to score: not a step of the update */
         double lv = level;
-        if (lv >= 1) { /* alpha_t <= 0: the unbounded promise keeps every order */
+        if (lv <= 0) {
+            /* alpha_t >= 1: the empty set, no promise; every order late */
+            pd->promise = ETACAL_BT_NONE;
+            pd->hits = 0;
+        } else if (lv >= 1) {
+            /* alpha_t <= 0: the unbounded promise keeps every order */
+            pd->promise = ETACAL_BT_UNBOUNDED;
             pd->hits = pd->n;
-            pd->mean_buffer = INFINITY;
         } else {
-            if (lv < 0.001)
-                lv = 0.001;
             if (w) {
                 etacal_recency_weights(tm, n, fitm, o->half_life_s, w);
                 for (size_t i = 0; i < n; i++)
@@ -83,29 +99,53 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
                                   o->confidence, fitm, w};
             etacal_quotes *q = NULL;
             etacal_error e2;
+            /* With no calibration row the rank ceil((0+1) level) = 1 > 0:
+             * unbounded, as below. */
             int frc = pd->calib == 0 ? ETACAL_ENUM : etacal_quotes_fit(t, actual_col, pred_col, key_cols, nkeys, &fo, &q, &e2);
-            if (frc == ETACAL_ENOMEM) { /* an error, not a period without a table */
-                rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-                goto done;
-            }
-            if (frc != ETACAL_OK) {
-                pd->skipped = 1; /* its orders count nowhere */
+            if (frc != ETACAL_OK)
                 etacal_quotes_destroy(q);
-                continue;
-            }
-            etacal_holdout h;
-            rc = etacal_quotes_holdout(q, t, actual_col, pred_col, key_cols, o->x_cols, evm, &h, err);
-            etacal_quotes_destroy(q);
-            if (rc)
+            if (frc == ETACAL_ENUM) {
+                /* too few rows for a finite bound at this level (k > n,
+                 * i.e. level > n/(n+1); weights too light; qr short of
+                 * rows): the conformal bound is +infinity */
+                pd->promise = ETACAL_BT_UNBOUNDED;
+                pd->hits = pd->n;
+            } else if (frc != ETACAL_OK) {
+                char a[32];
+                etacal_time_format(pd->start, a);
+                rc = frc == ETACAL_ENOMEM ? etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory")
+                                          : etacal_error_set(err, frc, e2.where[0] ? e2.where : NULL,
+                                                             "period from %s: %s", a, e2.msg);
                 goto done;
-            pd->hits = h.hits[0];
-            pd->mean_buffer = (h.promise_sum[0] - h.pred_sum[0]) / (double)h.n[0];
-            bufsum += h.promise_sum[0] - h.pred_sum[0];
-            bufn += h.n[0];
-            etacal_holdout_free(&h);
+            } else {
+                etacal_holdout h;
+                rc = etacal_quotes_holdout(q, t, actual_col, pred_col, key_cols, o->x_cols, evm, &h, err);
+                etacal_quotes_destroy(q);
+                if (rc)
+                    goto done;
+                pd->promise = ETACAL_BT_FINITE;
+                pd->hits = h.hits[0];
+                pd->mean_buffer = (h.promise_sum[0] - h.pred_sum[0]) / (double)h.n[0];
+                bufsum += h.promise_sum[0] - h.pred_sum[0];
+                bufn += h.n[0];
+                etacal_holdout_free(&h);
+            }
         }
         out->n += pd->n;
         out->hits += pd->hits;
+        if (pd->promise == ETACAL_BT_FINITE) {
+            out->finite_periods++;
+            out->finite_n += pd->n;
+        } else if (pd->promise == ETACAL_BT_UNBOUNDED) {
+            out->unbounded_periods++;
+            out->unbounded_n += pd->n;
+        } else {
+            out->none_periods++;
+            out->none_n += pd->n;
+        }
+        /* Gibbs & Candes (2021) eq. 2 on the miss level alpha_t = 1 -
+         * level, one step per period with its miss rate as err_t: it never
+         * stops, whatever the promise was */
         if (o->gamma > 0)
             level += o->gamma * (o->target - (double)pd->hits / (double)pd->n);
     }

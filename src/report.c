@@ -705,16 +705,30 @@ static int backtest(FILE *fp, const etacal_report *r, etacal_error *err)
         return ETACAL_OK;
     }
     size_t np = bt->nperiods, used = 0;
-    double *mx = malloc(np * 4 * sizeof *mx);
+    double *mx = malloc(np * 7 * sizeof *mx);
     if (!mx)
         return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-    double *my = mx + np, *lo = mx + 2 * np, *hi = mx + 3 * np;
+    double *my = mx + np, *lo = mx + 2 * np, *hi = mx + 3 * np, *ux = mx + 4 * np, *uy = mx + 5 * np,
+           *ny = mx + 6 * np;
     double ymin = r->q->targets[r->target] * 100, ymax = ymin;
     for (size_t k = 0; k < np; k++) {
         const etacal_backtest_period *p = &bt->periods[k];
-        mx[k] = my[k] = lo[k] = hi[k] = NAN;
-        if (p->skipped || p->n == 0)
+        mx[k] = my[k] = lo[k] = hi[k] = ux[k] = uy[k] = ny[k] = NAN;
+        if (p->n == 0)
             continue;
+        if (p->promise != ETACAL_BT_FINITE) {
+            /* an unbounded promise keeps every order (100%), none keeps
+             * none (0%): drawn as their own markers, off the line and
+             * without an interval, since no table made them */
+            ux[k] = (p->start + p->end) / 2;
+            if (p->promise == ETACAL_BT_UNBOUNDED)
+                uy[k] = 100;
+            else
+                ny[k] = 0;
+            ymin = fmin(ymin, p->promise == ETACAL_BT_UNBOUNDED ? 100 : 0);
+            ymax = fmax(ymax, p->promise == ETACAL_BT_UNBOUNDED ? 100 : 0);
+            continue;
+        }
         etacal_error e;
         double l, h;
         if (etacal_binom_wilson(p->hits, p->n, 0.95, &l, &h, &e) != ETACAL_OK)
@@ -736,11 +750,20 @@ static int backtest(FILE *fp, const etacal_report *r, etacal_error *err)
     duration(r->bt_window_s, wi);
     fprintf(fp, "<p class=\"note\">Rolling origin: before each period of %s, a table fitted on the %s "
             "before it promised the period's orders, as a nightly job would have. Overall %s on time "
-            "(%zu/%zu, 95%% CI %s\xE2\x80\x93%s) for a target of %s; %zu of %zu periods had a table.</p>\n",
+            "(%zu/%zu, 95%% CI %s\xE2\x80\x93%s) for a target of %s; %zu of %zu periods had a table.",
             ev, wi, pct(bt->n ? (double)bt->hits / (double)bt->n : NAN, 2, ov), bt->hits, bt->n,
             pct(ol, 2, a), pct(oh, 2, b), tb, used, np);
+    fputs(" Each table was calibrated only on the orders delivered by the period start.", fp);
+    if (bt->unbounded_periods)
+        fprintf(fp, " %zu periods had too few delivered orders in their window for a finite promise: "
+                    "their promise was unbounded and their %zu orders count as on time (triangles).",
+                bt->unbounded_periods, bt->unbounded_n);
+    if (bt->none_periods)
+        fprintf(fp, " %zu periods had no promise and their %zu orders count as late (diamonds).", bt->none_periods,
+                bt->none_n);
+    fputs("</p>\n", fp);
     int rc = ETACAL_OK;
-    if (used == 0)
+    if (used + bt->unbounded_periods + bt->none_periods == 0)
         goto out;
     /* date ticks at midnights (UTC), a whole number of days apart, as many as fit */
     double t0 = bt->periods[0].start, t1 = bt->periods[np - 1].end;
@@ -803,9 +826,22 @@ static int backtest(FILE *fp, const etacal_report *r, etacal_error *err)
     etacal_svg_errbars(&c, mx, lo, hi, np, ETACAL_SVG_MUTED, 0);
     etacal_svg_line(&c, mx, my, np, ETACAL_SVG_MAIN);
     etacal_svg_markers(&c, mx, my, np, ETACAL_SVG_MAIN, 3);
-    static const char *const ll[] = {"on-time rate", "Wilson 95% CI", "target"};
-    static const int ls[] = {ETACAL_SVG_MAIN, ETACAL_SVG_MUTED, ETACAL_SVG_ALT}, lk[] = {0, 0, 0};
-    etacal_svg_legend(&c, ll, ls, lk, 3);
+    const char *ll[5] = {"on-time rate", "Wilson 95% CI", "target"};
+    int ls[5] = {ETACAL_SVG_MAIN, ETACAL_SVG_MUTED, ETACAL_SVG_ALT}, lk[5] = {0, 0, 0};
+    size_t nl = 3;
+    if (bt->unbounded_periods) {
+        etacal_svg_markers(&c, ux, uy, np, ETACAL_SVG_REF, 4);
+        ll[nl] = "unbounded promise";
+        ls[nl] = ETACAL_SVG_REF;
+        lk[nl++] = 2;
+    }
+    if (bt->none_periods) {
+        etacal_svg_markers(&c, ux, ny, np, ETACAL_SVG_GOOD, 4);
+        ll[nl] = "no promise";
+        ls[nl] = ETACAL_SVG_GOOD;
+        lk[nl++] = 2;
+    }
+    etacal_svg_legend(&c, ll, ls, lk, nl);
     etacal_svg_end(&c);
 out:
     fputs("</section>\n", fp);

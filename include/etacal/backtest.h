@@ -1,7 +1,8 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* backtest.h: would the nightly job have kept its promise?  Rolling origin
- * over time: at each step, a quote table fitted on the preceding window,
- * applied to the next period's orders. */
+ * over time: at each step, a quote table fitted on the orders of the
+ * preceding window that were delivered by the step (no look-ahead), applied
+ * to the next period's orders. */
 #ifndef ETACAL_BACKTEST_H
 #define ETACAL_BACKTEST_H
 
@@ -18,13 +19,17 @@ extern "C" {
 typedef struct etacal_backtest_opts {
     int method;           /* ETACAL_METHOD_ADD, _RATIO or _QR */
     double target;        /* the on-time target in (0,1) */
-    double window_s;      /* calibration window before each period */
+    double window_s;      /* calibration window before each period: rows
+                             placed in [start - window_s, start) and
+                             delivered by start (time + actual <= start) */
     double every_s;       /* period length */
     size_t min_rows;      /* as for the fit (0: 200) */
-    double half_life_s;   /* > 0: recency weights within each window */
+    double half_life_s;   /* > 0: recency weights within each window, ages
+                             counted from its newest row as etacal fit does */
     double gamma;         /* > 0: adaptive conformal inference (Gibbs &
-                             Candes 2021): after each period the working
-                             level moves by gamma (target - observed rate) */
+                             Candes 2021): after each period with orders the
+                             working level moves by gamma (target - observed
+                             rate), whatever the period's promise was */
     double confidence;    /* as for the fit (not with half_life_s) */
     const size_t *x_cols; /* method qr: covariates, split share and seed */
     size_t nx;
@@ -32,25 +37,49 @@ typedef struct etacal_backtest_opts {
     unsigned long seed;
 } etacal_backtest_opts;
 
+/* The promise a period's orders got (Gibbs & Candes 2021, sec. 2: the
+ * prediction set is everything when alpha_t <= 0 and empty when
+ * alpha_t >= 1; the conformal rank k > n gives everything too). */
+enum {
+    ETACAL_BT_FINITE = 0,    /* a fitted table */
+    ETACAL_BT_UNBOUNDED = 1, /* +infinity: every order on time.  The working
+                                level is >= 1, or no finite bound can be
+                                fitted at it from the window (k > n, which
+                                includes n = 0; recency weights too light;
+                                method qr: too few rows for the regression) */
+    ETACAL_BT_NONE = 2       /* working level <= 0: no promise, every
+                                order late */
+};
+
 typedef struct etacal_backtest_period {
     double start, end;    /* [start, end), seconds since the epoch */
-    size_t calib;         /* rows in the window before start */
+    size_t calib;         /* calibration rows: placed in the window before
+                             start and delivered by start */
     size_t n, hits;       /* orders of the period, on time with the promise */
     double level;         /* working level used (the target without --adapt) */
-    double mean_buffer;   /* mean promise - mean prediction (s); NaN if none */
-    int skipped;          /* 1: too few rows to fit a table (no promise) */
+    double mean_buffer;   /* mean promise - mean prediction (s); NaN unless
+                             the promise is finite and n > 0 */
+    int promise;          /* ETACAL_BT_* */
 } etacal_backtest_period;
 
 typedef struct etacal_backtest_result {
     size_t nperiods;
     etacal_backtest_period *periods;
-    size_t n, hits;       /* over every period with a promise */
-    double mean_buffer;
+    size_t n, hits;       /* over every period: every order is scored */
+    double mean_buffer;   /* over the orders with a finite promise (NaN if
+                             none) */
+    size_t finite_periods, finite_n;       /* periods (with orders) and */
+    size_t unbounded_periods, unbounded_n; /* orders by promise */
+    size_t none_periods, none_n;
 } etacal_backtest_result;
 
-/* Rolls over the rows of t by the time column: the first period starts
- * one window after the earliest row.  key_cols as for the fit.  A period
- * whose window has too few rows for a finite global bound is skipped. */
+/* Rolls over the rows of t by the time column (placement times; the actual
+ * column is the duration in seconds): the first period starts one window
+ * after the earliest row.  Each period's table is calibrated only on rows
+ * delivered by its start, as the nightly job would have seen them.
+ * key_cols as for the fit.  Every period with orders is scored: see
+ * ETACAL_BT_* for the unbounded and empty promises.  A fit failure other
+ * than too few rows (say a bad option) fails the whole run. */
 int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_col, size_t time_col,
                         const size_t *key_cols, size_t nkeys, const etacal_backtest_opts *opts,
                         etacal_backtest_result *out, etacal_error *err);

@@ -13,7 +13,8 @@
 
 static const char help[] =
     "Usage: etacal backtest DATA.csv --actual COL --pred COL --time COL [OPTION]...\n"
-    "Rolling-origin backtest: at each step, fit a quote table on the preceding window,\n"
+    "Rolling-origin backtest: at each step, fit a quote table on the orders of the\n"
+    "preceding window delivered by then (placed + actual <= start: no look-ahead),\n"
     "promise the next period's orders, and record their on-time rate.\n"
     "\n"
     "  --actual COL, --pred COL   as for etacal fit (required)\n"
@@ -24,7 +25,9 @@ static const char help[] =
     "  --every D             period length (default 1d); D like 7d, 36h, 90m, 3600\n"
     "  --half-life D         recency weights within each window, as for etacal fit\n"
     "  --adapt GAMMA         adaptive conformal inference: after each period the working\n"
-    "                        level moves by GAMMA x (target - observed on-time rate)\n"
+    "                        level moves by GAMMA x (target - observed on-time rate);\n"
+    "                        at a level >= n/(n+1) the promise is unbounded (all on\n"
+    "                        time), at <= 0 there is none (all late)\n"
     "  --method add|ratio|qr as for etacal fit (default add), with --x, --split, --seed\n"
     "  --confidence C        as for etacal fit\n"
     "  --min-rows N          as for etacal fit (default 200)\n"
@@ -32,6 +35,18 @@ static const char help[] =
     "  -o, --output FILE     write to FILE, which appears only when complete\n"
     "  --delim D, --bad-rows error|skip, --max-bad-share F   as for etacal fit\n"
     "  -h, --help            show this help and exit\n";
+
+/* The promise column: finite, unbounded (every order on time) or none
+ * (every order late); empty for a period without orders. */
+static const char *promise_name(const etacal_backtest_period *p)
+{
+    if (p->n == 0)
+        return NULL;
+    return p->promise == ETACAL_BT_UNBOUNDED ? "unbounded" : p->promise == ETACAL_BT_NONE ? "none" : "finite";
+}
+
+static const char calib_note[] = "orders placed in the window before the period start and delivered by it "
+                                 "(placed + actual <= start)";
 
 static void wilson(size_t h, size_t n, double *lo, double *hi)
 {
@@ -182,6 +197,7 @@ int cmd_backtest(int argc, char **argv)
         fprintf(fp, "etacal backtest: %s, target %s%%, method %s, window %g h, period %g h%s%s\n", path, tp,
                 etacal_method_name(bo.method), bo.window_s / 3600, bo.every_s / 3600,
                 bo.half_life_s > 0 ? ", recency weights" : "", bo.gamma > 0 ? ", adaptive level" : "");
+        fprintf(fp, "calibration: %s, as the nightly job saw them\n", calib_note);
         text_table tt;
         if (tt_init(&tt, 7) != 0) {
             etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
@@ -198,10 +214,7 @@ int cmd_backtest(int argc, char **argv)
             snprintf(cells[0], sizeof cells[0], "%zu", p->calib);
             snprintf(cells[1], sizeof cells[1], "%zu", p->n);
             wilson(p->hits, p->n, &lo, &hi);
-            if (p->skipped) {
-                snprintf(cells[2], sizeof cells[2], "no table (too few rows)");
-                cells[3][0] = '\0';
-            } else if (p->n) {
+            if (p->n) {
                 snprintf(cells[2], sizeof cells[2], "%.2f%% (%zu/%zu)", 100.0 * (double)p->hits / (double)p->n, p->hits, p->n);
                 snprintf(cells[3], sizeof cells[3], "%.4f-%.4f", lo, hi);
             } else {
@@ -211,7 +224,8 @@ int cmd_backtest(int argc, char **argv)
             if (isfinite(p->mean_buffer))
                 snprintf(cells[4], sizeof cells[4], "%.2f", p->mean_buffer / 60);
             else
-                snprintf(cells[4], sizeof cells[4], isinf(p->mean_buffer) ? "unbounded" : "-");
+                snprintf(cells[4], sizeof cells[4], "%s",
+                         p->n == 0 ? "-" : p->promise == ETACAL_BT_UNBOUNDED ? "unbounded" : "none");
             snprintf(cells[5], sizeof cells[5], "%.4f", p->level);
             const char *row[7] = {a, cells[0], cells[1], cells[2], cells[3], cells[4], cells[5]};
             tt_add(&tt, row);
@@ -223,43 +237,58 @@ int cmd_backtest(int argc, char **argv)
             goto fail;
         }
         wilson(r.hits, r.n, &lo, &hi);
-        fprintf(fp, "\noverall: %.2f%% on time (%zu/%zu), 95%% CI %.4f-%.4f, mean buffer %.2f min\n",
-                r.n ? 100.0 * (double)r.hits / (double)r.n : 0.0, r.hits, r.n, lo, hi, r.mean_buffer / 60);
+        char mb[32];
+        if (isfinite(r.mean_buffer))
+            snprintf(mb, sizeof mb, "%.2f min", r.mean_buffer / 60);
+        else
+            snprintf(mb, sizeof mb, "-");
+        fprintf(fp, "\noverall: %.2f%% on time (%zu/%zu), 95%% CI %.4f-%.4f, mean buffer %s over the %zu orders "
+                    "with a finite promise\n",
+                r.n ? 100.0 * (double)r.hits / (double)r.n : 0.0, r.hits, r.n, lo, hi, mb, r.finite_n);
+        fprintf(fp, "promises: %zu period%s finite (%zu orders), %zu unbounded (%zu orders, all on time), "
+                    "%zu none (%zu orders, all late)\n",
+                r.finite_periods, r.finite_periods == 1 ? "" : "s", r.finite_n, r.unbounded_periods, r.unbounded_n,
+                r.none_periods, r.none_n);
     } else if (strcmp(format, "csv") == 0) {
-        fputs("period_start,period_end,calib,n,hits,on_time,ci_low,ci_high,mean_buffer_s,level,skipped\n", fp);
+        fputs("period_start,period_end,calib,n,hits,on_time,ci_low,ci_high,mean_buffer_s,level,promise\n", fp);
         for (size_t k = 0; k < r.nperiods; k++) {
             const etacal_backtest_period *p = &r.periods[k];
             etacal_time_format(p->start, a);
             etacal_time_format(p->end, b);
             wilson(p->hits, p->n, &lo, &hi);
             fprintf(fp, "%s,%s,%zu,%zu,%zu,", a, b, p->calib, p->n, p->hits);
-            if (p->n && !p->skipped)
+            if (p->n)
                 fprintf(fp, "%.10g,%.10g,%.10g", (double)p->hits / (double)p->n, lo, hi);
             else
                 fputs(",,", fp);
             fputc(',', fp);
             if (isfinite(p->mean_buffer))
                 fprintf(fp, "%.10g", p->mean_buffer);
-            fprintf(fp, ",%.10g,%d\n", p->level, p->skipped);
+            const char *pn = promise_name(p);
+            fprintf(fp, ",%.10g,%s\n", p->level, pn ? pn : "");
         }
     } else {
         json_t *root = json_object(), *ps = json_array();
         json_object_set_new(root, "etacal", json_string(ETACAL_VERSION));
         json_object_set_new(root, "file", json_string(path));
         json_object_set_new(root, "target", json_real(bo.target));
+        json_object_set_new(root, "window_s", json_real(bo.window_s));
+        json_object_set_new(root, "every_s", json_real(bo.every_s));
+        json_object_set_new(root, "calibration", json_string(calib_note));
         for (size_t k = 0; k < r.nperiods; k++) {
             const etacal_backtest_period *p = &r.periods[k];
             etacal_time_format(p->start, a);
             etacal_time_format(p->end, b);
             wilson(p->hits, p->n, &lo, &hi);
-            int has = p->n && !p->skipped;
+            int has = p->n != 0;
+            const char *pn = promise_name(p);
             json_array_append_new(
-                ps, json_pack("{s:s,s:s,s:I,s:I,s:I,s:o,s:[o,o],s:o,s:f,s:b}", "start", a, "end", b, "calib",
+                ps, json_pack("{s:s,s:s,s:I,s:I,s:I,s:o,s:[o,o],s:o,s:f,s:o}", "start", a, "end", b, "calib",
                               (json_int_t)p->calib, "n", (json_int_t)p->n, "hits", (json_int_t)p->hits, "on_time",
                               has ? json_real((double)p->hits / (double)p->n) : json_null(), "ci",
                               has ? json_real(lo) : json_null(), has ? json_real(hi) : json_null(), "mean_buffer_s",
                               isfinite(p->mean_buffer) ? json_real(p->mean_buffer) : json_null(), "level", p->level,
-                              "skipped", p->skipped));
+                              "promise", pn ? json_string(pn) : json_null()));
         }
         json_object_set_new(root, "periods", ps);
         wilson(r.hits, r.n, &lo, &hi);
@@ -270,6 +299,11 @@ int cmd_backtest(int argc, char **argv)
                                                        r.n ? json_real(hi) : json_null(),
                                                        "mean_buffer_s",
                                                        isfinite(r.mean_buffer) ? json_real(r.mean_buffer) : json_null()));
+        json_object_set_new(root, "promises",
+                            json_pack("{s:{s:I,s:I},s:{s:I,s:I},s:{s:I,s:I}}", "finite", "periods",
+                                      (json_int_t)r.finite_periods, "n", (json_int_t)r.finite_n, "unbounded",
+                                      "periods", (json_int_t)r.unbounded_periods, "n", (json_int_t)r.unbounded_n,
+                                      "none", "periods", (json_int_t)r.none_periods, "n", (json_int_t)r.none_n));
         rc = json_out(root, fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10),
                       output ? output : "stdout", &err);
         json_decref(root);

@@ -14,7 +14,8 @@ commands on the same rows, not with an outside oracle) and checks:
   - a report on ten times the rows is about the same size (within 15%);
   - its numbers are those of etacal fit --holdout (the quote table, the
     on-time rate reached), etacal curve (the cost table) and etacal
-    backtest (the overall on-time rate) on the same data.
+    backtest (the overall on-time rate, and the periods with an unbounded
+    promise, drawn as their own markers) on the same data.
 Prints one line per check; exits 1 on the first failure."""
 import csv
 import html.parser
@@ -257,4 +258,31 @@ r_m = re.search(r"Overall ([\d.]+)% on time \((\d+)/(\d+),", doc)
 if not (b_m and r_m) or b_m.groups() != r_m.groups():
     fail(f"backtest: {b_m and b_m.group(0)} against the report's {r_m and r_m.group(0)}")
 ok(f"the backtest's overall rate ({b_m.group(1)}%, {b_m.group(2)}/{b_m.group(3)}) is etacal backtest's")
+
+# 8. periods whose window bounds no finite promise (days of 7 orders, 5 of
+# them delivered by midnight: k = ceil(6 x 0.9) = 6 > 5) are unbounded:
+# counted as etacal backtest counts them and drawn as triangles at 100%
+with open(os.path.join(WORK, "u.csv"), "w") as f:
+    f.write("placed_at,pred_s,actual_s\n")
+    for d in range(1, 9):
+        hours = list(range(0, 17, 4)) if d % 3 == 1 else list(range(0, 12))
+        for h in hours:
+            f.write(f"2026-03-0{d}T{h:02d}:00:00Z,1000,{1000 + 37 * h + 11 * d}\n")
+        for h in (20, 22):  # five hours on the road: not delivered by midnight
+            f.write(f"2026-03-0{d}T{h:02d}:00:00Z,1000,18000\n")
+args = ["u.csv", "--actual", "actual_s", "--pred", "pred_s", "--time", "placed_at", "--window", "1d",
+        "--every", "1d"]
+ub = run([ETACAL, "backtest"] + args)
+u_m = re.search(r"promises: (\d+) periods? finite \((\d+) orders\), (\d+) unbounded \((\d+) orders", ub)
+if not u_m or int(u_m.group(3)) == 0 or int(u_m.group(1)) == 0:
+    fail(f"the stream should give finite and unbounded periods: {ub}")
+udoc = run([ETACAL, "report"] + args + ["--holdout", "0.2"])
+usec = udoc[udoc.index('<section id="backtest">'):]
+usec = usec[:usec.index("</section>")]
+n_m = re.search(r"(\d+) periods had too few delivered orders in their window for a finite promise: "
+                r"their promise was unbounded and their (\d+) orders", usec)
+tri = len(re.findall(r'<path d="M[^"]*Z" fill="#000000"/>', usec)) - 1  # less the legend's
+if not n_m or n_m.groups() != (u_m.group(3), u_m.group(4)) or tri != int(u_m.group(3)):
+    fail(f"unbounded periods: backtest {u_m.groups()}, report {n_m and n_m.groups()}, {tri} triangles")
+ok(f"the {tri} unbounded backtest periods ({u_m.group(4)} orders) are etacal backtest's, drawn as triangles")
 subprocess.run(["rm", "-rf", WORK])
