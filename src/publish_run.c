@@ -432,6 +432,9 @@ static int check_spec(const etacal_publishspec *s, etacal_error *err)
 {
     if (!s->input || !s->table)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "publish needs an input file and a table path");
+    if (strcmp(s->input, "-") == 0 || strcmp(s->table, "-") == 0)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL,
+                                "the input and the table must be files, not standard input or output");
     if (!isfinite(s->now))
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "publish needs the current time (now)");
     if (s->require_holdout && !(s->fit.holdout > 0))

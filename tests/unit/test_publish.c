@@ -693,6 +693,9 @@ static void test_publish_errors_and_history(void **state)
     assert_int_equal(etacal_publish_run(&c.s, &r, &err), ETACAL_EINVAL);
     assert_non_null(strstr(err.msg, "--holdout"));
     c.s.require_holdout = 0;
+    c.s.input = "-";
+    assert_int_equal(etacal_publish_run(&c.s, &r, &err), ETACAL_EINVAL);
+    c.s.input = c.cal;
     /* the lock held elsewhere: an error, nothing written */
     int fd = -1;
     assert_int_equal(etacal_lock_acquire(c.table, 0, &fd, &err), ETACAL_OK);
