@@ -1,8 +1,18 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
-/* publish.h: what the nightly publisher of quote tables needs besides the
- * fit: a comparison of a new table with the current one at a reference
- * order, a lock beside the table, keeping the previous table, and SHA-256
- * checksums for the provenance record. */
+/* publish.h: publishing a quote table, as the nightly job does it.
+ *
+ * etacal_publish_run is the whole sequence as one call: fit a new table
+ * (etacal_fit_csv), compare it with the current one, evaluate the guards,
+ * and replace the current table only when every guard holds: under a
+ * lock, atomically and durably, keeping the previous table, with a
+ * provenance record.  It returns the guards as data, the comparison and
+ * what was written; a front end prints them (`etacal publish` does).  The
+ * clock is the caller's: the time goes in the specification.
+ *
+ * Below it, the parts it is built of, for callers who need one alone: a
+ * comparison of two tables at a reference order, the lock beside the
+ * table, the copy of the previous table, an atomic file write, and
+ * SHA-256 checksums for the provenance record. */
 #ifndef ETACAL_PUBLISH_H
 #define ETACAL_PUBLISH_H
 
@@ -10,6 +20,7 @@
 #include <stdint.h>
 
 #include "etacal/error.h"
+#include "etacal/fit.h"
 #include "etacal/quote.h"
 #include "etacal/table.h"
 
@@ -96,6 +107,153 @@ int etacal_keep_copy(const char *path, const char *keep, int *kept, etacal_error
 
 /* Writes the n bytes of data to path atomically (etacal_outfile). */
 int etacal_write_file(const char *path, const void *data, size_t n, etacal_error *err);
+
+/* ---- publishing as one call --------------------------------------------- */
+
+/* What to publish and under which guards.  etacal_publishspec_init fills
+ * the defaults; the caller sets fit (an etacal_fitspec), input, table and
+ * now at least. */
+typedef struct etacal_publishspec {
+    etacal_fitspec fit;      /* the fit of the new table (see fit.h) */
+    const char *input;       /* the calibration rows: a CSV file (not "-":
+                                its checksum goes in the record) */
+    etacal_read_opts ro;     /* how to read it (init: malformed rows skipped);
+                                the reader refuses no share of malformed
+                                rows: the "bad rows" guard judges */
+    const char *table;       /* the quote table to replace (a file path);
+                                beside it PATH.lock, PATH.prev, PATH.meta.json */
+    const char *history;     /* NULL, or a directory that also gets a dated
+                                copy of each published table and its record */
+    /* the guards' limits */
+    size_t min_total_rows;   /* rows used in the fit, at least (init 1000) */
+    double max_bad_share;    /* malformed rows skipped, at most this share of
+                                the data rows (init 0.01) */
+    double max_change_s;     /* no promise at the reference order moves by
+                                more than this many seconds (NaN: no limit) */
+    double max_change_pct;   /* ... nor by more than this percent (NaN: no
+                                limit); both NaN: 25 percent (init) */
+    double ref_pred;         /* the reference order's prediction, seconds
+                                (NaN: the median prediction; init) */
+    int allow_layout_change; /* accept other key columns, fewer targets or
+                                new covariates (init 0) */
+    int require_holdout;     /* the holdout guard must hold (needs
+                                fit.holdout > 0; init 0) */
+    int dry_run;             /* evaluate and report, replace nothing */
+    double wait_s;           /* wait up to this long for the lock (init 60) */
+    double now;              /* the current time, Unix seconds UTC: the
+                                record's written_at and the history copy's
+                                name (init NaN: must be set) */
+    const char *const *command; /* the record's "command": the command line
+                                   or call that asked for this (borrowed) */
+    size_t ncommand;
+} etacal_publishspec;
+
+void etacal_publishspec_init(etacal_publishspec *s);
+
+/* One guard's verdict, as data.  The seven guards come in this order:
+ *   "rows"           value: rows used in the fit, limit: min_total_rows
+ *   "bad rows"       value: share of data rows skipped as malformed,
+ *                    limit: max_bad_share
+ *   "current table"  fails when a table exists at the path but is not a
+ *                    valid quote table, or cannot be compared (a covariate
+ *                    the new fit does not read); no value
+ *   "change"         value: the move of the promise nearest its limit
+ *                    (signed; in seconds or percent of the current promise,
+ *                    whichever limit binds: unit "s" or "%"), limit: that
+ *                    limit; skipped without a current table
+ *   "layout"         fails (unless allow_layout_change) when the new table
+ *                    has other key columns, lacks a target of the current
+ *                    one or has a covariate it lacks; no value; skipped
+ *                    without a current table
+ *   "holdout"        with fit.holdout: value: the Wilson 95% upper bound
+ *                    (binom.h) of the held-out on-time rate of the target
+ *                    it is lowest for relative to the target, limit: that
+ *                    target; fails when any bound lies below its target;
+ *                    skipped unless require_holdout (value and limit still
+ *                    given), and without a holdout
+ *   "well formed"    the new table read back from its temporary file is the
+ *                    table in memory; value: its rows
+ * value and limit are NaN where there is none.  message is the line the
+ * change report and the provenance record show. */
+enum { ETACAL_GUARD_PASSED = 0, ETACAL_GUARD_FAILED = 1, ETACAL_GUARD_SKIPPED = 2 };
+#define ETACAL_PUBLISH_NGUARDS 7
+
+typedef struct etacal_guard {
+    const char *name;  /* static text */
+    int status;        /* ETACAL_GUARD_* */
+    double value, limit;
+    const char *unit;  /* "rows", "share", "s", "%" or "" (static text) */
+    char message[256];
+} etacal_guard;
+
+/* The record's word for a status: "ok", "failed", "not checked". */
+const char *etacal_guard_status_name(int status);
+
+/* What a run did. */
+enum { ETACAL_PUBLISHED = 0, ETACAL_PUBLISH_REFUSED = 1, ETACAL_PUBLISH_DRY_RUN = 2 };
+
+typedef struct etacal_publish_result etacal_publish_result;
+
+/* Publishes: takes the lock on s->table (waiting up to s->wait_s), removes
+ * the temporary files a killed publisher left, fits the new table from
+ * s->input, reads the current table (if any), compares the two at the
+ * reference order (etacal_reference_point, or s->ref_pred), writes the new
+ * table to a temporary file beside the path and reads it back, evaluates
+ * the guards, and then, unless a guard failed or s->dry_run: keeps the
+ * current table as PATH.prev (etacal_keep_copy), renames the new one into
+ * place (fsynced), writes the provenance record PATH.meta.json and, with
+ * s->history, the dated copies HISTORY/BASE.YYYYMMDDTHHMMSSZ[-N] and
+ * their .meta.json.  A refused or dry run leaves every file as it was
+ * (the lock file apart).  The lock is released before the call returns.
+ *
+ * Returns ETACAL_OK with *out a new result (free with
+ * etacal_publish_result_destroy) whatever the guards said; the outcome
+ * says whether the table was replaced.  On an error before the
+ * replacement, returns its code with *out NULL and the table untouched.
+ * When the table was replaced but what follows failed (the provenance
+ * record or the history copy), returns that error with *out set: the
+ * result says what was written, and etacal_publish_result_record is NULL
+ * when the record could not be built. */
+int etacal_publish_run(const etacal_publishspec *s, etacal_publish_result **out, etacal_error *err);
+void etacal_publish_result_destroy(etacal_publish_result *r);
+
+/* ETACAL_PUBLISHED, ETACAL_PUBLISH_REFUSED (a guard failed: nothing
+ * replaced) or ETACAL_PUBLISH_DRY_RUN (every guard held; nothing
+ * replaced). */
+int etacal_publish_result_outcome(const etacal_publish_result *r);
+/* The guards (ETACAL_PUBLISH_NGUARDS of them, in the order above). */
+const etacal_guard *etacal_publish_result_guards(const etacal_publish_result *r, size_t *n);
+/* The fit of the new table: its rows (with their read counts), quote
+ * table, holdout. */
+const etacal_fit_run *etacal_publish_result_fit(const etacal_publish_result *r);
+/* The current table the new one was compared with, and the comparison
+ * (its moves ordered by the size of the move, largest first, moves
+ * without a number last); NULL for both when there was none to compare
+ * with. */
+const etacal_quotes *etacal_publish_result_current(const etacal_publish_result *r);
+const etacal_quotes_diff *etacal_publish_result_diff(const etacal_publish_result *r);
+/* Why the current table was not compared: "" when there was none or it
+ * was; else the reader's message or "cannot compare: ...". */
+const char *etacal_publish_result_current_problem(const etacal_publish_result *r);
+/* How many promises of the comparison had a number on both sides. */
+size_t etacal_publish_result_compared(const etacal_publish_result *r);
+/* The reference order: the prediction, and the covariates in the order of
+ * s->fit.xs (*x gets fit.nx values). */
+double etacal_publish_result_reference(const etacal_publish_result *r, const double **x);
+/* The files written: the previous table's copy ("" when there was no
+ * previous table or nothing was replaced), the provenance record and the
+ * history copy ("" when not written). */
+const char *etacal_publish_result_prev_path(const etacal_publish_result *r);
+const char *etacal_publish_result_record_path(const etacal_publish_result *r);
+const char *etacal_publish_result_history_path(const etacal_publish_result *r);
+/* The provenance record (JSON text, a newline at the end; *len its bytes),
+ * also for a refused or dry run, where it is not written; NULL when it
+ * could not be built.  Its members: etacal (version), written_at (s->now,
+ * ISO 8601 UTC), command, input {path, sha256, bytes, rows_read,
+ * rows_used, rows_missing, rows_skipped_bad}, time_range {column, first,
+ * last} (with a time column), table {sha256, method, targets, rows},
+ * guards [{guard, result, detail}]. */
+const char *etacal_publish_result_record(const etacal_publish_result *r, size_t *len);
 
 #ifdef __cplusplus
 }

@@ -1,21 +1,18 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
-/* cmd_publish.c: `etacal publish`: the nightly job's command.  Fit a new
- * quote table as `etacal fit` does, compare it with the current table, and
- * replace that table only when every guard holds: atomically and durably,
- * under a lock, keeping the previous table, with a provenance record.  The
- * change report goes to stdout; a refusal also gets one line on stderr. */
+/* cmd_publish.c: `etacal publish`: the nightly job's command.  The options
+ * become a publish specification; the library (etacal_publish_run) fits,
+ * compares, evaluates the guards and replaces the table; this file prints
+ * its result as the change report (text or JSON) on stdout, a refusal's
+ * lines on stderr, and maps the outcome to the exit status. */
 #include "fitargs.h"
 
-#include <errno.h>
 #include <jansson.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 #include <time.h>
 
 #define EXIT_REFUSED 3
-#define MAX_GUARDS 8
 
 static const char help[] =
     "Usage: etacal publish CAL.csv --table QUOTES.csv --actual COL --pred COL [OPTION]...\n"
@@ -62,11 +59,6 @@ static const char help[] =
     "Exit status: 0 published (or the dry run passed), 3 refused by a guard (the\n"
     "table is left byte for byte as it was), 1 data or system error, 2 usage error.\n";
 
-typedef struct guard {
-    const char *name;
-    int ok;     /* 1 holds, 0 fails, -1 not checked */
-    char detail[256];
-} guard;
 
 typedef struct publish_opts {
     const char *table, *history, *format;
@@ -74,6 +66,22 @@ typedef struct publish_opts {
     int have_change, have_pct, have_ref, require_holdout, allow_layout, dry_run, quiet;
     size_t min_total, show;
 } publish_opts;
+
+/* What the change report shows: the options and the library's result. */
+typedef struct report_view {
+    const publish_opts *po;
+    const fit_args *a;
+    const char *path;
+    const etacal_publish_result *res;
+    const etacal_quotes *q, *cur;   /* the new table; the current one compared, or NULL */
+    const etacal_quotes_diff *d;    /* the comparison, or NULL */
+    const etacal_read_stats *rs;
+    size_t used;
+    const etacal_guard *g;
+    size_t ng;
+    double ref_pred;
+    const double *ref_x;
+} report_view;
 
 static double now_utc(void)
 {
@@ -112,70 +120,6 @@ static void print_table_line(const char *what, const etacal_quotes *q)
 }
 
 static double move_of(const etacal_quote_move *m) { return m->new_promise - m->old_promise; }
-
-static int by_size_of_move(const void *pa, const void *pb)
-{
-    const etacal_quote_move *a = pa, *b = pb;
-    double x = fabs(move_of(a)), y = fabs(move_of(b));
-    int fa = isfinite(x), fb = isfinite(y);
-    if (fa != fb)
-        return fa ? -1 : 1;
-    if (fa && x != y)
-        return x > y ? -1 : 1;
-    return 0;
-}
-
-/* The layout guard: what an `etacal apply` of the new table would need
- * that the current one did not. */
-static int layout_problem(const etacal_quotes *o, const etacal_quotes *n, char *buf, size_t len)
-{
-    int same = o->nkeys == n->nkeys;
-    for (size_t j = 0; same && j < o->nkeys; j++)
-        same = strcmp(o->key_names[j], n->key_names[j]) == 0;
-    if (!same) {
-        snprintf(buf, len, "the key columns differ from the current table's");
-        return 1;
-    }
-    for (size_t t = 0; t < o->ntargets; t++) {
-        if (etacal_quotes_find_target(n, o->targets[t]) < 0) {
-            snprintf(buf, len, "the current table's target %g is missing", o->targets[t]);
-            return 1;
-        }
-    }
-    for (size_t j = 0; j < n->ncoef; j++) {
-        size_t i = 0;
-        while (i < o->ncoef && strcmp(o->coef_names[i], n->coef_names[j]) != 0)
-            i++;
-        if (i == o->ncoef) {
-            snprintf(buf, len, "the covariate '%s' is new: orders files may lack it", n->coef_names[j]);
-            return 1;
-        }
-    }
-    return 0;
-}
-
-/* Compares the table that was written and read back with the one in memory. */
-static int same_table(const etacal_quotes *a, const etacal_quotes *b)
-{
-    if (a->nrows != b->nrows || a->ntargets != b->ntargets || a->nkeys != b->nkeys || a->ncoef != b->ncoef ||
-        a->method != b->method)
-        return 0;
-    for (size_t r = 0; r < a->nrows; r++) {
-        const etacal_quote *x = &a->rows[r], *y = &b->rows[r];
-        if (x->offset_s != y->offset_s || x->slope != y->slope || x->n != y->n || x->k != y->k ||
-            a->targets[x->target] != b->targets[y->target])
-            return 0;
-        if (!isfinite(x->offset_s) || !isfinite(x->slope))
-            return 0;
-        for (size_t j = 0; j < a->ncoef; j++)
-            if (x->coef[j] != y->coef[j] || !isfinite(x->coef[j]))
-                return 0;
-        for (size_t j = 0; j < a->nkeys; j++)
-            if (strcmp(a->segs[x->seg].keys[j], b->segs[y->seg].keys[j]) != 0)
-                return 0;
-    }
-    return 1;
-}
 
 static json_t *keys_json(const etacal_quotes *q, const char *const *keys)
 {
@@ -221,84 +165,77 @@ int cmd_publish(int argc, char **argv)
     optind = 1;
     opterr = 0;
     /* the command line as given, for the provenance record (option parsing
-     * splits --by's and --x's values in place) */
-    char **given = malloc((size_t)argc * sizeof *given);
+     * reorders argv and splits --by's and --x's values in place) */
+    int ngiven = argc + 1;
+    char **given = calloc((size_t)ngiven, sizeof *given);
     if (!given) {
         fputs("etacal: out of memory\n", stderr);
         return EXIT_DATA;
     }
-    for (int i = 0; i < argc; i++)
-        given[i] = NULL;
-    for (int i = 0; i < argc; i++)
-        if (!(given[i] = strdup(argv[i]))) {
+    for (int i = 0; i < ngiven; i++)
+        if (!(given[i] = strdup(i ? argv[i - 1] : "etacal"))) {
             fputs("etacal: out of memory\n", stderr);
-            free_argv(given, argc);
+            free_argv(given, ngiven);
             return EXIT_DATA;
         }
     int status = publish(argc, argv, given);
-    free_argv(given, argc);
+    free_argv(given, ngiven);
     return status;
 }
 
-static int publish(int argc, char **argv, char **given)
+/* The options: -1 to go on, else the exit status (help, usage error). */
+static int parse_options(int argc, char **argv, fit_args *a, publish_opts *po)
 {
-    fit_args a;
-    fit_args_init(&a);
-    a.ro.bad_rows = ETACAL_BAD_ROWS_SKIP; /* the guard judges the share */
-    publish_opts po = {.format = "text", .max_bad = -1, .wait_s = 60, .min_total = 1000, .show = 10};
     int c;
     while ((c = getopt_long(argc, argv, ":qh", longopts, NULL)) != -1) {
         switch (c) {
-        case 'q': po.quiet = 1; break;
-        case P_TABLE: po.table = optarg; break;
+        case 'q': po->quiet = 1; break;
+        case P_TABLE: po->table = optarg; break;
         case P_MAXCH:
-            if (parse_duration(optarg, &po.max_change) != 0)
+            if (parse_duration(optarg, &po->max_change) != 0)
                 return usage_error("publish", "--max-change takes seconds (or a duration such as 10m)");
-            po.have_change = 1;
+            po->have_change = 1;
             break;
-        case P_MAXPCT: {
-            double v;
-            if (parse_seconds(optarg, &v) != 0)
+        case P_MAXPCT:
+            if (parse_seconds(optarg, &po->max_change_pct) != 0)
                 return usage_error("publish", "--max-change-pct takes a percentage >= 0");
-            po.max_change_pct = v;
-            po.have_pct = 1;
+            po->have_pct = 1;
             break;
-        }
         case P_REFPRED:
-            if (parse_seconds(optarg, &po.ref_pred) != 0)
+            if (parse_seconds(optarg, &po->ref_pred) != 0)
                 return usage_error("publish", "--ref-pred takes a prediction in seconds");
-            po.have_ref = 1;
+            po->have_ref = 1;
             break;
         case P_MINTOTAL:
-            if (parse_size(optarg, &po.min_total) != 0)
+            if (parse_size(optarg, &po->min_total) != 0)
                 return usage_error("publish", "--min-total-rows takes a whole number");
             break;
-        case P_REQHOLD: po.require_holdout = 1; break;
-        case P_LAYOUT: po.allow_layout = 1; break;
-        case P_DRY: po.dry_run = 1; break;
-        case P_HISTORY: po.history = optarg; break;
+        case P_REQHOLD: po->require_holdout = 1; break;
+        case P_LAYOUT: po->allow_layout = 1; break;
+        case P_DRY: po->dry_run = 1; break;
+        case P_HISTORY: po->history = optarg; break;
         case P_WAIT:
-            if (parse_seconds(optarg, &po.wait_s) != 0)
+            if (parse_seconds(optarg, &po->wait_s) != 0)
                 return usage_error("publish", "--wait takes seconds >= 0");
             break;
         case P_SHOW:
-            if (parse_size(optarg, &po.show) != 0)
+            if (parse_size(optarg, &po->show) != 0)
                 return usage_error("publish", "--show takes a whole number");
             break;
         case P_FORMAT:
             if (strcmp(optarg, "text") && strcmp(optarg, "json"))
                 return usage_error("publish", "--format must be text or json");
-            po.format = optarg;
+            po->format = optarg;
             break;
         case 'h': fputs(help, stdout); return 0;
         case OPT_MAX_BAD:
-            if (parse_share(optarg, &po.max_bad) != 0)
+            if (parse_share(optarg, &po->max_bad) != 0)
                 return usage_error("publish", "--max-bad-share takes a share in [0,1]");
             break;
         default: {
-            int r = fit_option(c, "publish", &a);
+            int r = fit_option(c, "publish", a);
             if (r < 0)
-                r = other_option(c, "publish", &a.ro, argv);
+                r = other_option(c, "publish", &a->ro, argv);
             if (r)
                 return r;
             break;
@@ -308,589 +245,309 @@ static int publish(int argc, char **argv, char **given)
     int nin = one_input(argc, argv, "publish", "calibration file");
     if (nin)
         return nin;
-    if (!po.table)
+    if (!po->table)
         return usage_error("publish", "--table is required (the quote table to replace)");
-    int u = fit_args_check(&a, "publish");
+    int u = fit_args_check(a, "publish");
     if (u)
         return u;
-    const char *path = argv[optind];
-    if (strcmp(path, "-") == 0)
+    if (strcmp(argv[optind], "-") == 0)
         return usage_error("publish", "CAL.csv must be a file, not standard input (its checksum is recorded)");
-    if (strcmp(po.table, "-") == 0)
+    if (strcmp(po->table, "-") == 0)
         return usage_error("publish", "--table must be a file");
-    if (po.require_holdout && !(a.holdout > 0))
+    if (po->require_holdout && !(a->holdout > 0))
         return usage_error("publish", "--require-holdout needs --holdout F");
-    if (!po.have_change && !po.have_pct) {
-        po.have_pct = 1;
-        po.max_change_pct = 25;
+    return -1;
+}
+
+/* The library's specification from the options (arrays stay a's and
+ * given's). */
+static void make_spec(etacal_publishspec *ps, const fit_args *a, const publish_opts *po, const char *path,
+                      char **given, int ngiven)
+{
+    etacal_publishspec_init(ps);
+    fit_spec(a, &ps->fit);
+    ps->input = path;
+    ps->ro = a->ro;
+    ps->table = po->table;
+    ps->history = po->history;
+    ps->min_total_rows = po->min_total;
+    if (po->max_bad >= 0)
+        ps->max_bad_share = po->max_bad;
+    ps->max_change_s = po->have_change ? po->max_change : NAN;
+    ps->max_change_pct = po->have_pct ? po->max_change_pct : NAN;
+    ps->ref_pred = po->have_ref ? po->ref_pred : NAN;
+    ps->allow_layout_change = po->allow_layout;
+    ps->require_holdout = po->require_holdout;
+    ps->dry_run = po->dry_run;
+    ps->wait_s = po->wait_s;
+    ps->now = now_utc();
+    ps->command = (const char *const *)given;
+    ps->ncommand = (size_t)ngiven;
+}
+
+static const char *outcome_name(int outcome)
+{
+    return outcome == ETACAL_PUBLISH_REFUSED ? "refused" : outcome == ETACAL_PUBLISH_DRY_RUN ? "dry run" : "published";
+}
+
+/* The change report as JSON: 0, or -1 when it could not be written whole. */
+static int print_json(const report_view *v)
+{
+    json_t *root = json_object();
+    json_object_set_new(root, "etacal", json_string(ETACAL_VERSION));
+    json_object_set_new(root, "table", json_string(v->po->table));
+    json_object_set_new(root, "input", json_string(v->path));
+    json_object_set_new(root, "outcome", json_string(outcome_name(etacal_publish_result_outcome(v->res))));
+    json_t *rows = json_object();
+    json_object_set_new(rows, "read", json_integer((json_int_t)v->rs->data_rows));
+    json_object_set_new(rows, "used", json_integer((json_int_t)v->used));
+    json_object_set_new(rows, "missing", json_integer((json_int_t)v->rs->missing));
+    json_object_set_new(rows, "skipped_bad", json_integer((json_int_t)v->rs->bad));
+    json_object_set_new(root, "rows", rows);
+    json_t *ref = json_object();
+    json_object_set_new(ref, "pred_s", json_real(v->ref_pred));
+    for (size_t j = 0; j < v->a->nx; j++)
+        json_object_set_new(ref, v->a->xs[j], json_real(v->ref_x[j]));
+    json_object_set_new(root, "reference", ref);
+    json_t *segs = json_null();
+    if (v->d) {
+        segs = json_object();
+        json_object_set_new(segs, "added", json_integer((json_int_t)v->d->segs_added));
+        json_object_set_new(segs, "removed", json_integer((json_int_t)v->d->segs_removed));
+        json_object_set_new(segs, "changed", json_integer((json_int_t)v->d->segs_changed));
+        json_object_set_new(segs, "unchanged", json_integer((json_int_t)v->d->segs_same));
     }
-    if (po.max_bad < 0)
-        po.max_bad = 0.01;
-    a.ro.max_bad_share = 1; /* read everything; the guard decides */
-    int json = strcmp(po.format, "json") == 0;
-
-    etacal_error err;
-    etacal_error_clear(&err);
-    fit_result r = {0};
-    etacal_quotes *cur = NULL;
-    etacal_quotes *back = NULL;
-    etacal_quotes_diff d = {0};
-    etacal_outfile of = {0};
-    char *buf = NULL;
-    size_t buflen = 0;
-    json_t *root = NULL;
-    int lock = -1, rc;
-    int status = 0;
-    guard g[MAX_GUARDS];
-    size_t ng = 0;
-    char cur_problem[400] = "";
-    int have_cur = 0;
-
-    rc = etacal_lock_acquire(po.table, po.wait_s, &lock, &err);
-    if (rc)
-        return report_error(&err);
-    (void)etacal_remove_stale_temps(po.table); /* a killed publisher's */
-    rc = fit_run(&a, path, &r, &err);
-    if (rc)
-        goto fail;
-    char in_sha[65];
-    uint64_t in_bytes = 0;
-    rc = etacal_sha256_file(path, in_sha, &in_bytes, &err);
-    if (rc)
-        goto fail;
-
-    /* the current table */
-    struct stat st;
-    if (stat(po.table, &st) == 0) {
-        etacal_error e2;
-        etacal_error_clear(&e2);
-        if (etacal_quotes_read_csv(po.table, ',', &cur, &e2) != 0) {
-            if (e2.code == ETACAL_ENOMEM) {
-                err = e2;
-                rc = e2.code;
-                goto fail;
-            }
-            snprintf(cur_problem, sizeof cur_problem, "%s%s%s", e2.where, e2.where[0] ? ": " : "", e2.msg);
-        } else {
-            have_cur = 1;
-        }
-    } else if (errno != ENOENT) {
-        rc = etacal_error_set(&err, ETACAL_EIO, po.table, "cannot stat: %s", strerror(errno));
-        goto fail;
-    }
-
-    /* the reference order */
-    double ref_pred, ref_x[ETACAL_QR_MAX_COVARIATES];
-    rc = etacal_reference_point(r.t, 1, r.x_cols, a.nx, &ref_pred, ref_x, &err);
-    if (rc)
-        goto fail;
-    if (po.have_ref)
-        ref_pred = po.ref_pred;
-    if (have_cur) {
-        rc = etacal_quotes_compare(cur, r.q, ref_pred, (const char *const *)a.xs, ref_x, a.nx, &d, &err);
-        if (rc && rc != ETACAL_ENOMEM) {
-            /* the current table has a covariate the new fit does not read */
-            snprintf(cur_problem, sizeof cur_problem, "cannot compare: %s", err.msg);
-            etacal_error_clear(&err);
-            have_cur = 0;
-            rc = 0;
-            etacal_quotes_diff_free(&d);
-        }
-        if (rc)
-            goto fail;
-    }
-
-    /* the new table, in memory first: its checksum goes in the record */
-    FILE *ms = open_memstream(&buf, &buflen);
-    if (!ms) {
-        rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
-        goto fail;
-    }
-    rc = etacal_quotes_write_csv(r.q, ms, &err);
-    /* glibc's fclose of a memory stream hides a failed last realloc, but
-     * leaves the buffer as the last fflush set it: so that is checked */
-    int ms_bad = fflush(ms) != 0 || ferror(ms);
-    if ((fclose(ms) != 0 || ms_bad || !buf) && rc == 0)
-        rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
-    if (rc)
-        goto fail;
-    etacal_sha256 sh;
-    char tab_sha[65];
-    etacal_sha256_init(&sh);
-    etacal_sha256_update(&sh, buf, buflen);
-    etacal_sha256_hex(&sh, tab_sha);
-    rc = etacal_outfile_open(&of, po.table, &err);
-    if (rc)
-        goto fail;
-    if (fwrite(buf, 1, buflen, of.fp) != buflen || fflush(of.fp) != 0) {
-        rc = etacal_error_set(&err, ETACAL_EIO, po.table, "write failed: %s", strerror(errno));
-        goto fail;
-    }
-
-    /* ---- the guards ---- */
-    const etacal_read_stats *rs = etacal_table_stats(r.t);
-    size_t used = etacal_table_rows(r.t);
-    guard *gp = &g[ng++];
-    *gp = (guard){"rows", used >= po.min_total, ""};
-    snprintf(gp->detail, sizeof gp->detail, "%zu used, at least %zu wanted (--min-total-rows)", used, po.min_total);
-
-    double bad_share = rs->data_rows ? (double)rs->bad / (double)rs->data_rows : 0;
-    gp = &g[ng++];
-    *gp = (guard){"bad rows", bad_share <= po.max_bad, ""};
-    snprintf(gp->detail, sizeof gp->detail, "%zu of %zu skipped (%.2f%%), at most %.2f%% allowed (--max-bad-share)",
-             rs->bad, rs->data_rows, 100 * bad_share, 100 * po.max_bad);
-
-    gp = &g[ng++];
-    *gp = (guard){"current table", 1, ""};
-    if (cur_problem[0]) {
-        gp->ok = 0;
-        snprintf(gp->detail, sizeof gp->detail, "not valid (%.180s); fix it or move it aside", cur_problem);
-    } else {
-        snprintf(gp->detail, sizeof gp->detail, "%s", have_cur ? "valid" : "none yet: this is the first table");
-    }
-
-    const etacal_quote_move *worst = NULL;
-    double worst_excess = 0;
-    size_t compared = 0;
-    for (size_t i = 0; i < d.nmoves; i++) {
-        const etacal_quote_move *m = &d.moves[i];
-        double mv = fabs(move_of(m));
-        if (!isfinite(mv))
-            continue;
-        compared++;
-        /* by how much the move exceeds the tighter limit (<= 0: within) */
-        double ex = -INFINITY;
-        if (po.have_change)
-            ex = fmax(ex, (mv - po.max_change) / fmax(po.max_change, 1e-9));
-        if (po.have_pct)
-            ex = fmax(ex, m->old_promise > 0 ? (100 * mv / m->old_promise - po.max_change_pct) /
-                                                   fmax(po.max_change_pct, 1e-9)
-                                             : (mv > 0 ? INFINITY : -INFINITY));
-        if (!worst || ex > worst_excess) {
-            worst = m;
-            worst_excess = ex;
-        }
-    }
-    gp = &g[ng++];
-    char lim[96] = "";
-    if (po.have_change && po.have_pct)
-        snprintf(lim, sizeof lim, "%g s and %g%%", po.max_change, po.max_change_pct);
-    else if (po.have_change)
-        snprintf(lim, sizeof lim, "%g s", po.max_change);
-    else
-        snprintf(lim, sizeof lim, "%g%%", po.max_change_pct);
-    *gp = (guard){"change", 1, ""};
-    if (!have_cur) {
-        gp->ok = -1;
-        snprintf(gp->detail, sizeof gp->detail, "nothing to compare with");
-    } else if (!worst) {
-        snprintf(gp->detail, sizeof gp->detail, "no promise to compare");
-    } else {
-        char who[128];
-        keys_label(who, sizeof who, r.q, worst->keys);
-        if (d.keys_differ)
-            snprintf(who, sizeof who, "global");
-        double mv = move_of(worst);
-        gp->ok = worst_excess <= 0;
-        snprintf(gp->detail, sizeof gp->detail, "move nearest the limit %+.1f s (%+.1f%%) at %s, target %g; limit %s", mv,
-                 worst->old_promise > 0 ? 100 * mv / worst->old_promise : 0.0, who, worst->target, lim);
-    }
-
-    gp = &g[ng++];
-    *gp = (guard){"layout", 1, ""};
-    if (!have_cur) {
-        gp->ok = -1;
-        snprintf(gp->detail, sizeof gp->detail, "nothing to compare with");
-    } else {
-        char why[200];
-        if (layout_problem(cur, r.q, why, sizeof why)) {
-            gp->ok = po.allow_layout;
-            snprintf(gp->detail, sizeof gp->detail, "%s%s", why,
-                     po.allow_layout ? " (allowed: --allow-layout-change)" : "");
-        } else {
-            snprintf(gp->detail, sizeof gp->detail, "same key columns; every current target kept");
-        }
-    }
-
-    gp = &g[ng++];
-    *gp = (guard){"holdout", -1, ""};
-    if (a.holdout > 0) {
-        size_t nt = r.q->ntargets, w = 0, n = r.ho->n[0];
-        int ok = 1;
-        for (size_t t = 0; t < nt && w < sizeof gp->detail; t++) {
-            double lo = 0, hi = 0;
-            size_t hits = r.ho->hits[t];
-            etacal_error e3;
-            if (n == 0 || etacal_binom_wilson(hits, n, 0.95, &lo, &hi, &e3) != ETACAL_OK)
-                ok = 0;
-            else if (hi < r.q->targets[t])
-                ok = 0;
-            w += (size_t)snprintf(gp->detail + w, sizeof gp->detail - w,
-                                  "%starget %g: %.2f%% on time (%zu/%zu), Wilson 95%% %.4f-%.4f", t ? "; " : "",
-                                  r.q->targets[t], n ? 100.0 * (double)hits / (double)n : 0.0, hits, n, lo, hi);
-        }
-        if (po.require_holdout)
-            gp->ok = ok;
-        else if (w < sizeof gp->detail)
-            snprintf(gp->detail + w, sizeof gp->detail - w, " (not required)");
-    } else {
-        snprintf(gp->detail, sizeof gp->detail, "no --holdout");
-    }
-
-    gp = &g[ng++];
-    *gp = (guard){"well formed", 0, ""};
-    {
-        etacal_error e4;
-        etacal_error_clear(&e4);
-        int rb = etacal_quotes_read_csv(of.tmp, ',', &back, &e4);
-        if (rb == ETACAL_ENOMEM) {
-            err = e4;
-            rc = rb;
-            goto fail;
-        }
-        if (rb != 0)
-            snprintf(gp->detail, sizeof gp->detail, "the new table does not read back: %.200s", e4.msg);
-        else if (!same_table(r.q, back))
-            snprintf(gp->detail, sizeof gp->detail, "the new table reads back different from what was written");
-        else {
-            gp->ok = 1;
-            snprintf(gp->detail, sizeof gp->detail, "the new table reads back as written (%zu row%s)", back->nrows,
-                     back->nrows == 1 ? "" : "s");
-        }
-    }
-
-    int refused = 0;
-    for (size_t i = 0; i < ng; i++)
-        refused |= g[i].ok == 0;
-
-    /* ---- replace ---- */
-    double when = now_utc();
-    char stamp[32], iso[32];
-    {
-        time_t tt = (time_t)when;
-        struct tm tmv;
-        gmtime_r(&tt, &tmv);
-        strftime(stamp, sizeof stamp, "%Y%m%dT%H%M%SZ", &tmv);
-        strftime(iso, sizeof iso, "%Y-%m-%dT%H:%M:%SZ", &tmv);
-    }
-    char prev[4096], meta[4096], hist[4096] = "";
-    snprintf(prev, sizeof prev, "%s.prev", po.table);
-    snprintf(meta, sizeof meta, "%s.meta.json", po.table);
-    int kept = 0;
-    const char *outcome = refused ? "refused" : po.dry_run ? "dry run" : "published";
-    if (refused || po.dry_run) {
-        etacal_outfile_abort(&of);
-    } else {
-        rc = etacal_keep_copy(po.table, prev, &kept, &err);
-        if (rc)
-            goto fail;
-        rc = etacal_outfile_commit(&of, &err);
-        if (rc)
-            goto fail;
-    }
-
-    /* ---- the provenance record ---- */
-    json_t *rec = json_object();
-    json_object_set_new(rec, "etacal", json_string(ETACAL_VERSION));
-    json_object_set_new(rec, "written_at", json_string(iso));
-    json_t *cmdline = json_array();
-    json_array_append_new(cmdline, json_string("etacal"));
-    for (int i = 0; i < argc; i++)
-        json_array_append_new(cmdline, json_string(given[i]));
-    json_object_set_new(rec, "command", cmdline);
-    json_t *inp = json_object();
-    json_object_set_new(inp, "path", json_string(path));
-    json_object_set_new(inp, "sha256", json_string(in_sha));
-    json_object_set_new(inp, "bytes", json_integer((json_int_t)in_bytes));
-    json_object_set_new(inp, "rows_read", json_integer((json_int_t)rs->data_rows));
-    json_object_set_new(inp, "rows_used", json_integer((json_int_t)used));
-    json_object_set_new(inp, "rows_missing", json_integer((json_int_t)rs->missing));
-    json_object_set_new(inp, "rows_skipped_bad", json_integer((json_int_t)rs->bad));
-    json_object_set_new(rec, "input", inp);
-    if (r.time_col >= 0 && used) {
-        const double *tm = etacal_table_num(r.t, (size_t)r.time_col);
-        double lo = tm[0], hi = tm[0];
-        for (size_t i = 1; i < used; i++) {
-            lo = fmin(lo, tm[i]);
-            hi = fmax(hi, tm[i]);
-        }
-        char b1[64], b2[64];
-        etacal_time_format(lo, b1);
-        etacal_time_format(hi, b2);
-        json_t *tr = json_object();
-        json_object_set_new(tr, "column", json_string(a.timecol));
-        json_object_set_new(tr, "first", json_string(b1));
-        json_object_set_new(tr, "last", json_string(b2));
-        json_object_set_new(rec, "time_range", tr);
-    }
-    json_t *tab = json_object();
-    json_object_set_new(tab, "sha256", json_string(tab_sha));
-    json_object_set_new(tab, "method", json_string(etacal_method_name(r.q->method)));
-    json_t *tg = json_array();
-    for (size_t t = 0; t < r.q->ntargets; t++)
-        json_array_append_new(tg, json_real(r.q->targets[t]));
-    json_object_set_new(tab, "targets", tg);
-    json_object_set_new(tab, "rows", json_integer((json_int_t)r.q->nrows));
-    json_object_set_new(rec, "table", tab);
-    json_t *gj = json_array();
-    for (size_t i = 0; i < ng; i++) {
+    json_object_set_new(root, "segments", segs);
+    json_t *mv = json_array();
+    for (size_t i = 0; v->d && i < v->d->nmoves; i++) {
+        const etacal_quote_move *m = &v->d->moves[i];
         json_t *o = json_object();
-        json_object_set_new(o, "guard", json_string(g[i].name));
-        json_object_set_new(o, "result", json_string(g[i].ok > 0 ? "ok" : g[i].ok == 0 ? "failed" : "not checked"));
-        json_object_set_new(o, "detail", json_string(g[i].detail));
-        json_array_append_new(gj, o);
+        /* the keys of the table the move's row comes from */
+        json_object_set_new(o, "keys", keys_json(m->in_new ? v->q : v->cur, m->keys));
+        json_object_set_new(o, "target", json_real(m->target));
+        json_object_set_new(o, "in_current", json_boolean(m->in_old));
+        json_object_set_new(o, "in_new", json_boolean(m->in_new));
+        json_object_set_new(o, "current_s", num_or_null(m->old_promise));
+        json_object_set_new(o, "new_s", num_or_null(m->new_promise));
+        json_object_set_new(o, "move_s", num_or_null(move_of(m)));
+        json_array_append_new(mv, o);
     }
-    json_object_set_new(rec, "guards", gj);
-    char *rec_text = NULL;
-    size_t rec_len = 0;
-    FILE *rs_fp = open_memstream(&rec_text, &rec_len);
-    int jrc = rs_fp ? json_out(rec, rs_fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(15), NULL, &err)
-                    : etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
-    int rs_bad = rs_fp && (fflush(rs_fp) != 0 || ferror(rs_fp));
-    if (rs_fp && (fclose(rs_fp) != 0 || rs_bad || !rec_text) && jrc == 0)
-        jrc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
-    if (jrc) {
-        free(rec_text);
-        json_decref(rec);
-        rc = jrc;
-        if (!refused && !po.dry_run) {
-            fprintf(stderr, "etacal: publish: the table is published, but its provenance record is not: %s\n",
-                    err.msg);
-            status = EXIT_DATA;
-            goto report;
-        }
-        goto fail;
+    json_object_set_new(root, "moves", mv);
+    json_t *gr = json_array();
+    for (size_t i = 0; i < v->ng; i++) {
+        json_t *o = json_object();
+        json_object_set_new(o, "guard", json_string(v->g[i].name));
+        json_object_set_new(o, "result", json_string(etacal_guard_status_name(v->g[i].status)));
+        json_object_set_new(o, "detail", json_string(v->g[i].message));
+        json_array_append_new(gr, o);
     }
-    if (!refused && !po.dry_run) {
-        size_t len = rec_len;
-        rc = etacal_write_file(meta, rec_text, len, &err);
-        if (rc == 0 && po.history) {
-            if (mkdir(po.history, 0777) != 0 && errno != EEXIST) {
-                rc = etacal_error_set(&err, ETACAL_EIO, po.history, "cannot create the history directory: %s",
-                                      strerror(errno));
-            } else {
-                const char *base = strrchr(po.table, '/');
-                base = base ? base + 1 : po.table;
-                struct stat hs;
-                for (int k = 1; k < 1000; k++) {
-                    if (k == 1)
-                        snprintf(hist, sizeof hist, "%s/%s.%s", po.history, base, stamp);
-                    else
-                        snprintf(hist, sizeof hist, "%s/%s.%s-%d", po.history, base, stamp, k);
-                    if (stat(hist, &hs) != 0)
-                        break;
-                }
-                rc = etacal_write_file(hist, buf, buflen, &err);
-                if (rc == 0) {
-                    char hm[4200];
-                    snprintf(hm, sizeof hm, "%s.meta.json", hist);
-                    rc = etacal_write_file(hm, rec_text, len, &err);
-                }
-            }
-        }
-        if (rc) {
-            free(rec_text);
-            json_decref(rec);
-            /* the table itself is published: say what did not follow */
-            fprintf(stderr, "etacal: publish: the table is published, but: %s%s%s\n", err.where,
-                    err.where[0] ? ": " : "", err.msg);
-            status = EXIT_DATA;
-            goto report;
-        }
-    }
-    free(rec_text);
-    json_decref(rec);
+    json_object_set_new(root, "guards", gr);
+    etacal_error je;
+    int bad = json_out(root, stdout, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10), "stdout", &je);
+    json_decref(root);
+    return bad ? -1 : 0;
+}
 
-report:;
-    /* ---- the change report ---- */
-    int report_bad = 0;
-    if (have_cur)
-        qsort(d.moves, d.nmoves, sizeof *d.moves, by_size_of_move);
-    if (po.quiet) {
-        /* no report: the refusal line below, if any */
-    } else if (json) {
-        root = json_object();
-        json_object_set_new(root, "etacal", json_string(ETACAL_VERSION));
-        json_object_set_new(root, "table", json_string(po.table));
-        json_object_set_new(root, "input", json_string(path));
-        json_object_set_new(root, "outcome", json_string(outcome));
-        json_t *rows = json_object();
-        json_object_set_new(rows, "read", json_integer((json_int_t)rs->data_rows));
-        json_object_set_new(rows, "used", json_integer((json_int_t)used));
-        json_object_set_new(rows, "missing", json_integer((json_int_t)rs->missing));
-        json_object_set_new(rows, "skipped_bad", json_integer((json_int_t)rs->bad));
-        json_object_set_new(root, "rows", rows);
-        json_t *ref = json_object();
-        json_object_set_new(ref, "pred_s", json_real(ref_pred));
-        for (size_t j = 0; j < a.nx; j++)
-            json_object_set_new(ref, a.xs[j], json_real(ref_x[j]));
-        json_object_set_new(root, "reference", ref);
-        json_t *segs = json_object();
-        json_object_set_new(segs, "added", json_integer((json_int_t)d.segs_added));
-        json_object_set_new(segs, "removed", json_integer((json_int_t)d.segs_removed));
-        json_object_set_new(segs, "changed", json_integer((json_int_t)d.segs_changed));
-        json_object_set_new(segs, "unchanged", json_integer((json_int_t)d.segs_same));
-        json_object_set_new(root, "segments", have_cur ? segs : (json_decref(segs), json_null()));
-        json_t *mv = json_array();
-        for (size_t i = 0; i < d.nmoves; i++) {
-            const etacal_quote_move *m = &d.moves[i];
-            json_t *o = json_object();
-            json_object_set_new(o, "keys", keys_json(d.keys_differ ? r.q : r.q, m->keys));
-            json_object_set_new(o, "target", json_real(m->target));
-            json_object_set_new(o, "in_current", json_boolean(m->in_old));
-            json_object_set_new(o, "in_new", json_boolean(m->in_new));
-            json_object_set_new(o, "current_s", num_or_null(m->old_promise));
-            json_object_set_new(o, "new_s", num_or_null(m->new_promise));
-            json_object_set_new(o, "move_s", num_or_null(move_of(m)));
-            json_array_append_new(mv, o);
-        }
-        json_object_set_new(root, "moves", mv);
-        json_t *gr = json_array();
-        for (size_t i = 0; i < ng; i++) {
-            json_t *o = json_object();
-            json_object_set_new(o, "guard", json_string(g[i].name));
-            json_object_set_new(o, "result",
-                                json_string(g[i].ok > 0 ? "ok" : g[i].ok == 0 ? "failed" : "not checked"));
-            json_object_set_new(o, "detail", json_string(g[i].detail));
-            json_array_append_new(gr, o);
-        }
-        json_object_set_new(root, "guards", gr);
-        etacal_error je;
-        if (json_out(root, stdout, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10), "stdout", &je))
-            report_bad = 1;
-    } else {
-        printf("etacal publish: %s from %s\n", po.table, path);
-        printf("rows: %zu read, %zu used, %zu left out (missing actual or prediction), %zu malformed skipped\n",
-               rs->data_rows, used, rs->missing, rs->bad);
-        print_table_line("new table", r.q);
-        if (have_cur) {
-            print_table_line("current table", cur);
-            printf("reference order: prediction %.1f s", ref_pred);
-            for (size_t j = 0; j < a.nx; j++)
-                printf(", %s %g", a.xs[j], ref_x[j]);
-            printf(" (%s)\n", po.have_ref ? "--ref-pred" : "medians of the data");
-            printf("segments: %zu added, %zu removed, %zu changed, %zu unchanged; %zu promises compared\n",
-                   d.segs_added, d.segs_removed, d.segs_changed, d.segs_same, compared);
-            size_t shown = 0;
-            for (size_t i = 0; i < d.nmoves; i++)
-                shown += isfinite(move_of(&d.moves[i])) && move_of(&d.moves[i]) != 0;
-            if (shown && po.show) {
-                printf("\nlargest moves of the promise at the reference order:\n");
-                size_t nk = r.q->nkeys ? r.q->nkeys : 1;
-                text_table tt;
-                if (tt_init(&tt, nk + 4) != 0) {
-                    report_bad = 1;
-                } else {
-                    const char *cells[FIT_MAX_KEYS + 4];
-                    char b[4][48];
-                    size_t k = 0;
-                    for (size_t j = 0; j < r.q->nkeys; j++)
-                        cells[k++] = r.q->key_names[j];
-                    if (!r.q->nkeys)
-                        cells[k++] = "segment";
-                    cells[k++] = "target";
-                    cells[k++] = "current s";
-                    cells[k++] = "new s";
-                    cells[k++] = "move s";
-                    tt_add(&tt, cells);
-                    for (size_t j = nk; j < nk + 4; j++)
-                        tt.right[j] = 1;
-                    size_t listed = 0;
-                    for (size_t i = 0; i < d.nmoves && listed < po.show; i++) {
-                        const etacal_quote_move *m = &d.moves[i];
-                        double mvv = move_of(m);
-                        if (!isfinite(mvv) || mvv == 0)
-                            continue;
-                        k = 0;
-                        for (size_t j = 0; j < r.q->nkeys; j++)
-                            cells[k++] = d.keys_differ ? "*" : m->keys[j];
-                        if (!r.q->nkeys)
-                            cells[k++] = "*";
-                        snprintf(b[0], sizeof b[0], "%g", m->target);
-                        snprintf(b[1], sizeof b[1], "%.1f", m->old_promise);
-                        snprintf(b[2], sizeof b[2], "%.1f", m->new_promise);
-                        snprintf(b[3], sizeof b[3], "%+.1f", mvv);
-                        for (int j = 0; j < 4; j++)
-                            cells[k++] = b[j];
-                        tt_add(&tt, cells);
-                        listed++;
-                    }
-                    if (tt_print(&tt, stdout) != 0)
-                        report_bad = 1;
-                    tt_free(&tt);
-                }
-            }
-            int head = 0;
-            for (size_t i = 0; i < d.nmoves; i++) {
-                const etacal_quote_move *m = &d.moves[i];
-                if (m->in_old == m->in_new)
-                    continue;
-                if (!head++)
-                    printf("\nsegments with a row in one table only:\n");
-                char who[160];
-                keys_label(who, sizeof who, m->in_new ? r.q : cur, m->keys);
-                printf("  %s %s at target %g\n", m->in_new ? "added  " : "removed", who, m->target);
-            }
-        } else {
-            printf("current table: %s\n", cur_problem[0] ? "not valid" : "none");
-        }
-        printf("\nguards:\n");
-        text_table tt;
-        if (tt_init(&tt, 3) != 0) {
-            report_bad = 1;
-        } else {
-            for (size_t i = 0; i < ng; i++) {
-                const char *cells[3] = {g[i].name, g[i].ok > 0 ? "ok" : g[i].ok == 0 ? "FAILED" : "-",
-                                        g[i].detail};
-                tt_add(&tt, cells);
-            }
-            if (tt_print(&tt, stdout) != 0)
-                report_bad = 1;
-            tt_free(&tt);
-        }
-        putchar('\n');
-        if (refused)
-            printf("refused: nothing replaced; %s is left as it was\n", po.table);
-        else if (po.dry_run)
-            printf("dry run: every guard holds; %s is unchanged\n", po.table);
-        else {
-            printf("published: %s", po.table);
-            if (kept)
-                printf(" (the previous table kept as %s)", prev);
-            printf("; provenance in %s", meta);
-            if (hist[0])
-                printf("; history copy %s", hist);
-            putchar('\n');
-        }
+/* The largest moves at the reference order, at most --show of them. */
+static int print_moves(const report_view *v)
+{
+    const etacal_quotes *q = v->q;
+    const etacal_quotes_diff *d = v->d;
+    size_t shown = 0;
+    for (size_t i = 0; i < d->nmoves; i++)
+        shown += isfinite(move_of(&d->moves[i])) && move_of(&d->moves[i]) != 0;
+    if (!shown || !v->po->show)
+        return 0;
+    printf("\nlargest moves of the promise at the reference order:\n");
+    size_t nk = q->nkeys ? q->nkeys : 1;
+    text_table tt;
+    if (tt_init(&tt, nk + 4) != 0)
+        return -1;
+    const char *cells[FIT_MAX_KEYS + 4];
+    char b[4][48];
+    size_t k = 0;
+    for (size_t j = 0; j < q->nkeys; j++)
+        cells[k++] = q->key_names[j];
+    if (!q->nkeys)
+        cells[k++] = "segment";
+    cells[k++] = "target";
+    cells[k++] = "current s";
+    cells[k++] = "new s";
+    cells[k++] = "move s";
+    tt_add(&tt, cells);
+    for (size_t j = nk; j < nk + 4; j++)
+        tt.right[j] = 1;
+    size_t listed = 0;
+    for (size_t i = 0; i < d->nmoves && listed < v->po->show; i++) {
+        const etacal_quote_move *m = &d->moves[i];
+        double mvv = move_of(m);
+        if (!isfinite(mvv) || mvv == 0)
+            continue;
+        k = 0;
+        for (size_t j = 0; j < q->nkeys; j++)
+            cells[k++] = d->keys_differ ? "*" : m->keys[j];
+        if (!q->nkeys)
+            cells[k++] = "*";
+        snprintf(b[0], sizeof b[0], "%g", m->target);
+        snprintf(b[1], sizeof b[1], "%.1f", m->old_promise);
+        snprintf(b[2], sizeof b[2], "%.1f", m->new_promise);
+        snprintf(b[3], sizeof b[3], "%+.1f", mvv);
+        for (int j = 0; j < 4; j++)
+            cells[k++] = b[j];
+        tt_add(&tt, cells);
+        listed++;
     }
+    int rc = tt_print(&tt, stdout);
+    tt_free(&tt);
+    return rc;
+}
+
+/* The comparison with the current table (there is one). */
+static int print_comparison(const report_view *v)
+{
+    const etacal_quotes_diff *d = v->d;
+    print_table_line("current table", v->cur);
+    printf("reference order: prediction %.1f s", v->ref_pred);
+    for (size_t j = 0; j < v->a->nx; j++)
+        printf(", %s %g", v->a->xs[j], v->ref_x[j]);
+    printf(" (%s)\n", v->po->have_ref ? "--ref-pred" : "medians of the data");
+    printf("segments: %zu added, %zu removed, %zu changed, %zu unchanged; %zu promises compared\n", d->segs_added,
+           d->segs_removed, d->segs_changed, d->segs_same, etacal_publish_result_compared(v->res));
+    int rc = print_moves(v);
+    int head = 0;
+    for (size_t i = 0; i < d->nmoves; i++) {
+        const etacal_quote_move *m = &d->moves[i];
+        if (m->in_old == m->in_new)
+            continue;
+        if (!head++)
+            printf("\nsegments with a row in one table only:\n");
+        char who[160];
+        keys_label(who, sizeof who, m->in_new ? v->q : v->cur, m->keys);
+        printf("  %s %s at target %g\n", m->in_new ? "added  " : "removed", who, m->target);
+    }
+    return rc;
+}
+
+/* The change report as text: 0, or -1 when a table of it ran out of memory. */
+static int print_text(const report_view *v)
+{
+    const publish_opts *po = v->po;
+    int bad = 0;
+    printf("etacal publish: %s from %s\n", po->table, v->path);
+    printf("rows: %zu read, %zu used, %zu left out (missing actual or prediction), %zu malformed skipped\n",
+           v->rs->data_rows, v->used, v->rs->missing, v->rs->bad);
+    print_table_line("new table", v->q);
+    if (v->d)
+        bad |= print_comparison(v) != 0;
+    else
+        printf("current table: %s\n", etacal_publish_result_current_problem(v->res)[0] ? "not valid" : "none");
+    printf("\nguards:\n");
+    text_table tt;
+    if (tt_init(&tt, 3) != 0) {
+        bad = 1;
+    } else {
+        for (size_t i = 0; i < v->ng; i++) {
+            int st = v->g[i].status;
+            const char *cells[3] = {v->g[i].name,
+                                    st == ETACAL_GUARD_PASSED ? "ok" : st == ETACAL_GUARD_FAILED ? "FAILED" : "-",
+                                    v->g[i].message};
+            tt_add(&tt, cells);
+        }
+        bad |= tt_print(&tt, stdout) != 0;
+        tt_free(&tt);
+    }
+    putchar('\n');
+    int outcome = etacal_publish_result_outcome(v->res);
+    if (outcome == ETACAL_PUBLISH_REFUSED) {
+        printf("refused: nothing replaced; %s is left as it was\n", po->table);
+    } else if (outcome == ETACAL_PUBLISH_DRY_RUN) {
+        printf("dry run: every guard holds; %s is unchanged\n", po->table);
+    } else {
+        const char *prev = etacal_publish_result_prev_path(v->res);
+        const char *meta = etacal_publish_result_record_path(v->res);
+        const char *hist = etacal_publish_result_history_path(v->res);
+        printf("published: %s", po->table);
+        if (prev[0])
+            printf(" (the previous table kept as %s)", prev);
+        if (meta[0])
+            printf("; provenance in %s", meta);
+        if (hist[0])
+            printf("; history copy %s", hist);
+        putchar('\n');
+    }
+    return bad ? -1 : 0;
+}
+
+/* The report, the refusal's lines and the exit status (status: 0, or 1
+ * after an error that followed the replacement). */
+static int report(const report_view *v, int status)
+{
+    int bad = 0;
+    if (!v->po->quiet)
+        bad = strcmp(v->po->format, "json") == 0 ? print_json(v) : print_text(v);
     fflush(stdout); /* the report before the lines on stderr */
-    if (report_bad) {
+    int refused = etacal_publish_result_outcome(v->res) == ETACAL_PUBLISH_REFUSED;
+    if (bad) {
         fprintf(stderr, "etacal: publish: out of memory: the change report is incomplete%s\n",
-                refused || po.dry_run ? "; nothing replaced" : "; the table is published");
+                etacal_publish_result_outcome(v->res) != ETACAL_PUBLISHED ? "; nothing replaced"
+                                                                          : "; the table is published");
         status = EXIT_DATA;
     }
     if (refused) {
-        for (size_t i = 0; i < ng; i++)
-            if (g[i].ok == 0)
-                fprintf(stderr, "etacal: publish: refused by the %s guard: %s\n", g[i].name, g[i].detail);
-        if (!report_bad)
+        for (size_t i = 0; i < v->ng; i++)
+            if (v->g[i].status == ETACAL_GUARD_FAILED)
+                fprintf(stderr, "etacal: publish: refused by the %s guard: %s\n", v->g[i].name, v->g[i].message);
+        if (!bad)
             status = EXIT_REFUSED;
     }
-    json_decref(root);
-    free(buf);
-    etacal_quotes_diff_free(&d);
-    etacal_quotes_destroy(back);
-    etacal_quotes_destroy(cur);
-    fit_result_free(&r);
-    etacal_lock_release(lock);
     return status;
-fail:
-    etacal_outfile_abort(&of);
-    free(buf);
-    etacal_quotes_diff_free(&d);
-    etacal_quotes_destroy(back);
-    etacal_quotes_destroy(cur);
-    fit_result_free(&r);
-    etacal_lock_release(lock);
-    return report_error(&err);
+}
+
+static int publish(int argc, char **argv, char **given)
+{
+    fit_args a;
+    fit_args_init(&a);
+    a.ro.bad_rows = ETACAL_BAD_ROWS_SKIP; /* the guard judges the share */
+    publish_opts po = {.format = "text", .max_bad = -1, .wait_s = 60, .min_total = 1000, .show = 10};
+    int st = parse_options(argc, argv, &a, &po);
+    if (st >= 0)
+        return st;
+    const char *path = argv[optind];
+    etacal_publishspec ps;
+    make_spec(&ps, &a, &po, path, given, argc + 1);
+    progress pg = {path, 0, -1};
+    ps.ro.progress = progress_cb;
+    ps.ro.progress_ud = &pg;
+
+    etacal_error err;
+    etacal_error_clear(&err);
+    etacal_publish_result *res = NULL;
+    int rc = etacal_publish_run(&ps, &res, &err);
+    progress_end(&pg);
+    if (rc && !res)
+        return report_error(&err);
+    int status = 0;
+    if (rc) {
+        /* the table itself is published: say what did not follow */
+        if (!etacal_publish_result_record(res, NULL))
+            fprintf(stderr, "etacal: publish: the table is published, but its provenance record is not: %s\n",
+                    err.msg);
+        else
+            fprintf(stderr, "etacal: publish: the table is published, but: %s%s%s\n", err.where,
+                    err.where[0] ? ": " : "", err.msg);
+        status = EXIT_DATA;
+    }
+    const etacal_fit_run *fit = etacal_publish_result_fit(res);
+    const etacal_table *t = etacal_fit_run_rows(fit);
+    report_view v = {.po = &po, .a = &a, .path = path, .res = res};
+    v.q = etacal_fit_run_quotes(fit);
+    v.cur = etacal_publish_result_current(res);
+    v.d = etacal_publish_result_diff(res);
+    v.rs = etacal_table_stats(t);
+    v.used = etacal_table_rows(t);
+    v.g = etacal_publish_result_guards(res, &v.ng);
+    v.ref_pred = etacal_publish_result_reference(res, &v.ref_x);
+    status = report(&v, status);
+    etacal_publish_result_destroy(res);
+    return status;
 }

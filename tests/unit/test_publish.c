@@ -2,7 +2,11 @@
 /* test_publish.c: what `etacal publish` is built on: SHA-256 against the
  * FIPS 180-2 worked examples, the promise of a table at a reference order
  * (the same as `etacal apply` gives), the comparison of two tables, the
- * lock beside the table and the copy of the previous table. */
+ * lock beside the table and the copy of the previous table; and the whole
+ * publish as one call (etacal_publish_run): each guard's record (name,
+ * status, value, limit) on small hand-made tables whose buffers and
+ * held-out rates can be worked out by hand, the provenance record, and
+ * which files a published, refused or dry run leaves. */
 #define _GNU_SOURCE
 #include <stdarg.h>
 #include <stddef.h>
@@ -348,6 +352,374 @@ static void test_reference_point(void **state)
     tu_dir_remove(&d);
 }
 
+
+/* ---- publishing as one call ---------------------------------------------- */
+
+/* 19 orders predicted at 1000 s that took 1000 + 10 i s (i = 1..19): the
+ * scores are 10, 20, ..., 190, and the add buffer of target 0.9 is the
+ * ceil((19 + 1) 0.9) = 18th smallest, 180 s (split conformal rank).  The
+ * one-row table a fit gives is "target 0.9, offset 180, slope 1", so its
+ * promise at the reference prediction 1000 (the median) is 1180 s. */
+static void cal_rows(char *buf, size_t size, int bad_row)
+{
+    size_t w = (size_t)snprintf(buf, size, "actual_s,pred_s\n");
+    for (int i = 1; i <= 19; i++)
+        w += (size_t)snprintf(buf + w, size - w, "%d,1000\n", 1000 + 10 * i);
+    if (bad_row)
+        snprintf(buf + w, size - w, "abc,1000\n");
+}
+
+static const char *cur_150 = "target,method,n,k,offset_s,slope\n0.9,add,19,18,150,1\n";
+
+typedef struct pub_case {
+    tu_dir d;
+    char cal[600], table[600];
+    etacal_publishspec s;
+    const char *cmd[3];
+} pub_case;
+
+/* A scratch directory with cal.csv (bad_row: one malformed row more) and,
+ * when current is not NULL, q.csv holding it; the spec publishes cal.csv
+ * over q.csv at 2025-12-02T00:00:00Z with limits that every guard
+ * passes. */
+static void pub_setup(pub_case *c, int bad_row, const char *current)
+{
+    tu_dir_make(&c->d);
+    char text[1024];
+    cal_rows(text, sizeof text, bad_row);
+    tu_write_text(&c->d, "cal.csv", text, c->cal, sizeof c->cal);
+    if (current)
+        tu_write_text(&c->d, "q.csv", current, c->table, sizeof c->table);
+    else
+        tu_path(c->table, sizeof c->table, &c->d, "q.csv");
+    etacal_publishspec_init(&c->s);
+    c->s.fit.actual = "actual_s";
+    c->s.fit.pred = "pred_s";
+    c->s.input = c->cal;
+    c->s.table = c->table;
+    c->s.min_total_rows = 10;
+    c->s.wait_s = 0;
+    c->s.now = 1764633600; /* 2025-12-02T00:00:00Z */
+    c->cmd[0] = "test";
+    c->cmd[1] = "publish";
+    c->cmd[2] = "\"quoted\"";
+    c->s.command = c->cmd;
+    c->s.ncommand = 3;
+}
+
+static etacal_publish_result *pub_run(pub_case *c)
+{
+    etacal_publish_result *r = NULL;
+    etacal_error err;
+    etacal_error_clear(&err);
+    int rc = etacal_publish_run(&c->s, &r, &err);
+    if (rc != ETACAL_OK)
+        fail_msg("publish: %s: %s", err.where, err.msg);
+    assert_non_null(r);
+    return r;
+}
+
+static const etacal_guard *guard_of(const etacal_publish_result *r, const char *name)
+{
+    size_t n = 0;
+    const etacal_guard *g = etacal_publish_result_guards(r, &n);
+    assert_int_equal(n, ETACAL_PUBLISH_NGUARDS);
+    for (size_t i = 0; i < n; i++)
+        if (strcmp(g[i].name, name) == 0)
+            return &g[i];
+    fail_msg("no guard '%s'", name);
+    return NULL;
+}
+
+/* status, value and limit of one guard (NaN expected: NaN found) */
+static void check_guard(const etacal_publish_result *r, const char *name, int status, double value, double limit,
+                        const char *unit)
+{
+    const etacal_guard *g = guard_of(r, name);
+    if (g->status != status)
+        fail_msg("guard %s: status %d, expected %d (%s)", name, g->status, status, g->message);
+    if (!tu_close(g->value, value, 1e-12))
+        fail_msg("guard %s: value %.17g, expected %.17g", name, g->value, value);
+    if (!tu_close(g->limit, limit, 1e-12))
+        fail_msg("guard %s: limit %.17g, expected %.17g", name, g->limit, limit);
+    assert_string_equal(g->unit, unit);
+}
+
+static int exists(const tu_dir *d, const char *name)
+{
+    char p[700];
+    tu_path(p, sizeof p, d, name);
+    return access(p, F_OK) == 0;
+}
+
+/* The first table: every guard holds or has nothing to compare with; the
+ * table written is the fit's, the record on disk is the result's. */
+static void test_publish_first(void **state)
+{
+    (void)state;
+    pub_case c;
+    pub_setup(&c, 0, NULL);
+    etacal_publish_result *r = pub_run(&c);
+    assert_int_equal(etacal_publish_result_outcome(r), ETACAL_PUBLISHED);
+    check_guard(r, "rows", ETACAL_GUARD_PASSED, 19, 10, "rows");
+    check_guard(r, "bad rows", ETACAL_GUARD_PASSED, 0, 0.01, "share");
+    check_guard(r, "current table", ETACAL_GUARD_PASSED, NAN, NAN, "");
+    assert_string_equal(guard_of(r, "current table")->message, "none yet: this is the first table");
+    check_guard(r, "change", ETACAL_GUARD_SKIPPED, NAN, NAN, "");
+    check_guard(r, "layout", ETACAL_GUARD_SKIPPED, NAN, NAN, "");
+    check_guard(r, "holdout", ETACAL_GUARD_SKIPPED, NAN, NAN, "");
+    check_guard(r, "well formed", ETACAL_GUARD_PASSED, 1, NAN, "rows");
+    assert_null(etacal_publish_result_current(r));
+    assert_null(etacal_publish_result_diff(r));
+    const double *x;
+    assert_true(etacal_publish_result_reference(r, &x) == 1000);
+    /* the table: the hand-worked buffer */
+    size_t len;
+    char *got = tu_read_file(c.table, &len);
+    const etacal_quotes *q = etacal_fit_run_quotes(etacal_publish_result_fit(r));
+    assert_int_equal(q->nrows, 1);
+    assert_true(q->rows[0].offset_s == 180 && q->rows[0].slope == 1);
+    /* the record: on disk as returned; written_at is the caller's time */
+    const char *rec = etacal_publish_result_record(r, &len);
+    assert_non_null(rec);
+    assert_int_equal(rec[len - 1], '\n');
+    char meta[700];
+    tu_path(meta, sizeof meta, &c.d, "q.csv.meta.json");
+    assert_string_equal(etacal_publish_result_record_path(r), meta);
+    size_t mlen;
+    char *m = tu_read_file(meta, &mlen);
+    assert_int_equal(mlen, len);
+    assert_memory_equal(m, rec, len);
+    assert_non_null(strstr(rec, "\"written_at\": \"2025-12-02T00:00:00Z\""));
+    assert_non_null(strstr(rec, "\"command\": [\n    \"test\",\n    \"publish\",\n    \"\\\"quoted\\\"\"\n  ]"));
+    /* the table's checksum in the record is the file's */
+    char hex[65], want[80];
+    assert_int_equal(etacal_sha256_file(c.table, hex, NULL, NULL), ETACAL_OK);
+    snprintf(want, sizeof want, "\"sha256\": \"%s\"", hex);
+    assert_non_null(strstr(rec, want));
+    assert_string_equal(etacal_publish_result_prev_path(r), "");
+    assert_false(exists(&c.d, "q.csv.prev"));
+    free(m);
+    free(got);
+    etacal_publish_result_destroy(r);
+    tu_dir_remove(&c.d);
+}
+
+/* Against a current table whose buffer is 150 s: every promise moves by
+ * +30 s, that is +30/1150 = 2.6087% of the current promise at 1000 s. */
+static void test_publish_change_guard(void **state)
+{
+    (void)state;
+    pub_case c;
+    pub_setup(&c, 0, cur_150);
+    /* the default limit: 25% */
+    etacal_publish_result *r = pub_run(&c);
+    assert_int_equal(etacal_publish_result_outcome(r), ETACAL_PUBLISHED);
+    check_guard(r, "change", ETACAL_GUARD_PASSED, 100.0 * 30 / 1150, 25, "%");
+    check_guard(r, "current table", ETACAL_GUARD_PASSED, NAN, NAN, "");
+    check_guard(r, "layout", ETACAL_GUARD_PASSED, NAN, NAN, "");
+    assert_int_equal(etacal_publish_result_compared(r), 1);
+    const etacal_quotes_diff *df = etacal_publish_result_diff(r);
+    assert_non_null(df);
+    assert_int_equal(df->nmoves, 1);
+    assert_true(df->moves[0].old_promise == 1150 && df->moves[0].new_promise == 1180);
+    assert_true(exists(&c.d, "q.csv.prev"));
+    etacal_publish_result_destroy(r);
+
+    /* 20 s: refused; the value in seconds, the table left as it was */
+    tu_write_text(&c.d, "q.csv", cur_150, c.table, sizeof c.table);
+    c.s.max_change_s = 20;
+    r = pub_run(&c);
+    assert_int_equal(etacal_publish_result_outcome(r), ETACAL_PUBLISH_REFUSED);
+    check_guard(r, "change", ETACAL_GUARD_FAILED, 30, 20, "s");
+    assert_string_equal(guard_of(r, "change")->message,
+                        "move nearest the limit +30.0 s (+2.6%) at global, target 0.9; limit 20 s");
+    size_t len;
+    char *got = tu_read_file(c.table, &len);
+    assert_string_equal(got, cur_150);
+    free(got);
+    /* a refused run builds its record but writes none */
+    assert_non_null(etacal_publish_result_record(r, NULL));
+    assert_string_equal(etacal_publish_result_record_path(r), "");
+    etacal_publish_result_destroy(r);
+
+    /* 20 s and 5%: the seconds bind (30 s is 50% over 20 s; 2.6% is
+     * within 5%) */
+    c.s.max_change_pct = 5;
+    r = pub_run(&c);
+    check_guard(r, "change", ETACAL_GUARD_FAILED, 30, 20, "s");
+    etacal_publish_result_destroy(r);
+    /* 40 s and 2%: the percentage binds */
+    c.s.max_change_s = 40;
+    c.s.max_change_pct = 2;
+    r = pub_run(&c);
+    check_guard(r, "change", ETACAL_GUARD_FAILED, 100.0 * 30 / 1150, 2, "%");
+    etacal_publish_result_destroy(r);
+    /* the reference prediction given: the same move, 30/1650 of 1650 s */
+    c.s.ref_pred = 1500;
+    c.s.max_change_s = NAN;
+    r = pub_run(&c);
+    check_guard(r, "change", ETACAL_GUARD_PASSED, 100.0 * 30 / 1650, 2, "%");
+    assert_true(etacal_publish_result_reference(r, NULL) == 1500);
+    etacal_publish_result_destroy(r);
+    tu_dir_remove(&c.d);
+}
+
+static void test_publish_rows_and_bad_rows(void **state)
+{
+    (void)state;
+    pub_case c;
+    pub_setup(&c, 1, NULL);
+    /* 19 rows used, one of 20 skipped: 5% against 1% */
+    c.s.min_total_rows = 20;
+    etacal_publish_result *r = pub_run(&c);
+    assert_int_equal(etacal_publish_result_outcome(r), ETACAL_PUBLISH_REFUSED);
+    check_guard(r, "rows", ETACAL_GUARD_FAILED, 19, 20, "rows");
+    check_guard(r, "bad rows", ETACAL_GUARD_FAILED, 0.05, 0.01, "share");
+    assert_string_equal(guard_of(r, "bad rows")->message,
+                        "1 of 20 skipped (5.00%), at most 1.00% allowed (--max-bad-share)");
+    assert_false(exists(&c.d, "q.csv"));
+    assert_false(exists(&c.d, "q.csv.meta.json"));
+    etacal_publish_result_destroy(r);
+    c.s.min_total_rows = 19;
+    c.s.max_bad_share = 0.05;
+    r = pub_run(&c);
+    assert_int_equal(etacal_publish_result_outcome(r), ETACAL_PUBLISHED);
+    check_guard(r, "rows", ETACAL_GUARD_PASSED, 19, 19, "rows");
+    check_guard(r, "bad rows", ETACAL_GUARD_PASSED, 0.05, 0.05, "share");
+    etacal_publish_result_destroy(r);
+    tu_dir_remove(&c.d);
+}
+
+static void test_publish_current_and_layout(void **state)
+{
+    (void)state;
+    pub_case c;
+    /* a current table that is not a quote table */
+    pub_setup(&c, 0, "target,method,n,k,offset_s,slope\n0.9,addd,19,18,150,1\n");
+    etacal_publish_result *r = pub_run(&c);
+    assert_int_equal(etacal_publish_result_outcome(r), ETACAL_PUBLISH_REFUSED);
+    check_guard(r, "current table", ETACAL_GUARD_FAILED, NAN, NAN, "");
+    assert_true(strncmp(guard_of(r, "current table")->message, "not valid (", 11) == 0);
+    assert_true(etacal_publish_result_current_problem(r)[0] != '\0');
+    check_guard(r, "change", ETACAL_GUARD_SKIPPED, NAN, NAN, "");
+    etacal_publish_result_destroy(r);
+    tu_dir_remove(&c.d);
+
+    /* other key columns: the layout guard refuses unless allowed */
+    pub_setup(&c, 0, "zone,target,method,n,k,offset_s,slope\n*,0.9,add,19,18,150,1\n");
+    r = pub_run(&c);
+    check_guard(r, "layout", ETACAL_GUARD_FAILED, NAN, NAN, "");
+    assert_string_equal(guard_of(r, "layout")->message, "the key columns differ from the current table's");
+    etacal_publish_result_destroy(r);
+    c.s.allow_layout_change = 1;
+    r = pub_run(&c);
+    assert_int_equal(etacal_publish_result_outcome(r), ETACAL_PUBLISHED);
+    check_guard(r, "layout", ETACAL_GUARD_PASSED, NAN, NAN, "");
+    etacal_publish_result_destroy(r);
+    tu_dir_remove(&c.d);
+
+    /* a target of the current table missing from the new one */
+    pub_setup(&c, 0, "target,method,n,k,offset_s,slope\n0.8,add,19,16,120,1\n0.9,add,19,18,150,1\n");
+    c.s.dry_run = 1;
+    r = pub_run(&c);
+    assert_int_equal(etacal_publish_result_outcome(r), ETACAL_PUBLISH_REFUSED);
+    check_guard(r, "layout", ETACAL_GUARD_FAILED, NAN, NAN, "");
+    assert_string_equal(guard_of(r, "layout")->message, "the current table's target 0.8 is missing");
+    etacal_publish_result_destroy(r);
+    /* both targets: a dry run that passes replaces nothing */
+    double tg[2] = {0.8, 0.9};
+    c.s.fit.targets = tg;
+    c.s.fit.ntargets = 2;
+    r = pub_run(&c);
+    assert_int_equal(etacal_publish_result_outcome(r), ETACAL_PUBLISH_DRY_RUN);
+    check_guard(r, "layout", ETACAL_GUARD_PASSED, NAN, NAN, "");
+    assert_false(exists(&c.d, "q.csv.prev"));
+    assert_false(exists(&c.d, "q.csv.meta.json"));
+    assert_int_equal(tu_dir_count(c.d.path), 3); /* cal.csv, q.csv, q.csv.lock */
+    etacal_publish_result_destroy(r);
+    tu_dir_remove(&c.d);
+}
+
+/* Held-out rows: 20 orders at times 1..20 (Unix seconds), the latest 4
+ * held out.  Wilson's upper bound at x = 0 of n is z^2 / (n + z^2) (the
+ * formula of binom.h with x = 0), at x = n it is 1. */
+static void test_publish_holdout_guard(void **state)
+{
+    (void)state;
+    for (int late_slow = 0; late_slow < 2; late_slow++) {
+        pub_case c;
+        pub_setup(&c, 0, NULL);
+        char text[1024];
+        size_t w = (size_t)snprintf(text, sizeof text, "actual_s,pred_s,t\n");
+        for (int i = 1; i <= 20; i++) {
+            /* the fit's 16 rows score 10..160; the held-out ones 500 or 1 */
+            int score = i <= 16 ? 10 * i : late_slow ? 500 : 1;
+            w += (size_t)snprintf(text + w, sizeof text - w, "%d,1000,%d\n", 1000 + score, i);
+        }
+        tu_write_text(&c.d, "cal.csv", text, c.cal, sizeof c.cal);
+        c.s.fit.time = "t";
+        c.s.fit.holdout = 0.2;
+        etacal_publish_result *r = pub_run(&c);
+        assert_int_equal(etacal_fit_run_held(etacal_publish_result_fit(r)), 4);
+        double z = 1.959963984540054; /* Phi^-1(0.975), handbook value */
+        double hi = late_slow ? z * z / (4 + z * z) : 1;
+        /* not required: skipped, the numbers still given */
+        check_guard(r, "holdout", ETACAL_GUARD_SKIPPED, hi, 0.9, "share");
+        assert_non_null(strstr(guard_of(r, "holdout")->message, "(not required)"));
+        etacal_publish_result_destroy(r);
+        c.s.require_holdout = 1;
+        r = pub_run(&c);
+        check_guard(r, "holdout", late_slow ? ETACAL_GUARD_FAILED : ETACAL_GUARD_PASSED, hi, 0.9, "share");
+        assert_int_equal(etacal_publish_result_outcome(r), late_slow ? ETACAL_PUBLISH_REFUSED : ETACAL_PUBLISHED);
+        etacal_publish_result_destroy(r);
+        tu_dir_remove(&c.d);
+    }
+}
+
+static void test_publish_errors_and_history(void **state)
+{
+    (void)state;
+    pub_case c;
+    pub_setup(&c, 0, NULL);
+    etacal_publish_result *r = (etacal_publish_result *)(void *)&c; /* a run must reset it */
+    etacal_error err;
+    c.s.now = NAN;
+    assert_int_equal(etacal_publish_run(&c.s, &r, &err), ETACAL_EINVAL);
+    assert_null(r);
+    assert_non_null(strstr(err.msg, "current time"));
+    c.s.now = 1764633600;
+    c.s.require_holdout = 1;
+    assert_int_equal(etacal_publish_run(&c.s, &r, &err), ETACAL_EINVAL);
+    assert_non_null(strstr(err.msg, "--holdout"));
+    c.s.require_holdout = 0;
+    c.s.input = "-";
+    assert_int_equal(etacal_publish_run(&c.s, &r, &err), ETACAL_EINVAL);
+    c.s.input = c.cal;
+    /* the lock held elsewhere: an error, nothing written */
+    int fd = -1;
+    assert_int_equal(etacal_lock_acquire(c.table, 0, &fd, &err), ETACAL_OK);
+    assert_int_equal(etacal_publish_run(&c.s, &r, &err), ETACAL_EIO);
+    assert_null(r);
+    etacal_lock_release(fd);
+    assert_false(exists(&c.d, "q.csv"));
+    /* history copies named by the caller's time, -2 for the second */
+    char hist[700];
+    tu_path(hist, sizeof hist, &c.d, "hist");
+    c.s.history = hist;
+    for (int k = 0; k < 2; k++) {
+        r = pub_run(&c);
+        char want[800];
+        snprintf(want, sizeof want, "%s/q.csv.20251202T000000Z%s", hist, k ? "-2" : "");
+        assert_string_equal(etacal_publish_result_history_path(r), want);
+        etacal_publish_result_destroy(r);
+    }
+    assert_true(exists(&c.d, "hist/q.csv.20251202T000000Z.meta.json"));
+    assert_true(exists(&c.d, "hist/q.csv.20251202T000000Z-2.meta.json"));
+    tu_rm_tree(hist);
+    tu_dir_remove(&c.d);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -355,6 +727,11 @@ int main(void)
         cmocka_unit_test(test_sha256_file),     cmocka_unit_test(test_promise_at_matches_apply),
         cmocka_unit_test(test_compare),         cmocka_unit_test(test_lock),
         cmocka_unit_test(test_keep_copy),       cmocka_unit_test(test_reference_point),
+        cmocka_unit_test(test_publish_first),   cmocka_unit_test(test_publish_change_guard),
+        cmocka_unit_test(test_publish_rows_and_bad_rows),
+        cmocka_unit_test(test_publish_current_and_layout),
+        cmocka_unit_test(test_publish_holdout_guard),
+        cmocka_unit_test(test_publish_errors_and_history),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
