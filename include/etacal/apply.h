@@ -32,6 +32,9 @@ typedef struct etacal_apply_stats {
     size_t missing_pred;  /* rows with an empty / NA prediction: empty promise */
     size_t bad;           /* malformed rows passed through with an empty promise */
     size_t fallback;      /* promised rows whose own segment had no row (first target) */
+    size_t clamped;       /* promised rows with a covariate outside the range of
+                             the table row (method qr), clamped into it */
+    size_t floored;       /* promised rows whose formula gave less than 0: promise 0 */
     /* With actual_col: rows with both a promise and an actual value, and how
      * many arrived by the promise (per selected target, in order) and by the
      * bare prediction. */
@@ -51,8 +54,9 @@ typedef struct etacal_apply_stats {
  * promise_s_97.5) for several.  The key columns of q are looked up in the
  * orders' header by name.  An order takes the most specific row of the table
  * that matches it: its own segment, then its segment with the last keys
- * replaced by "*", down to the global row.  Promises are in seconds, rounded
- * up (never down).  Memory does not grow with the number of orders.  On error
+ * replaced by "*", down to the global row.  The promise is
+ * etacal_quote_promise's (covariates clamped into the row's range, never
+ * below 0), in seconds, rounded up (never down).  Memory does not grow with the number of orders.  On error
  * the output is incomplete: write to an etacal_outfile to keep it from
  * appearing. */
 int etacal_apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,

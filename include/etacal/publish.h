@@ -73,7 +73,8 @@ void etacal_quotes_diff_free(etacal_quotes_diff *d);
 
 /* The promise the table gives keys (nkeys values, "*" for any) at target
  * index ti, at pred and covariates x (in q's coef order), with apply's
- * fallback to the nearest level above; NaN when no row matches. */
+ * fallback to the nearest level above and its formula (etacal_quote_promise:
+ * covariates clamped, never below 0); NaN when no row matches. */
 double etacal_quotes_promise_at(const etacal_quotes *q, const char *const *keys, size_t ti, double pred,
                                 const double *x);
 
