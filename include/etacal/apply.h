@@ -12,6 +12,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 #define ETACAL_APPLY_MAX_TARGETS 32
 
@@ -66,6 +71,9 @@ int etacal_apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,
  * millisecond when round_s is 0. */
 double etacal_promise_round(double promise, double round_s);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -16,6 +16,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 /* ---- SHA-256 (FIPS 180-4) ----------------------------------------------- */
 typedef struct etacal_sha256 {
@@ -98,6 +103,9 @@ int etacal_keep_copy(const char *path, const char *keep, int *kept, etacal_error
 /* Writes the n bytes of data to path atomically (etacal_outfile). */
 int etacal_write_file(const char *path, const void *data, size_t n, etacal_error *err);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -18,6 +18,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 typedef struct etacal_qr_opts {
     double eps;          /* duality-gap tolerance (absolute); 0 means 1e-6 */
@@ -120,6 +125,9 @@ int etacal_qr_predict_csv(const double *coef, const double *taus, size_t ntau, s
                           const char *const *xnames, const char *in_path, FILE *out,
                           const etacal_qr_predict_opts *opts, etacal_qr_predict_stats *stats, etacal_error *err);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -19,6 +19,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 enum {
     ETACAL_METHOD_ADD = 0,  /* score actual - pred; promise = pred + q */
@@ -212,6 +217,9 @@ double etacal_quote_promise(const etacal_quotes *q, const etacal_quote *row, dou
 /* Index of the target equal to tau, or -1. */
 long etacal_quotes_find_target(const etacal_quotes *q, double tau);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif
