@@ -4,11 +4,21 @@
 # Both install missing Debian packages first when they can (scripts/deps.sh).
 
 CC       ?= cc
-CFLAGS   ?= -std=c11 -O2 -g -Wall -Wextra -Wpedantic -Wshadow -Wstrict-prototypes -Wmissing-prototypes
+# A packager's CFLAGS, CPPFLAGS and LDFLAGS are honoured; the language
+# standard and the warning set (WARN) are always added, so they cannot be
+# lost by overriding CFLAGS.
+CFLAGS   ?= -O2 -g
+CPPFLAGS ?=
+LDFLAGS  ?=
+WARN     := -std=c11 -Wall -Wextra -Wpedantic -Wshadow -Wstrict-prototypes -Wmissing-prototypes
 WERROR   ?=
 SAN      ?=
 BUILD    ?= build
 PREFIX   ?= /usr/local
+BINDIR   ?= $(PREFIX)/bin
+LIBDIR   ?= $(PREFIX)/lib
+INCLUDEDIR ?= $(PREFIX)/include
+MANDIR   ?= $(PREFIX)/share/man
 DESTDIR  ?=
 PYTHON   ?= /usr/bin/python3
 
@@ -18,8 +28,14 @@ PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null || echo -lgsl -lgslc
 CMOCKA_CFLAGS := $(shell pkg-config --cflags cmocka 2>/dev/null)
 CMOCKA_LIBS   := $(shell pkg-config --libs cmocka 2>/dev/null || echo -lcmocka)
 
-ALL_CFLAGS = $(CFLAGS) $(WERROR) $(SAN) -D_POSIX_C_SOURCE=200809L -Iinclude -Isrc $(PKG_CFLAGS)
-LDLIBS_ALL = -lcsv $(PKG_LIBS) -lm
+ALL_CFLAGS = $(WARN) $(CFLAGS) $(WERROR) $(SAN) $(CPPFLAGS) -D_POSIX_C_SOURCE=200809L -Iinclude -Isrc $(PKG_CFLAGS)
+LDLIBS_ALL = $(LDFLAGS) -lcsv $(PKG_LIBS) -lm
+# The library's own dependencies (jansson writes publish's provenance record).
+LIB_LIBS   := -lcsv $(shell pkg-config --libs gsl jansson 2>/dev/null || echo -lgsl -lgslcblas -ljansson) -lm
+# Library objects: position-independent (they make libetacal.so too) and
+# hidden by default; the public headers mark their declarations visible
+# (#pragma GCC visibility), so libetacal.so exports etacal_* only.
+LIB_CFLAGS := -fPIC -fvisibility=hidden
 
 LIB_SRC := $(wildcard src/*.c)
 CLI_SRC := $(wildcard src/cli/*.c)
@@ -29,31 +45,46 @@ HDRS    := $(wildcard include/etacal/*.h) $(wildcard src/*.h) $(wildcard src/cli
 UNIT_SRC := $(wildcard tests/unit/test_*.c)
 UNIT_BIN := $(UNIT_SRC:tests/unit/%.c=$(BUILD)/tests/%)
 LIB      := $(BUILD)/libetacal.a
+SOVER    := 0
+SONAME   := libetacal.so.$(SOVER)
+SOFILE   := libetacal.so.$(SOVER).1.0
+SHLIB    := $(BUILD)/$(SOFILE)
 BIN      := $(BUILD)/etacal
 CITYGEN  := $(BUILD)/citygen
 
-.PHONY: all deps demo check unit e2e ref fault asan install uninstall clean golden bench bench-qr format report-check browser \
-        fuzz memcheck failmalloc
+.PHONY: all deps demo check test unit e2e ref fault asan install uninstall clean golden bench bench-qr format report-check browser \
+        fuzz memcheck failmalloc exports headers
 
-all: $(BIN) $(LIB)
+all: $(BIN) $(LIB) $(SHLIB)
 
 deps:
 	@sh scripts/deps.sh
 
-$(BUILD)/obj/%.o: src/%.c $(HDRS)
+$(BUILD)/obj/cli/%.o: src/cli/%.c $(HDRS)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) -c $< -o $@
+
+$(BUILD)/obj/%.o: src/%.c $(HDRS)
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) $(LIB_CFLAGS) -c $< -o $@
 
 $(LIB): $(LIB_OBJ)
 	@rm -f $@
 	ar rcs $@ $^
 
+# libetacal.so.0 (the SONAME) -> libetacal.so.0.1.0; libetacal.so for -letacal.
+$(SHLIB): $(LIB_OBJ)
+	$(CC) $(ALL_CFLAGS) -shared -Wl,-soname,$(SONAME) -Wl,--no-undefined -o $@ $(LIB_OBJ) $(LDFLAGS) $(LIB_LIBS)
+	ln -sf $(SOFILE) $(BUILD)/$(SONAME)
+	ln -sf $(SONAME) $(BUILD)/libetacal.so
+
+# The CLI links the static library: no LD_LIBRARY_PATH needed to run it.
 $(BIN): $(CLI_OBJ) $(LIB)
 	$(CC) $(ALL_CFLAGS) -o $@ $(CLI_OBJ) $(LIB) $(LDLIBS_ALL)
 
 $(CITYGEN): examples/citygen.c
 	@mkdir -p $(dir $@)
-	$(CC) $(ALL_CFLAGS) -o $@ $< -lm
+	$(CC) $(ALL_CFLAGS) -o $@ $< $(LDFLAGS) -lm
 
 $(BUILD)/tests/%: tests/unit/%.c $(wildcard tests/unit/*.h) $(LIB)
 	@mkdir -p $(dir $@)
@@ -64,7 +95,7 @@ $(BUILD)/tests/test_fuzz_replay: $(wildcard tests/fuzz/*.c tests/fuzz/*.h)
 
 $(BUILD)/quantgen: tests/tools/quantgen.c
 	@mkdir -p $(dir $@)
-	$(CC) $(ALL_CFLAGS) -o $@ $< -lm
+	$(CC) $(ALL_CFLAGS) -o $@ $< $(LDFLAGS) -lm
 
 $(BUILD)/tests/refcalc: tests/ref/refcalc.c $(LIB)
 	@mkdir -p $(dir $@)
@@ -73,11 +104,25 @@ $(BUILD)/tests/refcalc: tests/ref/refcalc.c $(LIB)
 # ---- tests ---------------------------------------------------------------
 # The whole suite, then the same under ASan + UBSan, a subset under valgrind
 # memcheck, and the out-of-memory runs (tests/tools/failmalloc.sh).
+# `make check` first installs what the build and every test need (as root;
+# otherwise it prints the apt-get line), oracles included, then runs `make
+# test`, which installs nothing.
 check:
-	@sh scripts/deps.sh
-	@$(MAKE) --no-print-directory unit e2e ref fault report-check browser
+	@sh scripts/deps.sh --oracles
+	@$(MAKE) --no-print-directory test
+
+test:
+	@$(MAKE) --no-print-directory unit e2e ref fault report-check browser exports headers
 	@$(MAKE) --no-print-directory asan
 	@$(MAKE) --no-print-directory memcheck failmalloc
+
+# libetacal.so exports etacal_* only and has its SONAME.
+exports: $(SHLIB)
+	@sh tests/tools/exports.sh $(BUILD) $(SONAME)
+
+# Every public header compiles on its own, as C11 and (with a C++ compiler) C++11.
+headers:
+	@sh tests/tools/headers.sh "$(CC)" "$(CXX)" "$(WERROR)"
 
 unit: $(UNIT_BIN)
 	@fail=0; for t in $(UNIT_BIN); do \
@@ -119,7 +164,7 @@ memcheck: $(BIN) $(CITYGEN) $(UNIT_BIN)
 # failing (an LD_PRELOAD hook; not under ASan, which has its own allocator).
 $(BUILD)/failmalloc.so: tests/tools/failmalloc.c
 	@mkdir -p $(dir $@)
-	$(CC) $(CFLAGS) $(WERROR) -fPIC -shared -o $@ $<
+	$(CC) $(WARN) $(CFLAGS) $(WERROR) $(CPPFLAGS) -fPIC -shared -o $@ $< $(LDFLAGS)
 
 failmalloc: $(BIN) $(CITYGEN) $(BUILD)/failmalloc.so
 	@sh tests/tools/failmalloc.sh $(BUILD)
@@ -138,18 +183,28 @@ bench-qr: $(LIB)
 	bash bench/qr_run.sh
 
 # ---- install -------------------------------------------------------------
-install: $(BIN) $(LIB)
-	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/lib $(DESTDIR)$(PREFIX)/include/etacal \
-	  $(DESTDIR)$(PREFIX)/share/man/man1
-	install -m 755 $(BIN) $(DESTDIR)$(PREFIX)/bin/etacal
-	install -m 644 $(LIB) $(DESTDIR)$(PREFIX)/lib/libetacal.a
-	install -m 644 include/etacal/*.h $(DESTDIR)$(PREFIX)/include/etacal/
-	install -m 644 docs/etacal.1 $(DESTDIR)$(PREFIX)/share/man/man1/etacal.1
+# PREFIX, BINDIR, LIBDIR (say /usr/lib/x86_64-linux-gnu), INCLUDEDIR, MANDIR
+# and DESTDIR as packagers expect; etacal.pc is made from etacal.pc.in here.
+install: $(BIN) $(LIB) $(SHLIB)
+	install -d $(DESTDIR)$(BINDIR) $(DESTDIR)$(LIBDIR)/pkgconfig $(DESTDIR)$(INCLUDEDIR)/etacal \
+	  $(DESTDIR)$(MANDIR)/man1
+	install -m 755 $(BIN) $(DESTDIR)$(BINDIR)/etacal
+	install -m 644 $(LIB) $(DESTDIR)$(LIBDIR)/libetacal.a
+	install -m 755 $(SHLIB) $(DESTDIR)$(LIBDIR)/$(SOFILE)
+	ln -sf $(SOFILE) $(DESTDIR)$(LIBDIR)/$(SONAME)
+	ln -sf $(SONAME) $(DESTDIR)$(LIBDIR)/libetacal.so
+	install -m 644 include/etacal/*.h $(DESTDIR)$(INCLUDEDIR)/etacal/
+	sed -e 's|@PREFIX@|$(PREFIX)|g' -e 's|@LIBDIR@|$(LIBDIR)|g' -e 's|@INCLUDEDIR@|$(INCLUDEDIR)|g' \
+	  -e "s|@VERSION@|$$(sed -n 's/^#define ETACAL_VERSION \"\(.*\)\"/\1/p' include/etacal/etacal.h)|g" \
+	  etacal.pc.in >$(DESTDIR)$(LIBDIR)/pkgconfig/etacal.pc
+	chmod 644 $(DESTDIR)$(LIBDIR)/pkgconfig/etacal.pc
+	install -m 644 docs/etacal.1 $(DESTDIR)$(MANDIR)/man1/etacal.1
 
 uninstall:
-	rm -f $(DESTDIR)$(PREFIX)/bin/etacal $(DESTDIR)$(PREFIX)/lib/libetacal.a \
-	  $(DESTDIR)$(PREFIX)/share/man/man1/etacal.1
-	rm -rf $(DESTDIR)$(PREFIX)/include/etacal
+	rm -f $(DESTDIR)$(BINDIR)/etacal $(DESTDIR)$(LIBDIR)/libetacal.a $(DESTDIR)$(LIBDIR)/$(SOFILE) \
+	  $(DESTDIR)$(LIBDIR)/$(SONAME) $(DESTDIR)$(LIBDIR)/libetacal.so $(DESTDIR)$(LIBDIR)/pkgconfig/etacal.pc \
+	  $(DESTDIR)$(MANDIR)/man1/etacal.1
+	rm -rf $(DESTDIR)$(INCLUDEDIR)/etacal
 
 format:
 	clang-format -i src/*.c src/cli/*.c src/*.h src/cli/*.h include/etacal/*.h tests/unit/*.c

@@ -10,9 +10,14 @@
 #                              chromium, which renders the report in
 #                              tests/browser, and the fault-testing tools
 #                              (valgrind for make memcheck, clang and its
-#                              sanitizer runtimes for make fuzz);
+#                              sanitizer runtimes for make fuzz), g++ for
+#                              the C++ compile of the public headers and
+#                              binutils (nm, readelf) for the export check;
 #                              missing ones only make those tests skip, so
-#                              failure to install them is a warning.
+#                              failure to install them is a warning.  Each
+#                              one that cannot be installed is named, and
+#                              does not keep the others from installing.
+# make check runs it with --oracles; make test installs nothing.
 set -u
 
 need=""
@@ -25,7 +30,7 @@ done
 oracles=""
 if [ "${1:-}" = "--oracles" ]; then
     for p in python3-numpy python3-scipy python3-sklearn python3-statsmodels r-cran-quantreg chromium python3-html5lib \
-        valgrind clang libclang-rt-14-dev; do
+        valgrind clang libclang-rt-dev g++ binutils; do
         have_pkg "$p" || oracles="$oracles $p"
     done
 fi
@@ -42,9 +47,14 @@ if [ "$(id -u)" = 0 ] && command -v apt-get >/dev/null 2>&1; then
             exit 1
         }
     fi
-    if [ -n "$oracles" ]; then
-        apt-get install -y -qq --no-install-recommends $oracles >/dev/null ||
-            echo "etacal: warning: could not install the oracles:$oracles (their tests will skip)" >&2
+    if [ -n "$oracles" ] && ! apt-get install -y -qq --no-install-recommends $oracles >/dev/null 2>&1; then
+        # one package that cannot be had must not keep the others out
+        failed=""
+        for p in $oracles; do
+            apt-get install -y -qq --no-install-recommends "$p" >/dev/null 2>&1 || failed="$failed $p"
+        done
+        [ -n "$failed" ] &&
+            echo "etacal: warning: could not install:$failed (their tests will skip)" >&2
     fi
     exit 0
 fi

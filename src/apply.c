@@ -282,6 +282,7 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         st->with_actual++;
         st->bare_hits += actual <= pred;
     }
+    int clamped = 0, floored = 0;
     for (size_t t = 0; t < a->nsel; t++) {
         putc(a->delim, a->out);
         if (missing)
@@ -292,10 +293,10 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
             stop = fail(a, line, ETACAL_ENOMEM, "out of memory%s", "");
             goto out;
         }
-        const etacal_quote *row = &a->q->rows[r];
-        double raw_v = row->offset_s + row->slope * pred;
-        for (size_t j = 0; j < a->q->ncoef; j++)
-            raw_v += row->coef[j] * a->cov[j];
+        int moved = 0, low = 0;
+        double raw_v = etacal_quote_promise(a->q, &a->q->rows[r], pred, a->cov, &moved, &low);
+        clamped |= moved;
+        floored |= low;
         double v = etacal_promise_round(raw_v, a->o->round_s);
         if (!isfinite(v)) {
             /* finite table values can still overflow together */
@@ -310,6 +311,8 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         if (have_actual)
             st->hits[t] += actual <= v;
     }
+    st->clamped += clamped;
+    st->floored += floored;
     fputs(term, a->out);
     if (ferror(a->out))
         stop = fail(a, line, ETACAL_EIO, "write failed%s", "");

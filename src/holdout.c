@@ -105,10 +105,10 @@ int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t 
                 rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "the quote table has no global row");
                 goto done;
             }
-            const etacal_quote *qr = &q->rows[row];
-            double v = qr->offset_s + qr->slope * p[i];
+            double x[ETACAL_QR_MAX_COVARIATES];
             for (size_t j = 0; j < q->ncoef; j++)
-                v += qr->coef[j] * etacal_table_num(t, x_cols[j])[i];
+                x[j] = etacal_table_num(t, x_cols[j])[i];
+            double v = etacal_quote_promise(q, &q->rows[row], p[i], x, NULL, NULL);
             size_t hit = y[i] <= v;
             out->hits[ti] += hit;
             out->promise_sum[ti] += v;

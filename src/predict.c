@@ -1,7 +1,11 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* predict.c: fitted quantile regressions applied to a stream of rows, with
  * the monotone rearrangement (Chernozhukov, Fernandez-Val & Galichon 2010)
- * at every row. */
+ * at every row.  Covariates are clamped into the range of the data the
+ * regression was fitted on (a linear model says nothing beyond it; common
+ * practice, no source), and predictions can be floored (a duration is never
+ * below 0: raising a quantile to a lower bound of the response's support
+ * never increases its pinball loss). */
 #include "internal.h"
 
 #include <math.h>
@@ -17,12 +21,14 @@ typedef struct predictor {
     FILE *out;
     char delim;
     int bad_rows;
+    const double *x_min, *x_max;
+    double floor;
     etacal_error *err;
     rowbuf rb;
     int header_done;
     size_t nfields;
     long col[ETACAL_QR_MAX_COVARIATES];
-    size_t rows, missing, bad;
+    etacal_qr_predict_stats st;
 } predictor;
 
 static void on_field(void *ud, size_t col, const char *s, size_t len)
@@ -105,15 +111,25 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
             stop = fail(pr, line, ETACAL_EPARSE, "%s", problem);
             goto out;
         }
-        pr->bad++;
+        pr->st.bad++;
         missing = 1;
     } else if (missing) {
-        pr->missing++;
+        pr->st.missing++;
     }
-    pr->rows++;
+    pr->st.rows++;
     const char *term = csv_put_record(pr->out, raw, rawlen);
     double q[MAXT];
     if (!missing) {
+        int moved = 0, low = 0;
+        for (size_t j = 0; j < pr->k && pr->x_min; j++) {
+            if (x[j] < pr->x_min[j]) {
+                x[j] = pr->x_min[j];
+                moved = 1;
+            } else if (x[j] > pr->x_max[j]) {
+                x[j] = pr->x_max[j];
+                moved = 1;
+            }
+        }
         for (size_t t = 0; t < pr->ntau; t++) {
             const double *c = pr->coef + t * pr->p;
             double v = c[0];
@@ -122,6 +138,14 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
             q[t] = v;
         }
         etacal_rearrange(q, pr->ntau);
+        /* after the rearrangement: raising to a floor keeps the order */
+        for (size_t t = 0; t < pr->ntau; t++)
+            if (q[t] < pr->floor) {
+                q[t] = pr->floor;
+                low = 1;
+            }
+        pr->st.clamped += moved;
+        pr->st.floored += low;
     }
     for (size_t t = 0; t < pr->ntau; t++) {
         putc(pr->delim, pr->out);
@@ -137,9 +161,11 @@ out:
 }
 
 int etacal_qr_predict_csv(const double *coef, const double *taus, size_t ntau, size_t k,
-                          const char *const *xnames, const char *in_path, FILE *out, char delim,
-                          int bad_rows, size_t *rows, size_t *missing, size_t *bad, etacal_error *err)
+                          const char *const *xnames, const char *in_path, FILE *out,
+                          const etacal_qr_predict_opts *opts, etacal_qr_predict_stats *stats, etacal_error *err)
 {
+    if (stats)
+        memset(stats, 0, sizeof *stats);
     if (ntau == 0 || ntau > MAXT)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "between 1 and %d levels", MAXT);
     if (k > ETACAL_QR_MAX_COVARIATES)
@@ -147,6 +173,14 @@ int etacal_qr_predict_csv(const double *coef, const double *taus, size_t ntau, s
     for (size_t t = 1; t < ntau; t++)
         if (!(taus[t] > taus[t - 1]))
             return etacal_error_set(err, ETACAL_EINVAL, NULL, "levels must be given in ascending order");
+    if (!opts->x_min != !opts->x_max)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "give both ends of the covariates' ranges, or neither");
+    for (size_t j = 0; j < k && opts->x_min; j++)
+        if (!(opts->x_min[j] <= opts->x_max[j]))
+            return etacal_error_set(err, ETACAL_EINVAL, NULL, "the range of covariate %zu is empty or not a number",
+                                    j + 1);
+    if (isnan(opts->floor))
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "the floor is not a number");
     predictor pr;
     memset(&pr, 0, sizeof pr);
     pr.coef = coef;
@@ -157,19 +191,18 @@ int etacal_qr_predict_csv(const double *coef, const double *taus, size_t ntau, s
     pr.xnames = xnames;
     pr.path = in_path;
     pr.out = out;
-    pr.delim = delim ? delim : ',';
-    pr.bad_rows = bad_rows;
+    pr.delim = opts->delim ? opts->delim : ',';
+    pr.bad_rows = opts->bad_rows;
+    pr.x_min = opts->x_min;
+    pr.x_max = opts->x_max;
+    pr.floor = opts->floor;
     pr.err = err;
     csvstream_cb cb = {on_field, on_row, &pr, NULL, NULL};
     int rc = csvstream_run(in_path, pr.delim, 1, &cb, NULL, err);
     if (!rc && !pr.header_done)
         rc = etacal_error_set(err, ETACAL_EPARSE, in_path, "empty file: expected a header row");
     rowbuf_free(&pr.rb);
-    if (rows)
-        *rows = pr.rows;
-    if (missing)
-        *missing = pr.missing;
-    if (bad)
-        *bad = pr.bad;
+    if (stats)
+        *stats = pr.st;
     return rc;
 }

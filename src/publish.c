@@ -229,11 +229,7 @@ double etacal_quotes_promise_at(const etacal_quotes *q, const char *const *keys,
         long r = own_row(q, (size_t)g, ti);
         if (r < 0)
             continue;
-        const etacal_quote *row = &q->rows[r];
-        double v = row->offset_s + row->slope * pred;
-        for (size_t j = 0; j < q->ncoef; j++)
-            v += row->coef[j] * x[j];
-        return v;
+        return etacal_quote_promise(q, &q->rows[r], pred, x, NULL, NULL);
     }
     return NAN;
 }

@@ -394,6 +394,11 @@ static int same_table(const etacal_quotes *a, const etacal_quotes *b)
         for (size_t j = 0; j < a->ncoef; j++)
             if (x->coef[j] != y->coef[j] || !isfinite(x->coef[j]))
                 return 0;
+        if (a->ncoef && !x->x_min != !y->x_min)
+            return 0;
+        for (size_t j = 0; j < a->ncoef && x->x_min; j++)
+            if (x->x_min[j] != y->x_min[j] || x->x_max[j] != y->x_max[j])
+                return 0;
         for (size_t j = 0; j < a->nkeys; j++)
             if (strcmp(a->segs[x->seg].keys[j], b->segs[y->seg].keys[j]) != 0)
                 return 0;

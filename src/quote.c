@@ -66,6 +66,7 @@ void etacal_quotes_destroy(etacal_quotes *q)
             free(q->coef_names[j]);
     free(q->coef_names);
     free(q->coefs);
+    free(q->ranges);
     free(q);
 }
 
@@ -239,8 +240,11 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
     double *buf = malloc(n * (p + 1) * sizeof *buf);
     double *wbuf = o->weights ? malloc(n * sizeof *wbuf) : NULL;
     double *coef = malloc(nseg * q->ntargets * p * sizeof *coef);
+    /* per segment, each covariate's range on the fitting part: [g*2*nx + j]
+     * the minimum, [g*2*nx + nx + j] the maximum */
+    double *segrange = malloc((nseg * 2 * nx + 1) * sizeof *segrange);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    if (!idx || !gidx || !start || !fill || !count || !nbseg || !fitpart || !buf || !coef || !rng ||
+    if (!idx || !gidx || !start || !fill || !count || !nbseg || !fitpart || !buf || !coef || !segrange || !rng ||
         (o->weights && !wbuf)) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
         goto done;
@@ -315,6 +319,21 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
         const double *fcols[ETACAL_QR_MAX_COVARIATES];
         for (size_t j = 0; j <= nx; j++)
             fcols[j] = fx + j * na;
+        /* The covariates' range on the fitting part: the regression says
+         * nothing beyond it, so the promise clamps covariates into it
+         * (promise.c), and so do the calibration scores below, which makes
+         * the conformal bound that of the clamped formula. */
+        double *xlo = segrange + g * 2 * nx, *xhi = xlo + nx;
+        for (size_t j = 0; j < nx; j++) {
+            const double *col = fx + (j + 1) * na;
+            xlo[j] = xhi[j] = na ? col[0] : 0;
+            for (size_t r = 1; r < na; r++) {
+                if (col[r] < xlo[j])
+                    xlo[j] = col[r];
+                if (col[r] > xhi[j])
+                    xhi[j] = col[r];
+            }
+        }
         for (size_t ti = 0; ti < q->ntargets; ti++) {
             double tau = q->targets[ti];
             double *b = coef + (g * q->ntargets + ti) * p;
@@ -349,8 +368,10 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
             }
             for (size_t r = 0; r < nb; r++) {
                 double f = b[0] + b[1] * cx[r];
-                for (size_t j = 0; j < nx; j++)
-                    f += b[j + 2] * cx[(j + 1) * nb + r];
+                for (size_t j = 0; j < nx; j++) {
+                    double xj = cx[(j + 1) * nb + r];
+                    f += b[j + 2] * (xj < xlo[j] ? xlo[j] : xj > xhi[j] ? xhi[j] : xj);
+                }
                 scores[r] = cy[r] - f;
             }
             double corr;
@@ -386,7 +407,8 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
     q->coef_names = calloc(nx ? nx : 1, sizeof *q->coef_names);
     size_t ncoefs = nrows * nx;
     q->coefs = calloc(ncoefs ? ncoefs : 1, sizeof *q->coefs);
-    if (!q->rows || !q->coef_names || !q->coefs) {
+    q->ranges = calloc(ncoefs ? 2 * ncoefs : 1, sizeof *q->ranges);
+    if (!q->rows || !q->coef_names || !q->coefs || !q->ranges) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
         goto done;
     }
@@ -413,8 +435,13 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
             r->offset_s = ceil_scaled(b[0] + sg->score_q[ti], 1e3);
             r->slope = b[1];
             r->coef = q->coefs + q->nrows * nx;
-            for (size_t j = 0; j < nx; j++)
+            r->x_min = q->ranges + q->nrows * 2 * nx;
+            r->x_max = r->x_min + nx;
+            for (size_t j = 0; j < nx; j++) {
                 r->coef[j] = b[j + 2];
+                r->x_min[j] = segrange[g * 2 * nx + j];
+                r->x_max[j] = segrange[g * 2 * nx + nx + j];
+            }
             q->nrows++;
         }
     }
@@ -432,6 +459,7 @@ done:
     free(buf);
     free(wbuf);
     free(coef);
+    free(segrange);
     gsl_rng_free(rng);
     return rc;
 }
@@ -940,6 +968,13 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
         snprintf(name, sizeof name, "coef_%s", q->coef_names[j]);
         etacal_csv_put_field(fp, name, strlen(name), ',');
     }
+    for (size_t j = 0; j < q->ncoef && q->ranges; j++)
+        for (int m = 0; m < 2; m++) {
+            putc(',', fp);
+            char name[256];
+            snprintf(name, sizeof name, "%s_%s", m ? "max" : "min", q->coef_names[j]);
+            etacal_csv_put_field(fp, name, strlen(name), ',');
+        }
     if (q->confidence > 0)
         fputs(",confidence,coverage_mean,coverage_low", fp);
     putc('\n', fp);
@@ -964,6 +999,12 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
         for (size_t j = 0; j < q->ncoef; j++) {
             etacal_num_format(row->coef[j], num);
             putc(',', fp);
+            fputs(num, fp);
+        }
+        for (size_t j = 0; j < q->ncoef && q->ranges; j++) {
+            etacal_num_format(row->x_min[j], num);
+            fprintf(fp, ",%s,", num);
+            etacal_num_format(row->x_max[j], num);
             fputs(num, fp);
         }
         if (q->confidence > 0) {

@@ -19,7 +19,7 @@ typedef struct qrow {
     int method;
     size_t n, k, line;
     double offset_s, slope;
-    size_t coef_off; /* into the reader's coefficient store */
+    size_t coef_off; /* into the reader's coefficient store (and, times 2, the range store) */
 } qrow;
 
 typedef struct qreader {
@@ -43,6 +43,11 @@ typedef struct qreader {
     char *coef_name[ETACAL_QR_MAX_COVARIATES];
     double *coefs;
     size_t ncoefs, coefcap;
+    /* min_<name>, max_<name>: the covariates' ranges (all or none) */
+    long range_col[2][ETACAL_QR_MAX_COVARIATES];
+    size_t nrange;     /* min_/max_ columns in the header */
+    double *ranges;    /* per row: ncoef minima, then ncoef maxima */
+    size_t rangecap;
 } qreader;
 
 static void on_field(void *ud, size_t col, const char *s, size_t len)
@@ -113,6 +118,34 @@ static int header(qreader *r, size_t line)
             r->coef_col[r->ncoef++] = (long)i;
         }
     }
+    /* min_<name> and max_<name>, matched to the coef_ columns now that all
+     * of them are known */
+    for (size_t j = 0; j < ETACAL_QR_MAX_COVARIATES; j++)
+        r->range_col[0][j] = r->range_col[1][j] = -1;
+    for (size_t i = r->c_target >= 0 ? (size_t)r->c_target + 1 : b->nf; i < b->nf; i++) {
+        const char *h = rowbuf_get(b, i);
+        int m = strncmp(h, "min_", 4) == 0 ? 0 : strncmp(h, "max_", 4) == 0 ? 1 : -1;
+        if (m < 0)
+            continue;
+        size_t j = 0;
+        while (j < r->ncoef && strcmp(r->coef_name[j], h + 4) != 0)
+            j++;
+        if (j == r->ncoef)
+            return fail(r, line, ETACAL_EPARSE,
+                        "column '%s' is the range of no covariate (no coef_ column of that name)", h);
+        if (r->range_col[m][j] >= 0)
+            return fail(r, line, ETACAL_EPARSE, "column '%s' appears twice in the header", h);
+        r->range_col[m][j] = (long)i;
+        r->nrange++;
+    }
+    for (size_t j = 0; j < r->ncoef && r->nrange; j++)
+        for (int m = 0; m < 2; m++)
+            if (r->range_col[m][j] < 0) {
+                char name[300];
+                snprintf(name, sizeof name, "%s_%s", m ? "max" : "min", r->coef_name[j]);
+                return fail(r, line, ETACAL_EPARSE,
+                            "no column '%s': the covariates' ranges (min_, max_) are given for all or none", name);
+            }
     static const char *req[] = {"target", "method", "n", "offset_s", "slope"};
     long got[] = {r->c_target, r->c_method, r->c_n, r->c_offset, r->c_slope};
     for (size_t i = 0; i < 5; i++)
@@ -278,6 +311,26 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         if ((stop = number(r, line, r->coef_col[j], name, &r->coefs[r->ncoefs + j])))
             goto out;
     }
+    if (r->nrange) {
+        if (grow_array((void **)&r->ranges, &r->rangecap, 2 * (r->ncoefs + r->ncoef) + 1, sizeof *r->ranges) != 0) {
+            stop = fail(r, line, ETACAL_ENOMEM, "out of memory%s", "");
+            goto out;
+        }
+        double *lo = r->ranges + 2 * r->ncoefs, *hi = lo + r->ncoef;
+        for (size_t j = 0; j < r->ncoef; j++) {
+            char name[300];
+            for (int m = 0; m < 2; m++) {
+                snprintf(name, sizeof name, "%s_%s", m ? "max" : "min", r->coef_name[j]);
+                if ((stop = number(r, line, r->range_col[m][j], name, m ? &hi[j] : &lo[j])))
+                    goto out;
+            }
+            if (!(lo[j] <= hi[j])) {
+                stop = fail(r, line, ETACAL_EPARSE, "the range of covariate '%s' is empty (min_ above max_)",
+                            r->coef_name[j]);
+                goto out;
+            }
+        }
+    }
     r->ncoefs += r->ncoef;
     /* Key level: some values, then only "*". */
     int star = 0;
@@ -442,6 +495,9 @@ int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, et
     q->coef_names = calloc(r.ncoef ? r.ncoef : 1, sizeof *q->coef_names);
     q->coefs = r.coefs;
     r.coefs = NULL;
+    q->ranges = r.nrange ? r.ranges : NULL;
+    if (r.nrange)
+        r.ranges = NULL;
     if (!q->coef_names) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
         goto done;
@@ -475,6 +531,8 @@ int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, et
         o->offset_s = x->offset_s;
         o->slope = x->slope;
         o->coef = q->coefs ? q->coefs + x->coef_off : NULL;
+        o->x_min = q->ranges ? q->ranges + 2 * x->coef_off : NULL;
+        o->x_max = q->ranges ? o->x_min + q->ncoef : NULL;
         etacal_segment *g = &q->segs[x->seg];
         g->n = x->n;
         g->k[o->target] = x->k;
@@ -501,6 +559,7 @@ done:
     strdict_free(&r.segs);
     free(r.rows);
     free(r.coefs);
+    free(r.ranges);
     for (size_t j = 0; j < r.ncoef; j++)
         free(r.coef_name[j]);
     if (r.key_names)

@@ -919,7 +919,11 @@ static void quote_table(FILE *fp, const etacal_report *r)
           "row that matches it. promise_s = offset_s + slope \xC3\x97 prediction",
           fp);
     if (q->ncoef)
-        fputs(" + the coefficients \xC3\x97 covariates", fp);
+        fputs(q->ranges ? " + the coefficients \xC3\x97 covariates, each covariate clamped into the range its row "
+                          "was fitted on (min\xE2\x80\x93max)"
+                        : " + the coefficients \xC3\x97 covariates",
+              fp);
+    fputs(", never below 0", fp);
     fprintf(fp, ". Fitted on the %zu rows not held out.</p>\n<table><thead><tr>", r->fitted);
     for (size_t j = 0; j < q->nkeys; j++) {
         fputs("<th>", fp);
@@ -933,6 +937,11 @@ static void quote_table(FILE *fp, const etacal_report *r)
         fputs("<th class=\"n\">coef_", fp);
         esc(fp, q->coef_names[j]);
         fputs("</th>", fp);
+    }
+    for (size_t j = 0; j < q->ncoef && q->ranges; j++) {
+        fputs("<th class=\"n\">", fp);
+        esc(fp, q->coef_names[j]);
+        fputs(" min\xE2\x80\x93max</th>", fp);
     }
     if (q->method == ETACAL_METHOD_ADD)
         fputs("<th class=\"n\">buffer min</th>", fp);
@@ -957,6 +966,11 @@ static void quote_table(FILE *fp, const etacal_report *r)
         for (size_t j = 0; j < q->ncoef; j++) {
             etacal_num_format(row->coef[j], o);
             fprintf(fp, "<td class=\"n\">%s</td>", o);
+        }
+        for (size_t j = 0; j < q->ncoef && row->x_min; j++) {
+            etacal_num_format(row->x_min[j], o);
+            etacal_num_format(row->x_max[j], s);
+            fprintf(fp, "<td class=\"n\">%s\xE2\x80\x93%s</td>", o, s);
         }
         if (q->method == ETACAL_METHOD_ADD)
             fprintf(fp, "<td class=\"n\">%s</td>", num(row->offset_s / 60, 2, a));

@@ -13,6 +13,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 #define ETACAL_APPLY_MAX_TARGETS 32
 
@@ -33,6 +38,9 @@ typedef struct etacal_apply_stats {
     size_t missing_pred;  /* rows with an empty / NA prediction: empty promise */
     size_t bad;           /* malformed rows passed through with an empty promise */
     size_t fallback;      /* promised rows whose own segment had no row (first target) */
+    size_t clamped;       /* promised rows with a covariate outside the range of
+                             the table row (method qr), clamped into it */
+    size_t floored;       /* promised rows whose formula gave less than 0: promise 0 */
     /* With actual_col: rows with both a promise and an actual value, and how
      * many arrived by the promise (per selected target, in order) and by the
      * bare prediction. */
@@ -52,8 +60,9 @@ typedef struct etacal_apply_stats {
  * promise_s_97.5) for several.  The key columns of q are looked up in the
  * orders' header by name.  An order takes the most specific row of the table
  * that matches it: its own segment, then its segment with the last keys
- * replaced by "*", down to the global row.  Promises are in seconds, rounded
- * up (never down).  Memory does not grow with the number of orders.  On error
+ * replaced by "*", down to the global row.  The promise is
+ * etacal_quote_promise's (covariates clamped into the row's range, never
+ * below 0), in seconds, rounded up (never down).  Memory does not grow with the number of orders.  On error
  * the output is incomplete: write to an etacal_outfile to keep it from
  * appearing. */
 int etacal_apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,
@@ -69,6 +78,9 @@ int etacal_apply_path(const etacal_quotes *q, const char *in_path, const char *o
  * millisecond when round_s is 0. */
 double etacal_promise_round(double promise, double round_s);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -15,6 +15,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 typedef struct etacal_backtest_opts {
     int method;           /* ETACAL_METHOD_ADD, _RATIO or _QR */
@@ -85,6 +90,9 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
                         etacal_backtest_result *out, etacal_error *err);
 void etacal_backtest_free(etacal_backtest_result *r);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -11,6 +11,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 enum { ETACAL_CI_WILSON = 0, ETACAL_CI_EXACT = 1 };
 
@@ -37,6 +42,9 @@ int etacal_binom_ci(int method, size_t x, size_t n, double conf, double *lo, dou
  * UINT_MAX, p outside [0,1], conf outside (0,1). */
 int etacal_binom_range(double p, size_t n, double conf, size_t *lo, size_t *hi, etacal_error *err);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

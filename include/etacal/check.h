@@ -14,6 +14,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 enum {
     ETACAL_MEASURE_UPPER = 0,    /* a one-sided promise: hit when actual <= upper */
@@ -100,6 +105,9 @@ void etacal_check_destroy(etacal_check_result *r);
 /* "ok", "under", "over" or "-". */
 const char *etacal_status_name(int status);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -15,6 +15,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 /* k = ceil(m * tau) computed exactly for tau as its shortest decimal form
  * (0.3 is 3/10), so k never comes out one too high through rounding: for
@@ -58,6 +63,9 @@ size_t etacal_conformal_rank_conf(size_t n, double tau, double conf);
 double etacal_coverage_mean(size_t n, size_t k);
 double etacal_coverage_low(size_t n, size_t k, double conf);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -16,6 +16,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 typedef struct etacal_curve_point {
     double target;
@@ -53,6 +58,9 @@ void etacal_curve_free(etacal_curve *c);
  * 0.5700000000000001), at most max values in out; returns how many. */
 size_t etacal_curve_grid(double from, double to, double step, double *out, size_t max);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

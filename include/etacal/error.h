@@ -8,6 +8,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 enum {
     ETACAL_OK = 0,
@@ -42,6 +47,9 @@ int etacal_error_set(etacal_error *err, int code, const char *where, const char 
 /* A short name for a status code ("invalid argument", ...). */
 const char *etacal_strerror(int code);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

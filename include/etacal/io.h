@@ -10,6 +10,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 /* An output file that appears only when complete: the data goes to a
  * temporary file in the same directory, which etacal_outfile_commit flushes,
@@ -46,6 +51,9 @@ typedef struct etacal_sink {
  * when it holds the delimiter, a quote, a line break or edge spaces. */
 void etacal_csv_put_field(FILE *fp, const char *s, size_t len, char delim);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

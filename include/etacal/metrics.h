@@ -6,6 +6,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 /* Pinball (quantile) loss of forecast q at level tau for actual y:
  * max(tau (y - q), (tau - 1)(y - q)) (Koenker & Bassett 1978; the loss
@@ -17,6 +22,9 @@ double etacal_pinball(double y, double q, double tau);
  * + (2/alpha)(y - u)1{y > u}.  Lower is better. */
 double etacal_interval_score(double y, double l, double u, double alpha);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -10,6 +10,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 enum {
     ETACAL_NUM_VALUE = 0,   /* a number was stored in *out */
@@ -37,6 +42,9 @@ size_t etacal_num_format(double x, char *buf);
  * error (0.975 -> "97.5", 0.9 -> "90"), into buf (ETACAL_NUM_BUFSZ bytes). */
 void etacal_percent_label(double tau, char *buf);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -27,6 +27,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 /* ---- SHA-256 (FIPS 180-4) ----------------------------------------------- */
 typedef struct etacal_sha256 {
@@ -84,7 +89,8 @@ void etacal_quotes_diff_free(etacal_quotes_diff *d);
 
 /* The promise the table gives keys (nkeys values, "*" for any) at target
  * index ti, at pred and covariates x (in q's coef order), with apply's
- * fallback to the nearest level above; NaN when no row matches. */
+ * fallback to the nearest level above and its formula (etacal_quote_promise:
+ * covariates clamped, never below 0); NaN when no row matches. */
 double etacal_quotes_promise_at(const etacal_quotes *q, const char *const *keys, size_t ti, double pred,
                                 const double *x);
 
@@ -255,6 +261,9 @@ const char *etacal_publish_result_history_path(const etacal_publish_result *r);
  * guards [{guard, result, detail}]. */
 const char *etacal_publish_result_record(const etacal_publish_result *r, size_t *len);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

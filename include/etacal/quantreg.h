@@ -11,11 +11,17 @@
 #define ETACAL_QUANTREG_H
 
 #include <stddef.h>
+#include <stdio.h>
 
 #include "etacal/error.h"
 
 #ifdef __cplusplus
 extern "C" {
+#endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
 #endif
 
 typedef struct etacal_qr_opts {
@@ -84,19 +90,44 @@ double etacal_t_pvalue(double t, double df);
  * of levels. */
 void etacal_rearrange(double *q, size_t m);
 
+/* Options of etacal_qr_predict_csv. */
+typedef struct etacal_qr_predict_opts {
+    char delim;            /* 0 means ',' */
+    int bad_rows;          /* ETACAL_BAD_ROWS_ERROR or _SKIP */
+    /* Each covariate j is clamped into [x_min[j], x_max[j]] (k values each,
+     * say its range in the data of the fit) before the formula, as a linear
+     * model says nothing beyond its data; NULL: no clamping. */
+    const double *x_min, *x_max;
+    /* Predictions below it are raised to it (0 for a response that cannot
+     * be negative, such as a duration); -INFINITY: none. */
+    double floor;
+} etacal_qr_predict_opts;
+
+typedef struct etacal_qr_predict_stats {
+    size_t rows;     /* data rows written */
+    size_t missing;  /* rows with a missing covariate: empty predictions */
+    size_t bad;      /* malformed rows skipped (ETACAL_BAD_ROWS_SKIP) */
+    size_t clamped;  /* rows with a covariate outside [x_min, x_max] */
+    size_t floored;  /* rows with a prediction raised to opts->floor */
+} etacal_qr_predict_stats;
+
 /* Streams in_path ("-" for stdin) to out, copying each record byte for byte
  * and appending q_<pct> (q_10, q_50, q_97.5) for each of the ntau levels:
  * the fitted quantiles coef[t*p + 0] + sum_j coef[t*p + 1 + j] x_j, with p =
- * k + 1, rearranged at each row so that they do not cross, to the nearest
- * millisecond.  The k covariate columns are found by name.  A row with a
- * missing covariate gets empty predictions (counted in *missing); a
- * malformed one is an error at FILE:LINE, or with bad_rows =
- * ETACAL_BAD_ROWS_SKIP is written with empty predictions and counted in
- * *bad.  Memory does not grow with the number of rows. */
+ * k + 1 and x_j clamped into its range, rearranged at each row so that they
+ * do not cross, raised to opts->floor, to the nearest millisecond.  The k
+ * covariate columns are found by name.  A row with a missing covariate gets
+ * empty predictions (counted); a malformed one is an error at FILE:LINE, or
+ * with bad_rows = ETACAL_BAD_ROWS_SKIP is written with empty predictions and
+ * counted.  stats may be NULL.  Memory does not grow with the number of
+ * rows. */
 int etacal_qr_predict_csv(const double *coef, const double *taus, size_t ntau, size_t k,
-                          const char *const *xnames, const char *in_path, FILE *out, char delim,
-                          int bad_rows, size_t *rows, size_t *missing, size_t *bad, etacal_error *err);
+                          const char *const *xnames, const char *in_path, FILE *out,
+                          const etacal_qr_predict_opts *opts, etacal_qr_predict_stats *stats, etacal_error *err);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -20,6 +20,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 enum {
     ETACAL_METHOD_ADD = 0,  /* score actual - pred; promise = pred + q */
@@ -74,6 +79,11 @@ typedef struct etacal_quote {
     size_t n, k;   /* calibration rows behind the bound, and the rank used */
     double offset_s, slope;
     double *coef;  /* ncoef coefficients of the extra covariates (method qr) */
+    /* Method qr: the range of each covariate on the rows the row's regression
+     * was fitted on (ncoef each); an order's covariates are clamped into
+     * [x_min[j], x_max[j]] before the formula.  NULL: a table without
+     * ranges (written before they were stored): no clamping. */
+    double *x_min, *x_max;
 } etacal_quote;
 
 /* A quote table.  Read-only for callers; built by etacal_quotes_fit or
@@ -94,6 +104,8 @@ typedef struct etacal_quotes {
     size_t ncoef;       /* extra covariates (method qr): columns coef_<name> */
     char **coef_names;  /* the covariate names, without the coef_ prefix */
     double *coefs;      /* storage of the rows' coef arrays */
+    double *ranges;     /* storage of the rows' x_min/x_max arrays; NULL: the
+                           table has no covariate ranges */
     double confidence;  /* of the rank rule; 0 for the average-case rank */
     etacal_accuracy accuracy; /* fit only */
 } etacal_quotes;
@@ -168,7 +180,8 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
 
 /* Writes the table as CSV: the key columns, then
  * target,method,n,k,offset_s,slope and, for method qr, one coef_<name>
- * column per extra covariate; with a confidence, also confidence,
+ * column per extra covariate, then min_<name>,max_<name> per covariate (its
+ * range on the rows the segment's regression was fitted on); with a confidence, also confidence,
  * coverage_mean and coverage_low (the mean of the coverage law of the bound
  * and the coverage reached with that confidence); one row per segment with a row of its own and
  * target, global rows first.  Numbers in shortest round-trip form. */
@@ -181,7 +194,8 @@ int etacal_quotes_write_path(const etacal_quotes *q, const char *path, etacal_er
 /* Reads a table written by etacal_quotes_write_csv (or by hand, or by SQL):
  * the columns before 'target' are the key columns; 'target', 'method', 'n',
  * 'offset_s' and 'slope' are required, 'coef_<name>' columns are the
- * coefficients of covariates, others are ignored.  Checks: numbers
+ * coefficients of covariates, 'min_<name>' and 'max_<name>' their ranges
+ * (for every covariate or for none; none: no clamping), others are ignored.  Checks: numbers
  * finite, targets in (0,1), one method, no duplicate (segment, target), a
  * global row for every target.  Errors carry FILE:LINE. */
 int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, etacal_error *err);
@@ -194,9 +208,23 @@ void etacal_quotes_destroy(etacal_quotes *q);
 void etacal_recency_weights(const double *time, size_t n, const unsigned char *mask, double half_life,
                             double *w);
 
+/* The promise of one row of q (seconds, before rounding):
+ *     max(0, offset_s + slope * pred + sum_j coef_j * clamp(x_j, x_min_j, x_max_j))
+ * with x[0..q->ncoef) the order's covariates in q's coef order (NULL when
+ * q has none).  The prediction itself is not clamped (it is the model's own
+ * output).  *clamped (may be NULL) is set to 1 when a covariate was moved
+ * into its range, *floored (may be NULL) to 1 when the formula gave less
+ * than 0.  Every user of a table (apply, holdout, publish) goes through
+ * this one function. */
+double etacal_quote_promise(const etacal_quotes *q, const etacal_quote *row, double pred, const double *x,
+                            int *clamped, int *floored);
+
 /* Index of the target equal to tau, or -1. */
 long etacal_quotes_find_target(const etacal_quotes *q, double tau);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -20,6 +20,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 /* Counts of actual - prediction in bins of a nice width (1, 2 or 5 times a
  * power of ten, in minutes) between the type-1 quantiles at 0.5% and 99.5%
@@ -70,6 +75,9 @@ typedef struct etacal_report {
  * do not belong to q, a chart that cannot be laid out. */
 int etacal_report_write_html(FILE *fp, const etacal_report *r, etacal_error *err);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -17,6 +17,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 typedef struct etacal_table etacal_table;
 
@@ -134,6 +139,9 @@ uint32_t etacal_table_key_id(const etacal_table *t, size_t col, size_t row);
 size_t etacal_table_key_count(const etacal_table *t, size_t col);
 const char *etacal_table_key_text(const etacal_table *t, size_t col, uint32_t id);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

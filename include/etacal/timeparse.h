@@ -8,6 +8,11 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+/* Declarations here are the library's API: exported from libetacal.so,
+ * whose objects are built with -fvisibility=hidden (see the Makefile). */
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 /* Parses the len bytes at s as Unix seconds (a decimal number) or an ISO
  * 8601 date-time: YYYY-MM-DD, optionally followed by 'T' or a space and
@@ -23,6 +28,9 @@ int etacal_time_parse(const char *s, size_t len, double *out);
  * YYYY-MM-DDThh:mm:ssZ into buf (at least 32 bytes). */
 void etacal_time_format(double t, char *buf);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

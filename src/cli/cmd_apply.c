@@ -11,7 +11,9 @@ static const char help[] =
     "Copy every order of ORDERS.csv unchanged and append its promise in seconds:\n"
     "'promise_s' for one target, 'promise_s_<pct>' (promise_s_90, promise_s_97.5)\n"
     "for several.  Each order takes the most specific row of the quote table that\n"
-    "matches its key columns, else the global row.\n"
+    "matches its key columns, else the global row.  A promise is never below 0; with\n"
+    "a method qr table, covariates outside the range the row was fitted on\n"
+    "(min_<name>, max_<name>) are clamped into it and counted in the summary.\n"
     "\n"
     "  --pred COL            column of predicted durations, seconds (required)\n"
     "  --target T[,T...]     targets of the table to apply (default: all of them)\n"
@@ -135,6 +137,15 @@ int cmd_apply(int argc, char **argv)
         if (q->nkeys)
             fprintf(fp, "; %zu took a less specific row than their own segment", st.fallback);
         putc('\n', fp);
+        if (q->ncoef && q->ranges)
+            fprintf(fp, "covariates: %zu order%s outside the range their table row was fitted on, clamped into it\n",
+                    st.clamped, st.clamped == 1 ? "" : "s");
+        else if (q->ncoef)
+            fputs("covariates: the table has no min_/max_ ranges (written before they were stored): not clamped\n",
+                  fp);
+        if (st.floored)
+            fprintf(fp, "%zu order%s promised 0 s: the formula gave less than 0\n", st.floored,
+                    st.floored == 1 ? "" : "s");
         size_t nsel0 = ntargets ? ntargets : q->ntargets;
         for (size_t t = 0; t < nsel0 && st.promised; t++) {
             char p[ETACAL_NUM_BUFSZ];

@@ -30,7 +30,10 @@ static const char help[] =
     "  --format text|csv|json  output format of the fit (default text)\n"
     "  --predict NEW.csv     instead of the fit, write NEW.csv with one column q_<pct>\n"
     "                        per level appended (q_10, q_50, q_90), rearranged so that\n"
-    "                        they do not cross; the fit is summarised on stderr\n"
+    "                        they do not cross; the fit is summarised on stderr.\n"
+    "                        Covariates outside their range in DATA.csv are clamped\n"
+    "                        into it (counted); when --y is never negative in\n"
+    "                        DATA.csv, predictions are never below 0\n"
     "  -o, --output FILE     write to FILE, which appears only when complete (default stdout)\n"
     "  --delim D             comma (default), semicolon, tab or pipe\n"
     "  --bad-rows error|skip malformed data rows are an error (default) or skipped\n"
@@ -318,17 +321,39 @@ int cmd_qr(int argc, char **argv)
         double coef[MAX_TAU * (MAX_X + 1)];
         for (size_t ti = 0; ti < f.ntau; ti++)
             memcpy(coef + ti * (nx + 1), f.res[ti].coef, (nx + 1) * sizeof *coef);
-        size_t rows = 0, missing = 0, bad = 0;
-        rc = etacal_qr_predict_csv(coef, f.taus, f.ntau, nx, (const char *const *)xs, predict, of.fp, ro.delim,
-                                   ro.bad_rows, &rows, &missing, &bad, &err);
+        /* the covariates' range in the data of the fit, and a floor of 0
+         * for a response that is never negative there (a duration) */
+        double xmin[MAX_X], xmax[MAX_X];
+        for (size_t j = 0; j < nx; j++) {
+            xmin[j] = xmax[j] = xc[j][0];
+            for (size_t i = 1; i < n; i++) {
+                if (xc[j][i] < xmin[j])
+                    xmin[j] = xc[j][i];
+                if (xc[j][i] > xmax[j])
+                    xmax[j] = xc[j][i];
+            }
+        }
+        int nonneg = 1;
+        for (size_t i = 0; i < n && nonneg; i++)
+            nonneg = y[i] >= 0;
+        etacal_qr_predict_opts po = {ro.delim, ro.bad_rows, xmin, xmax, nonneg ? 0 : -INFINITY};
+        etacal_qr_predict_stats ps;
+        rc = etacal_qr_predict_csv(coef, f.taus, f.ntau, nx, (const char *const *)xs, predict, of.fp, &po, &ps,
+                                   &err);
         if (rc == 0)
             rc = etacal_outfile_commit(&of, &err);
         if (rc) {
             etacal_outfile_abort(&of);
             goto fail;
         }
-        fprintf(stderr, "etacal qr: fitted %zu level%s on %zu rows of %s; %s: %zu rows, %zu without a covariate, %zu malformed\n",
-                f.ntau, f.ntau == 1 ? "" : "s", n, path, predict, rows, missing, bad);
+        fprintf(stderr,
+                "etacal qr: fitted %zu level%s on %zu rows of %s; %s: %zu rows, %zu without a covariate, %zu malformed, "
+                "%zu with a covariate outside the fit's range (clamped into it)",
+                f.ntau, f.ntau == 1 ? "" : "s", n, path, predict, ps.rows, ps.missing, ps.bad, ps.clamped);
+        if (nonneg)
+            fprintf(stderr, ", %zu with a quantile raised to 0 ('%s' is never negative in the fit)", ps.floored,
+                    yname);
+        fputc('\n', stderr);
     } else {
         if (strcmp(format, "json") == 0) {
             json_t *j = build_json(path, yname, xs, t, &f, sem, reps);

@@ -45,7 +45,8 @@ static int print_summary(FILE *fp, const char *path, const char *pred, const eta
     fprintf(fp, "method: %s (%s)\n", etacal_method_name(q->method),
             q->method == ETACAL_METHOD_ADD     ? "promise = prediction + buffer"
             : q->method == ETACAL_METHOD_RATIO ? "promise = prediction x factor"
-                                               : "promise = offset_s + slope x prediction + coefficients x covariates; "
+                                               : "promise = offset_s + slope x prediction + coefficients x covariates, "
+                                                 "covariates clamped into their min_/max_ range, never below 0; "
                                                  "the buffer column is the conformal correction");
     fmt_pct(pct, sizeof pct, a->on_time, a->n);
     fprintf(fp,
