@@ -25,6 +25,9 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 /* The most key columns of a segmentation, and the most targets of a fit. */
 #define ETACAL_MAX_KEYS 16
@@ -109,6 +112,9 @@ size_t etacal_fit_run_actual_col(const etacal_fit_run *r);
 size_t etacal_fit_run_pred_col(const etacal_fit_run *r);
 long etacal_fit_run_time_col(const etacal_fit_run *r);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

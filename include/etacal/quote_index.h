@@ -19,6 +19,9 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 typedef struct etacal_quote_index etacal_quote_index;
 
@@ -45,6 +48,9 @@ double etacal_quote_index_promise(const etacal_quote_index *ix, long r, double p
 /* The table the index was built from. */
 const etacal_quotes *etacal_quote_index_quotes(const etacal_quote_index *ix);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif

@@ -6,6 +6,9 @@
 #ifdef __cplusplus
 extern "C" {
 #endif
+#if defined(__GNUC__)
+#pragma GCC visibility push(default)
+#endif
 
 /* The version this header belongs to ("MAJOR.MINOR.PATCH"). */
 #define ETACAL_VERSION "0.1.0"
@@ -15,6 +18,9 @@ extern "C" {
  * against.  A static string. */
 const char *etacal_version(void);
 
+#if defined(__GNUC__)
+#pragma GCC visibility pop
+#endif
 #ifdef __cplusplus
 }
 #endif
