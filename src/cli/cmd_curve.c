@@ -3,7 +3,8 @@
  * every target of a grid on the calibration rows minus a held-out share,
  * then on the held-out rows: the on-time rate reached (Wilson interval), the
  * mean promise and the mean time added to the bare prediction, overall and
- * per segment.  The text view marks the marginal cost of each extra point. */
+ * per segment (the fit run of fit.h, and etacal_curve_compute).  The text
+ * view marks the marginal cost of each extra point. */
 #include "fitargs.h"
 
 #include <getopt.h>
@@ -12,8 +13,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-#define MAX_KEYS FIT_MAX_KEYS
-#define MAX_GRID 1000
+#define MAX_GRID ETACAL_FIT_MAX_TARGETS
 
 static const char help[] =
     "Usage: etacal curve CAL.csv --actual COL --pred COL [OPTION]...\n"
@@ -99,37 +99,27 @@ int cmd_curve(int argc, char **argv)
     const char *path = argv[optind];
     const char *timecol = a.timecol;
     char *const *keys = a.keys;
-    size_t nkeys = a.nkeys, nx = a.nx, seed = a.seed, min_rows = a.min_rows;
-    double split = a.split, holdout = a.holdout, confidence = a.confidence;
+    size_t nkeys = a.nkeys;
+    double holdout = a.holdout;
     int method = a.method;
 
-    etacal_colspec cols[FIT_MAX_COLS];
-    size_t key_cols[MAX_KEYS], x_cols[ETACAL_QR_MAX_COVARIATES];
-    long time_col;
-    size_t ncol = fit_columns(&a, cols, key_cols, x_cols, &time_col);
+    /* the fit run of fit.h at every target of the grid, scored on the held-out rows */
+    etacal_fitspec spec;
+    fit_spec(&a, &spec);
+    spec.targets = targets;
+    spec.ntargets = nt;
     etacal_error err;
     etacal_error_clear(&err);
-    etacal_table *t = NULL;
-    etacal_quotes *q = NULL;
-    etacal_holdout ho = {0};
+    etacal_fit_run *run = NULL;
     etacal_curve cv = {0};
     etacal_outfile of = {0};
-    unsigned char *mask = NULL;
-    int rc = etacal_table_read_csv(path, cols, ncol, &a.ro, &t, &err);
+    int rc = etacal_fit_csv(&spec, path, &a.ro, &run, &err);
     if (rc)
         return report_error(&err);
-    size_t n = etacal_table_rows(t);
-    size_t held = 0;
-    if (holdout_rows(t, time_col, holdout, seed, path, &mask, &held, &err) != 0)
-        goto fail;
-    etacal_fit_opts fo = {method, targets, nt, min_rows, x_cols, nx, split, (unsigned long)seed, confidence, mask, NULL};
-    if ((rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err)) != 0)
-        goto fail;
-    for (size_t i = 0; i < n; i++)
-        mask[i] = !mask[i];
-    if ((rc = etacal_quotes_holdout(q, t, 0, 1, key_cols, x_cols, mask, &ho, &err)) != 0)
-        goto fail;
-    if ((rc = etacal_curve_compute(q, &ho, 0.95, &cv, &err)) != 0)
+    const etacal_quotes *q = etacal_fit_run_quotes(run);
+    const etacal_holdout *ho = etacal_fit_run_holdout(run);
+    size_t n = etacal_table_rows(etacal_fit_run_rows(run)), held = etacal_fit_run_held(run);
+    if ((rc = etacal_curve_compute(q, ho, 0.95, &cv, &err)) != 0)
         goto fail;
     if ((rc = etacal_outfile_open(&of, output ? output : "-", &err)) != 0)
         goto fail;
@@ -158,7 +148,7 @@ int cmd_curve(int argc, char **argv)
     }
     for (size_t s = 0; s < cv.nsegs; s++) {
         size_t g = cv.seg[s];
-        size_t hn = ho.n[g];
+        size_t hn = ho->n[g];
         json_t *pts = NULL;
         text_table tt;
         int text = strcmp(format, "text") == 0;
@@ -266,17 +256,11 @@ int cmd_curve(int argc, char **argv)
         goto fail;
     }
     etacal_curve_free(&cv);
-    etacal_holdout_free(&ho);
-    etacal_quotes_destroy(q);
-    etacal_table_destroy(t);
-    free(mask);
+    etacal_fit_run_destroy(run);
     return 0;
 fail:
     etacal_outfile_abort(&of);
     etacal_curve_free(&cv);
-    etacal_holdout_free(&ho);
-    etacal_quotes_destroy(q);
-    etacal_table_destroy(t);
-    free(mask);
+    etacal_fit_run_destroy(run);
     return report_error(&err);
 }
