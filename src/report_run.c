@@ -165,8 +165,10 @@ static int run_table(const etacal_report_spec *s, const etacal_table *t, const c
             tmin = i == 0 || tm[i] < tmin ? tm[i] : tmin;
             tmax = i == 0 || tm[i] > tmax ? tm[i] : tmax;
         }
-        etacal_backtest_opts bo = {fs->method, target, s->window_s, s->every_s, fs->min_rows, fs->half_life, 0, 0,
-                                   etacal_fit_run_x_cols(run), fs->nx, fs->split, fs->seed};
+        etacal_backtest_opts bo = {.method = fs->method, .target = target, .window_s = s->window_s,
+                                   .every_s = s->every_s, .min_rows = fs->min_rows, .half_life_s = fs->half_life,
+                                   .x_cols = etacal_fit_run_x_cols(run), .nx = fs->nx, .split = fs->split,
+                                   .seed = fs->seed};
         etacal_error be;
         etacal_error_clear(&be);
         rc = etacal_backtest_run(t, actual_col, pred_col, (size_t)time_col, etacal_fit_run_key_cols(run), fs->nkeys,
