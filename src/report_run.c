@@ -123,15 +123,20 @@ static int run_table(const etacal_report_spec *s, const etacal_table *t, const c
     etacal_fitspec grid = *fs;
     grid.targets = targets;
     grid.ntargets = nt;
-    int rc = etacal_fit_table(&grid, t, &run, err);
-    if (rc == ETACAL_ENUM && nt > 1 && held > 0 && held < n) {
+    etacal_error ge; /* err may be NULL, and the note needs the reason */
+    etacal_error_clear(&ge);
+    int rc = etacal_fit_table(&grid, t, &run, &ge);
+    int retry = rc == ETACAL_ENUM && nt > 1 && held > 0 && held < n;
+    if (rc && !retry && err)
+        *err = ge;
+    if (retry) {
         /* a level of the charts that cannot be fitted should not cost the
-         * page: fit the chosen target alone, and say so */
+         * page: fit the chosen target alone, and say so (a holdout that
+         * leaves no row on one side fails the same way at any target) */
         snprintf(note, sizeof note,
                  "the levels of the cost curve and the calibration chart could not be fitted (%s); "
                  "the page shows the chosen target only",
-                 err->msg);
-        etacal_error_clear(err);
+                 ge.msg);
         grid.targets = &target;
         grid.ntargets = 1;
         rc = etacal_fit_table(&grid, t, &run, err);

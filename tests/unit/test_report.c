@@ -360,6 +360,8 @@ static void test_notes(void **state)
     p = page_of("notes.html", &len);
     assert_non_null(strstr(p, "<p class=\"warn\">Note: the levels of the cost curve"));
     free(p);
+    /* the same without a place for notes or errors */
+    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, NULL, NULL), ETACAL_OK);
 }
 
 /* Errors: nothing at the output path, an existing file untouched. */
@@ -382,6 +384,8 @@ static void test_errors(void **state)
                  "ceil((n+1)*tau) must not exceed n)");
     assert_false(exists("err.html"));
     assert_int_equal(notes.n, 0);
+    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, NULL, NULL), ETACAL_ENUM);
+    assert_false(exists("err.html"));
 
     /* a key column the file lacks */
     const double target = 0.9;
