@@ -100,8 +100,8 @@ int etacal_fitspec_check(const etacal_fitspec *s, etacal_error *err)
             if (strcmp(s->xs[i], x) == 0)
                 return inval(err, "--x names '%s' twice", x);
     }
-    if (s->ntargets > ETACAL_MAX_TARGETS)
-        return etacal_error_set(err, ETACAL_EINVAL, NULL, "at most %d targets", ETACAL_MAX_TARGETS);
+    if (s->ntargets > ETACAL_FIT_MAX_TARGETS)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "at most %d targets", ETACAL_FIT_MAX_TARGETS);
     if (s->ntargets && !s->targets)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "no targets");
     for (size_t i = 0; i < s->ntargets; i++)

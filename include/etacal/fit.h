@@ -29,9 +29,12 @@ extern "C" {
 #pragma GCC visibility push(default)
 #endif
 
-/* The most key columns of a segmentation, and the most targets of a fit. */
+/* The most key columns of a segmentation; the most targets a command line
+ * lists (etacal fit --target); the most targets of one fit run (a grid of
+ * targets, as the cost curve and the report fit). */
 #define ETACAL_MAX_KEYS 16
 #define ETACAL_MAX_TARGETS 32
+#define ETACAL_FIT_MAX_TARGETS 1000
 
 typedef struct etacal_fitspec {
     const char *actual;        /* column of actual durations, seconds (required) */
@@ -40,8 +43,8 @@ typedef struct etacal_fitspec {
     size_t nkeys;
     const char *const *xs;     /* method qr: covariates besides the prediction */
     size_t nx;
-    const double *targets;     /* on-time targets in (0,1), ascending or not;
-                                  none: 0.9 */
+    const double *targets;     /* on-time targets in (0,1), ascending or not,
+                                  at most ETACAL_FIT_MAX_TARGETS; none: 0.9 */
     size_t ntargets;
     int method;                /* ETACAL_METHOD_* */
     size_t min_rows;           /* 0: 200 */

@@ -14,6 +14,7 @@
 #include "etacal/backtest.h"
 #include "etacal/curve.h"
 #include "etacal/error.h"
+#include "etacal/fit.h"
 #include "etacal/quote.h"
 #include "etacal/table.h"
 
@@ -74,6 +75,56 @@ typedef struct etacal_report {
 /* Writes the page to fp.  Errors: a target index out of range, counts that
  * do not belong to q, a chart that cannot be laid out. */
 int etacal_report_write_html(FILE *fp, const etacal_report *r, etacal_error *err);
+
+/* ---- the whole report as one run ------------------------------------------
+ * What `etacal report` does, for any front end: the fit run (fit.h) with
+ * the rows held out, at the chosen target and at every level of the cost
+ * curve (0.50, 0.51, ..., 0.99) and of the calibration chart (0.05, 0.10,
+ * ..., 0.45) that the rows fitted on can bound; the residuals of the rows
+ * fitted on, the held-out counts and the cost curve; with a time column the
+ * rolling-origin backtest; then the page. */
+typedef struct etacal_report_spec {
+    /* The fit: one target (none: 0.9), a holdout share (init: 0.2; the
+     * latest rows by the time column when there is one, else a seeded
+     * random share), no confidence. */
+    etacal_fitspec fit;
+    const char *title;       /* NULL: "Promise report" */
+    const char *command;     /* shown as is under "How this page was made"; may be NULL */
+    double window_s, every_s; /* the backtest's window and period (init: 28 d, 1 d) */
+    size_t thin;             /* a segment with fewer held-out rows is marked thin (init: 30) */
+    double curve_from;       /* the cost curve shows the targets >= this (init: 0.5) */
+} etacal_report_spec;
+
+/* A specification with the defaults above and etacal_fitspec_init's. */
+void etacal_report_spec_init(etacal_report_spec *s);
+
+/* What a run has to say besides the page, in the order it happened:
+ * "the levels of the cost curve and the calibration chart could not be
+ * fitted (WHY); the page shows the chosen target only" when a level of the
+ * grid cannot be fitted (the page is then made with the chosen target
+ * alone), and "no backtest: WHY" when the rows span less than a window
+ * (the page says so in place of the backtest).  Filled also when the run
+ * fails after a note. */
+#define ETACAL_REPORT_MAX_NOTES 2
+#define ETACAL_REPORT_NOTE_SZ 512
+typedef struct etacal_report_notes {
+    size_t n;
+    char text[ETACAL_REPORT_MAX_NOTES][ETACAL_REPORT_NOTE_SZ];
+} etacal_report_notes;
+
+/* Reads in (a CSV file with a header, read with ro; NULL: defaults), runs
+ * the report and writes the page to out through etacal_outfile: the file
+ * appears whole or not at all ("-" is standard output, written as it
+ * goes).  notes may be NULL.  Errors: the specification (ETACAL_EINVAL),
+ * the input (with FILE:LINE), a fit that fails at the chosen target
+ * (ETACAL_ENUM), the output; after an error nothing is at out. */
+int etacal_report_csv(const etacal_report_spec *s, const char *in, const etacal_read_opts *ro, const char *out,
+                      etacal_report_notes *notes, etacal_error *err);
+
+/* The same on a table in memory (its columns found by name, as for
+ * etacal_fit_table; t is borrowed).  The page names the table's source. */
+int etacal_report_table(const etacal_report_spec *s, const etacal_table *t, const char *out,
+                        etacal_report_notes *notes, etacal_error *err);
 
 #if defined(__GNUC__)
 #pragma GCC visibility pop

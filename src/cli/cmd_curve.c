@@ -3,7 +3,8 @@
  * every target of a grid on the calibration rows minus a held-out share,
  * then on the held-out rows: the on-time rate reached (Wilson interval), the
  * mean promise and the mean time added to the bare prediction, overall and
- * per segment.  The text view marks the marginal cost of each extra point. */
+ * per segment (the fit run of fit.h, and etacal_curve_compute).  The text
+ * view marks the marginal cost of each extra point. */
 #include "fitargs.h"
 
 #include <getopt.h>
@@ -12,8 +13,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-#define MAX_KEYS FIT_MAX_KEYS
-#define MAX_GRID 1000
+#define MAX_GRID ETACAL_FIT_MAX_TARGETS
 
 static const char help[] =
     "Usage: etacal curve CAL.csv --actual COL --pred COL [OPTION]...\n"
@@ -34,6 +34,143 @@ static const char help[] =
     "  -o, --output FILE     write to FILE, which appears only when complete\n"
     "  --delim D, --bad-rows error|skip, --max-bad-share F   as for etacal fit\n"
     "  -h, --help            show this help and exit\n";
+
+/* What the writers show: the fit run's table and held-out counts, the curve. */
+typedef struct curve_view {
+    const char *path, *timecol;
+    char *const *keys;
+    size_t nkeys;
+    int method;
+    double holdout;
+    const etacal_quotes *q;
+    const etacal_holdout *ho;
+    const etacal_curve *cv;
+    const double *targets;
+    size_t nt, n, held;
+} curve_view;
+
+/* The text view: a heading, then one aligned table per segment.  0, or -1
+ * when out of memory. */
+static int write_text(FILE *fp, const curve_view *v)
+{
+    char sh[ETACAL_NUM_BUFSZ];
+    etacal_percent_label(v->holdout, sh);
+    fprintf(fp, "etacal curve: %s, method %s; measured on %zu held-out rows (%s %s%%%s%s), fitted on %zu\n",
+            v->path, etacal_method_name(v->method), v->held, v->timecol ? "the latest" : "a random", sh,
+            v->timecol ? " by " : "", v->timecol ? v->timecol : "", v->n - v->held);
+    for (size_t s = 0; s < v->cv->nsegs; s++) {
+        size_t g = v->cv->seg[s], hn = v->ho->n[g];
+        if (v->nkeys) {
+            fputs("\nsegment", fp);
+            for (size_t j = 0; j < v->nkeys; j++)
+                fprintf(fp, "%s%s", j ? ", " : " ", v->q->segs[g].keys[j]);
+        }
+        fputc('\n', fp);
+        text_table tt;
+        if (tt_init(&tt, 7) != 0)
+            return -1;
+        const char *h[7] = {"target",
+                            v->method == ETACAL_METHOD_ADD     ? "buffer s"
+                            : v->method == ETACAL_METHOD_RATIO ? "factor"
+                                                               : "corr s",
+                            "mean promise min",
+                            "extra min", "+min per point", "on time (held out)", "95% CI"};
+        tt_add(&tt, h);
+        for (int j = 0; j < 6; j++)
+            tt.right[j] = 1;
+        for (size_t ti = 0; ti < v->nt; ti++) {
+            const etacal_curve_point *pt = &v->cv->pts[s * v->nt + ti];
+            char b[6][64];
+            snprintf(b[0], sizeof b[0], v->method == ETACAL_METHOD_RATIO ? "%.4f" : "%.1f", pt->buffer);
+            snprintf(b[1], sizeof b[1], "%.2f", pt->mean_promise_s / 60);
+            snprintf(b[2], sizeof b[2], "%.2f", pt->mean_extra_s / 60);
+            if (isnan(pt->marginal_s_per_point))
+                snprintf(b[3], sizeof b[3], "-");
+            else
+                snprintf(b[3], sizeof b[3], "%+.2f", pt->marginal_s_per_point / 60);
+            snprintf(b[4], sizeof b[4], "%.2f%% (%zu/%zu)", hn ? 100.0 * (double)pt->hits / (double)hn : 0.0,
+                     pt->hits, hn);
+            snprintf(b[5], sizeof b[5], "%.4f-%.4f", pt->ci_lo, pt->ci_hi);
+            char tp[ETACAL_NUM_BUFSZ + 2];
+            etacal_percent_label(v->targets[ti], tp);
+            strcat(tp, "%");
+            const char *row[7] = {tp, b[0], b[1], b[2], b[3], b[4], b[5]};
+            tt_add(&tt, row);
+        }
+        int bad = tt_print(&tt, fp) != 0;
+        tt_free(&tt);
+        if (bad)
+            return -1;
+    }
+    return 0;
+}
+
+/* The CSV view: one line per segment and target. */
+static void write_csv(FILE *fp, const curve_view *v)
+{
+    for (size_t j = 0; j < v->nkeys; j++) {
+        csv_field(fp, v->keys[j]);
+        putc(',', fp);
+    }
+    fputs("target,buffer,mean_promise_s,mean_extra_s,marginal_s_per_point,held_n,held_hits,on_time,ci_low,ci_high\n",
+          fp);
+    for (size_t s = 0; s < v->cv->nsegs; s++) {
+        size_t g = v->cv->seg[s], hn = v->ho->n[g];
+        for (size_t ti = 0; ti < v->nt; ti++) {
+            const etacal_curve_point *pt = &v->cv->pts[s * v->nt + ti];
+            char tb[ETACAL_NUM_BUFSZ];
+            etacal_num_format(v->targets[ti], tb);
+            for (size_t j = 0; j < v->nkeys; j++) {
+                csv_field(fp, v->q->segs[g].keys[j]);
+                putc(',', fp);
+            }
+            fprintf(fp, "%s,%.10g,%.10g,%.10g,", tb, pt->buffer, pt->mean_promise_s, pt->mean_extra_s);
+            if (!isnan(pt->marginal_s_per_point))
+                fprintf(fp, "%.10g", pt->marginal_s_per_point);
+            fprintf(fp, ",%zu,%zu,%.10g,%.10g,%.10g\n", hn, pt->hits, hn ? (double)pt->hits / (double)hn : NAN,
+                    pt->ci_lo, pt->ci_hi);
+        }
+    }
+}
+
+static json_t *num_or_null(double x) { return isfinite(x) ? json_real(x) : json_null(); }
+
+/* The JSON view (its shape is in the man page). */
+static int write_json(FILE *fp, const curve_view *v, const char *outname, etacal_error *err)
+{
+    json_t *root = json_object();
+    json_object_set_new(root, "etacal", json_string(ETACAL_VERSION));
+    json_object_set_new(root, "file", json_string(v->path));
+    json_object_set_new(root, "held_out", json_pack("{s:I,s:I,s:s}", "rows", (json_int_t)v->held, "of",
+                                                    (json_int_t)v->n, "by", v->timecol ? v->timecol : "random"));
+    json_t *segs = json_array();
+    for (size_t s = 0; s < v->cv->nsegs; s++) {
+        size_t g = v->cv->seg[s], hn = v->ho->n[g];
+        json_t *pts = json_array();
+        for (size_t ti = 0; ti < v->nt; ti++) {
+            const etacal_curve_point *pt = &v->cv->pts[s * v->nt + ti];
+            json_array_append_new(
+                pts, json_pack("{s:f,s:o,s:o,s:o,s:o,s:I,s:I,s:o,s:[o,o]}", "target", v->targets[ti], "buffer",
+                               num_or_null(pt->buffer), "mean_promise_s", num_or_null(pt->mean_promise_s),
+                               "mean_extra_s", num_or_null(pt->mean_extra_s), "marginal_s_per_point",
+                               num_or_null(pt->marginal_s_per_point), "held_n", (json_int_t)hn, "held_hits",
+                               (json_int_t)pt->hits, "on_time",
+                               hn ? json_real((double)pt->hits / (double)hn) : json_null(), "ci",
+                               num_or_null(pt->ci_lo), num_or_null(pt->ci_hi)));
+        }
+        json_t *kv = json_object();
+        for (size_t j = 0; j < v->nkeys; j++)
+            json_object_set_new(kv, v->keys[j], json_string(v->q->segs[g].keys[j]));
+        json_array_append_new(segs, json_pack("{s:o,s:I,s:o}", "keys", kv, "held_n", (json_int_t)hn, "points", pts));
+    }
+    if (root)
+        json_object_set_new(root, "segments", segs);
+    else
+        json_decref(segs);
+    int rc = json_out(root, fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10), outname, err);
+    json_decref(root);
+    return rc;
+}
 
 int cmd_curve(int argc, char **argv)
 {
@@ -97,186 +234,44 @@ int cmd_curve(int argc, char **argv)
     if (nt == 0)
         return usage_error("curve", "the grid of targets is empty");
     const char *path = argv[optind];
-    const char *timecol = a.timecol;
-    char *const *keys = a.keys;
-    size_t nkeys = a.nkeys, nx = a.nx, seed = a.seed, min_rows = a.min_rows;
-    double split = a.split, holdout = a.holdout, confidence = a.confidence;
-    int method = a.method;
 
-    etacal_colspec cols[FIT_MAX_COLS];
-    size_t key_cols[MAX_KEYS], x_cols[ETACAL_QR_MAX_COVARIATES];
-    long time_col;
-    size_t ncol = fit_columns(&a, cols, key_cols, x_cols, &time_col);
+    /* the fit run of fit.h at every target of the grid, scored on the held-out rows */
+    etacal_fitspec spec;
+    fit_spec(&a, &spec);
+    spec.targets = targets;
+    spec.ntargets = nt;
     etacal_error err;
     etacal_error_clear(&err);
-    etacal_table *t = NULL;
-    etacal_quotes *q = NULL;
-    etacal_holdout ho = {0};
+    etacal_fit_run *run = NULL;
     etacal_curve cv = {0};
     etacal_outfile of = {0};
-    unsigned char *mask = NULL;
-    int rc = etacal_table_read_csv(path, cols, ncol, &a.ro, &t, &err);
+    int rc = etacal_fit_csv(&spec, path, &a.ro, &run, &err);
     if (rc)
         return report_error(&err);
-    size_t n = etacal_table_rows(t);
-    size_t held = 0;
-    if (holdout_rows(t, time_col, holdout, seed, path, &mask, &held, &err) != 0)
-        goto fail;
-    etacal_fit_opts fo = {method, targets, nt, min_rows, x_cols, nx, split, (unsigned long)seed, confidence, mask, NULL};
-    if ((rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err)) != 0)
-        goto fail;
-    for (size_t i = 0; i < n; i++)
-        mask[i] = !mask[i];
-    if ((rc = etacal_quotes_holdout(q, t, 0, 1, key_cols, x_cols, mask, &ho, &err)) != 0)
-        goto fail;
-    if ((rc = etacal_curve_compute(q, &ho, 0.95, &cv, &err)) != 0)
+    const etacal_quotes *q = etacal_fit_run_quotes(run);
+    const etacal_holdout *ho = etacal_fit_run_holdout(run);
+    size_t n = etacal_table_rows(etacal_fit_run_rows(run)), held = etacal_fit_run_held(run);
+    if ((rc = etacal_curve_compute(q, ho, 0.95, &cv, &err)) != 0)
         goto fail;
     if ((rc = etacal_outfile_open(&of, output ? output : "-", &err)) != 0)
         goto fail;
-    FILE *fp = of.fp;
-    json_t *root = NULL, *segs = NULL;
-    if (strcmp(format, "json") == 0) {
-        root = json_object();
-        json_object_set_new(root, "etacal", json_string(ETACAL_VERSION));
-        json_object_set_new(root, "file", json_string(path));
-        json_object_set_new(root, "held_out", json_pack("{s:I,s:I,s:s}", "rows", (json_int_t)held, "of",
-                                                        (json_int_t)n, "by", timecol ? timecol : "random"));
-        segs = json_array();
-    } else if (strcmp(format, "csv") == 0) {
-        for (size_t j = 0; j < nkeys; j++) {
-            csv_field(fp, keys[j]);
-            putc(',', fp);
-        }
-        fputs("target,buffer,mean_promise_s,mean_extra_s,marginal_s_per_point,held_n,held_hits,on_time,ci_low,ci_high\n",
-              fp);
-    } else {
-        char sh[ETACAL_NUM_BUFSZ];
-        etacal_percent_label(holdout, sh);
-        fprintf(fp, "etacal curve: %s, method %s; measured on %zu held-out rows (%s %s%%%s%s), fitted on %zu\n",
-                path, etacal_method_name(method), held, timecol ? "the latest" : "a random", sh,
-                timecol ? " by " : "", timecol ? timecol : "", n - held);
-    }
-    for (size_t s = 0; s < cv.nsegs; s++) {
-        size_t g = cv.seg[s];
-        size_t hn = ho.n[g];
-        json_t *pts = NULL;
-        text_table tt;
-        int text = strcmp(format, "text") == 0;
-        if (text) {
-            if (nkeys) {
-                fputs("\nsegment", fp);
-                for (size_t j = 0; j < nkeys; j++)
-                    fprintf(fp, "%s%s", j ? ", " : " ", q->segs[g].keys[j]);
-                fputc('\n', fp);
-            } else {
-                fputc('\n', fp);
-            }
-            if (tt_init(&tt, 7) != 0) {
-                etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
-                goto fail;
-            }
-            const char *h[7] = {"target",
-                                method == ETACAL_METHOD_ADD     ? "buffer s"
-                                : method == ETACAL_METHOD_RATIO ? "factor"
-                                                                : "corr s",
-                                "mean promise min",
-                                "extra min", "+min per point", "on time (held out)", "95% CI"};
-            tt_add(&tt, h);
-            for (int j = 0; j < 6; j++)
-                tt.right[j] = 1;
-        }
-        if (root)
-            pts = json_array();
-        for (size_t ti = 0; ti < nt; ti++) {
-            const etacal_curve_point *pt = &cv.pts[s * nt + ti];
-            double buf = pt->buffer, mp = pt->mean_promise_s, extra = pt->mean_extra_s;
-            double marginal = pt->marginal_s_per_point, lo = pt->ci_lo, hi = pt->ci_hi;
-            size_t hits = pt->hits;
-            char tb[ETACAL_NUM_BUFSZ];
-            etacal_num_format(targets[ti], tb);
-            if (text) {
-                char b[6][64];
-                snprintf(b[0], sizeof b[0], method == ETACAL_METHOD_RATIO ? "%.4f" : "%.1f", buf);
-                snprintf(b[1], sizeof b[1], "%.2f", mp / 60);
-                snprintf(b[2], sizeof b[2], "%.2f", extra / 60);
-                if (isnan(marginal))
-                    snprintf(b[3], sizeof b[3], "-");
-                else
-                    snprintf(b[3], sizeof b[3], "%+.2f", marginal / 60);
-                snprintf(b[4], sizeof b[4], "%.2f%% (%zu/%zu)", hn ? 100.0 * (double)hits / (double)hn : 0.0, hits, hn);
-                snprintf(b[5], sizeof b[5], "%.4f-%.4f", lo, hi);
-                char tp[ETACAL_NUM_BUFSZ + 2];
-                etacal_percent_label(targets[ti], tp);
-                strcat(tp, "%");
-                const char *row[7] = {tp, b[0], b[1], b[2], b[3], b[4], b[5]};
-                tt_add(&tt, row);
-            } else if (root) {
-                json_array_append_new(
-                    pts, json_pack("{s:f,s:o,s:o,s:o,s:o,s:I,s:I,s:o,s:[o,o]}", "target", targets[ti], "buffer",
-                                   isfinite(buf) ? json_real(buf) : json_null(), "mean_promise_s",
-                                   isfinite(mp) ? json_real(mp) : json_null(), "mean_extra_s",
-                                   isfinite(extra) ? json_real(extra) : json_null(), "marginal_s_per_point",
-                                   isfinite(marginal) ? json_real(marginal) : json_null(), "held_n", (json_int_t)hn,
-                                   "held_hits", (json_int_t)hits, "on_time",
-                                   hn ? json_real((double)hits / (double)hn) : json_null(), "ci",
-                                   isfinite(lo) ? json_real(lo) : json_null(),
-                                   isfinite(hi) ? json_real(hi) : json_null()));
-            } else {
-                for (size_t j = 0; j < nkeys; j++) {
-                    csv_field(fp, q->segs[g].keys[j]);
-                    putc(',', fp);
-                }
-                fprintf(fp, "%s,%.10g,%.10g,%.10g,", tb, buf, mp, extra);
-                if (!isnan(marginal))
-                    fprintf(fp, "%.10g", marginal);
-                fprintf(fp, ",%zu,%zu,%.10g,%.10g,%.10g\n", hn, hits, hn ? (double)hits / (double)hn : NAN, lo, hi);
-            }
-        }
-        if (text) {
-            int tbad = tt_print(&tt, fp) != 0;
-            tt_free(&tt);
-            if (tbad) {
-                json_decref(root);
-                etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
-                goto fail;
-            }
-        }
-        if (root) {
-            json_t *kv = json_object();
-            for (size_t j = 0; j < nkeys; j++)
-                json_object_set_new(kv, keys[j], json_string(q->segs[g].keys[j]));
-            json_array_append_new(segs, json_pack("{s:o,s:I,s:o}", "keys", kv, "held_n", (json_int_t)hn, "points", pts));
-        }
-    }
-    if (strcmp(format, "json") == 0) {
-        if (root)
-            json_object_set_new(root, "segments", segs);
-        else
-            json_decref(segs);
-        rc = json_out(root, fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10),
-                      output ? output : "stdout", &err);
-        json_decref(root);
-        if (rc) {
-            etacal_outfile_abort(&of);
-            goto fail;
-        }
-    }
-    if ((rc = etacal_outfile_commit(&of, &err)) != 0) {
-        etacal_outfile_abort(&of);
+    curve_view v = {path, a.timecol, a.keys, a.nkeys, a.method, a.holdout, q, ho, &cv, targets, nt, n, held};
+    if (strcmp(format, "json") == 0)
+        rc = write_json(of.fp, &v, output ? output : "stdout", &err);
+    else if (strcmp(format, "csv") == 0)
+        write_csv(of.fp, &v);
+    else if (write_text(of.fp, &v) != 0)
+        rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+    if (rc)
         goto fail;
-    }
+    if ((rc = etacal_outfile_commit(&of, &err)) != 0)
+        goto fail;
     etacal_curve_free(&cv);
-    etacal_holdout_free(&ho);
-    etacal_quotes_destroy(q);
-    etacal_table_destroy(t);
-    free(mask);
+    etacal_fit_run_destroy(run);
     return 0;
 fail:
     etacal_outfile_abort(&of);
     etacal_curve_free(&cv);
-    etacal_holdout_free(&ho);
-    etacal_quotes_destroy(q);
-    etacal_table_destroy(t);
-    free(mask);
+    etacal_fit_run_destroy(run);
     return report_error(&err);
 }

@@ -1,19 +1,13 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* cmd_report.c: `etacal report`: one HTML page a product manager can read
- * at a glance.  Reads the calibration rows, holds out a share, fits a quote
- * table at the chosen target and at every target of the cost curve and the
- * calibration chart, measures them on the held-out rows, runs the backtest
- * when there is a time column, and hands the results to
- * etacal_report_write_html.  No statistics here. */
+ * at a glance.  The options become a report specification; the library
+ * (etacal_report_csv) reads, holds out, fits, scores, backtests and writes
+ * the page; this prints its notes and errors.  No statistics here. */
 #include "fitargs.h"
 
 #include <getopt.h>
-#include <math.h>
 #include <stdlib.h>
 #include <string.h>
-
-#define MAX_KEYS FIT_MAX_KEYS
-#define MAX_LEVELS 128
 
 static const char help[] =
     "Usage: etacal report CAL.csv --actual COL --pred COL [OPTION]... -o REPORT.html\n"
@@ -84,12 +78,6 @@ static int append_arg(char **buf, size_t *len, size_t *cap, const char *s)
     return 0;
 }
 
-static int cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
-}
-
 static int run(int argc, char **argv, const char *cmdline)
 {
     /* the options it shares with fit (fitargs.h), and its own */
@@ -103,9 +91,11 @@ static int run(int argc, char **argv, const char *cmdline)
         {0, 0, 0, 0}};
     fit_args a;
     fit_args_init(&a);
-    a.holdout = 0.2;
-    const char *output = NULL, *title = NULL;
-    double target = 0.9, window = 28 * 86400.0, every = 86400.0;
+    etacal_report_spec rs;
+    etacal_report_spec_init(&rs);
+    a.holdout = rs.fit.holdout;
+    const char *output = NULL;
+    double target = 0.9;
     int c;
     optind = 1;
     opterr = 0;
@@ -120,10 +110,10 @@ static int run(int argc, char **argv, const char *cmdline)
             double v;
             if (parse_duration(optarg, &v) != 0 || !(v > 0))
                 return usage_error("report", "durations look like 28d, 1d, 36h, 90m or 3600 (seconds)");
-            *(c == O_WINDOW ? &window : &every) = v;
+            *(c == O_WINDOW ? &rs.window_s : &rs.every_s) = v;
             break;
         }
-        case O_TITLE: title = optarg; break;
+        case O_TITLE: rs.title = optarg; break;
         case 'o': output = optarg; break;
         case 'h': fputs(help, stdout); return 0;
         default: {
@@ -146,167 +136,20 @@ static int run(int argc, char **argv, const char *cmdline)
     int u = fit_args_check(&a, "report");
     if (u)
         return u;
-    const char *actual = a.actual, *pred = a.pred, *timecol = a.timecol;
-    size_t nkeys = a.nkeys, nx = a.nx, seed = a.seed, min_rows = a.min_rows;
-    double split = a.split, holdout = a.holdout, halflife = a.halflife;
-    int method = a.method;
-    etacal_read_opts ro = a.ro;
+    fit_spec(&a, &rs.fit);
+    rs.command = cmdline;
     const char *path = argv[optind];
-
-    /* the targets: the cost-curve grid, the calibration levels and the target */
-    double targets[MAX_LEVELS];
-    size_t nt = etacal_curve_grid(0.5, 0.99, 0.01, targets, MAX_LEVELS);
-    nt += etacal_curve_grid(0.05, 0.45, 0.05, targets + nt, MAX_LEVELS - nt);
-    targets[nt++] = target;
-    qsort(targets, nt, sizeof *targets, cmp_double);
-    size_t w = 0;
-    for (size_t i = 0; i < nt; i++)
-        if (w == 0 || targets[i] != targets[w - 1])
-            targets[w++] = targets[i];
-    nt = w;
-
-    etacal_colspec cols[FIT_MAX_COLS];
-    size_t key_cols[MAX_KEYS], x_cols[ETACAL_QR_MAX_COVARIATES];
-    long time_col;
-    size_t ncol = fit_columns(&a, cols, key_cols, x_cols, &time_col);
     progress pg = {path, 0, -1};
+    etacal_read_opts ro = a.ro;
     ro.progress = progress_cb;
     ro.progress_ud = &pg;
-
+    etacal_report_notes notes;
     etacal_error err;
     etacal_error_clear(&err);
-    etacal_table *t = NULL;
-    etacal_quotes *q = NULL;
-    etacal_holdout ho = {0};
-    etacal_curve cv = {0};
-    etacal_report_hist hist = {0};
-    etacal_backtest_result bt = {0};
-    etacal_outfile of = {0};
-    unsigned char *mask = NULL;
-    double *wts = NULL;
-    char bt_note[300] = "", note[400] = "";
-    int have_bt = 0;
-    int rc = etacal_table_read_csv(path, cols, ncol, &ro, &t, &err);
+    int rc = etacal_report_csv(&rs, path, &ro, output ? output : "-", &notes, &err);
     progress_end(&pg);
-    if (rc)
-        return report_error(&err);
-    size_t n = etacal_table_rows(t);
-    size_t held = 0;
-    if ((rc = holdout_rows(t, time_col, holdout, seed, path, &mask, &held, &err)) != 0)
-        goto fail;
-    /* the levels of the grids that the rows fitted on can bound (n >= tau/(1-tau)); the chosen target
-     * stays, and says so itself when it cannot be met */
-    w = 0;
-    for (size_t i = 0; i < nt; i++)
-        if (targets[i] == target || etacal_conformal_min_n(targets[i]) <= n - held)
-            targets[w++] = targets[i];
-    nt = w;
-    etacal_fit_opts fo = {method, targets, nt, min_rows, x_cols, nx, split, (unsigned long)seed, 0, mask, NULL};
-    if (halflife > 0) {
-        wts = malloc((n ? n : 1) * sizeof *wts);
-        if (!wts) {
-            rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
-            goto fail;
-        }
-        etacal_recency_weights(etacal_table_num(t, (size_t)time_col), n, mask, halflife, wts);
-        fo.weights = wts;
-    }
-    rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err);
-    if (rc == ETACAL_ENUM && nt > 1) {
-        /* a level of the charts that cannot be fitted should not cost the
-         * page: fit the chosen target alone, and say so */
-        snprintf(note, sizeof note, "the levels of the cost curve and the calibration chart could not be fitted (%s); "
-                 "the page shows the chosen target only", err.msg);
-        etacal_error_clear(&err);
-        targets[0] = target;
-        fo.ntargets = 1;
-        rc = etacal_quotes_fit(t, 0, 1, key_cols, nkeys, &fo, &q, &err);
-        if (rc == 0)
-            fprintf(stderr, "etacal: report: %s\n", note);
-    }
-    if (rc)
-        goto fail;
-    if ((rc = etacal_report_hist_residuals(t, 0, 1, mask, &hist, &err)) != 0)
-        goto fail;
-    for (size_t i = 0; i < n; i++)
-        mask[i] = !mask[i];
-    if ((rc = etacal_quotes_holdout(q, t, 0, 1, key_cols, x_cols, mask, &ho, &err)) != 0)
-        goto fail;
-    if ((rc = etacal_curve_compute(q, &ho, 0.95, &cv, &err)) != 0)
-        goto fail;
-    double tmin = NAN, tmax = NAN;
-    if (timecol) {
-        const double *tm = etacal_table_num(t, (size_t)time_col);
-        for (size_t i = 0; i < n; i++) {
-            tmin = i == 0 || tm[i] < tmin ? tm[i] : tmin;
-            tmax = i == 0 || tm[i] > tmax ? tm[i] : tmax;
-        }
-        etacal_backtest_opts bo = {method, target, window, every, min_rows, halflife, 0, 0, x_cols, nx, split,
-                                   (unsigned long)seed};
-        etacal_error be;
-        etacal_error_clear(&be);
-        rc = etacal_backtest_run(t, 0, 1, (size_t)time_col, key_cols, nkeys, &bo, &bt, &be);
-        if (rc == ETACAL_ENUM) {
-            /* the data are too short for this window: the page says so */
-            snprintf(bt_note, sizeof bt_note, "%s", be.msg);
-            fprintf(stderr, "etacal: report: no backtest: %s\n", be.msg);
-        } else if (rc) {
-            err = be;
-            goto fail;
-        } else {
-            have_bt = 1;
-        }
-    }
-    char how[160];
-    {
-        char sh[ETACAL_NUM_BUFSZ];
-        etacal_percent_label(holdout, sh);
-        if (timecol)
-            snprintf(how, sizeof how, "the latest %s%% by %s", sh, timecol);
-        else
-            snprintf(how, sizeof how, "a random %s%%, seed %zu", sh, seed);
-    }
-    etacal_report rep = {0};
-    rep.title = title;
-    rep.command = cmdline;
-    rep.source = path;
-    rep.actual_name = actual;
-    rep.pred_name = pred;
-    rep.time_name = timecol;
-    rep.stats = etacal_table_stats(t);
-    rep.time_min = tmin;
-    rep.time_max = tmax;
-    rep.q = q;
-    rep.target = (size_t)etacal_quotes_find_target(q, target);
-    rep.ho = &ho;
-    rep.curve = &cv;
-    rep.held = held;
-    rep.fitted = n - held;
-    rep.held_how = how;
-    rep.hist = &hist;
-    rep.bt = have_bt ? &bt : NULL;
-    rep.bt_note = bt_note[0] ? bt_note : NULL;
-    rep.note = note[0] ? note : NULL;
-    rep.half_life_s = halflife;
-    rep.bt_window_s = window;
-    rep.bt_every_s = every;
-    rep.thin = 30;
-    rep.curve_from = 0.5;
-    if ((rc = etacal_outfile_open(&of, output ? output : "-", &err)) != 0)
-        goto fail;
-    if ((rc = etacal_report_write_html(of.fp, &rep, &err)) != 0)
-        goto fail;
-    rc = etacal_outfile_commit(&of, &err);
-fail:
-    etacal_outfile_abort(&of); /* nothing left to abort after a commit */
-    etacal_backtest_free(&bt);
-    etacal_report_hist_free(&hist);
-    etacal_curve_free(&cv);
-    etacal_holdout_free(&ho);
-    etacal_quotes_destroy(q);
-    etacal_table_destroy(t);
-    free(wts);
-    free(mask);
+    for (size_t i = 0; i < notes.n; i++)
+        fprintf(stderr, "etacal: report: %s\n", notes.text[i]);
     return rc ? report_error(&err) : 0;
 }
 

@@ -384,35 +384,6 @@ int fit_args_check(fit_args *a, const char *cmd)
     return 0;
 }
 
-size_t fit_columns(const fit_args *a, etacal_colspec *cols, size_t *key_cols, size_t *x_cols, long *time_col)
-{
-    etacal_fitspec s;
-    fit_spec(a, &s);
-    size_t ncol = etacal_fitspec_columns(&s, cols);
-    for (size_t j = 0; j < a->nkeys; j++)
-        key_cols[j] = 2 + j;
-    for (size_t j = 0; j < a->nx; j++)
-        x_cols[j] = 2 + a->nkeys + j;
-    *time_col = a->timecol ? (long)(ncol - 1) : -1;
-    return ncol;
-}
-
-int holdout_rows(const etacal_table *t, long time_col, double share, size_t seed, const char *path,
-                 unsigned char **mask, size_t *held, etacal_error *err)
-{
-    size_t n = etacal_table_rows(t);
-    *mask = malloc(n ? n : 1);
-    if (!*mask)
-        return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-    *held = etacal_holdout_mask(t, time_col, share, (unsigned long)seed, *mask);
-    if (*held == ETACAL_HOLDOUT_NOMEM)
-        return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-    if (*held == 0 || *held == n)
-        return etacal_error_set(err, ETACAL_ENUM, path, "--holdout %g leaves %s rows to %s", share,
-                                *held == 0 ? "no" : "all", *held == 0 ? "hold out" : "fit on");
-    return ETACAL_OK;
-}
-
 int fit_run(const fit_args *a, const char *path, fit_result *r, etacal_error *err)
 {
     etacal_fitspec s;

@@ -80,19 +80,6 @@ typedef struct fit_result {
  * arrays stay a's). */
 void fit_spec(const fit_args *a, etacal_fitspec *s);
 
-/* The columns a fit reads: actual 0, pred 1, then the keys, the
- * covariates and the time (when given); their indices in key_cols, x_cols
- * and *time_col (-1 without --time).  Returns how many (at most
- * FIT_MAX_COLS). */
-#define FIT_MAX_COLS ETACAL_FIT_MAX_COLS
-size_t fit_columns(const fit_args *a, etacal_colspec *cols, size_t *key_cols, size_t *x_cols, long *time_col);
-
-/* The held-out rows of t (etacal_holdout_mask) in a new *mask (the
- * caller's to free, also after an error): an error when memory runs out or
- * the share leaves no row on one side. */
-int holdout_rows(const etacal_table *t, long time_col, double share, size_t seed, const char *path,
-                 unsigned char **mask, size_t *held, etacal_error *err);
-
 /* Reads path (columns: actual 0, pred 1, keys, covariates, time) and fits. */
 int fit_run(const fit_args *a, const char *path, fit_result *r, etacal_error *err);
 void fit_result_free(fit_result *r);

@@ -37,7 +37,7 @@ check() {
     fi
 }
 
-for t in test_quote test_csv_read test_apply test_timeparse test_io test_fuzz_replay; do
+for t in test_quote test_csv_read test_apply test_timeparse test_io test_fuzz_replay test_report; do
     check "$t" 0 "$build/tests/$t"
 done
 "$build/citygen" --seed 5 --rows 600 --fresh-rows 100 --cal "$work/cal.csv" --fresh "$work/fresh.csv" 2>/dev/null
@@ -51,6 +51,7 @@ check check_json 0 "$bin" check promised.csv --actual actual_s --upper promise_s
 check qr 0 "$bin" qr "$top/tests/ref/engel.csv" --y foodexp --x income --tau 0.25,0.5 --format json -o qr.json
 check curve 0 "$bin" curve cal.csv --actual actual_s --pred pred_s --from 0.85 --to 0.9 --step 0.05 -o curve.txt
 check backtest 0 "$bin" backtest cal.csv --actual actual_s --pred pred_s --time placed_at --window 7d --every 7d -o bt.txt
+check report 0 "$bin" report cal.csv --actual actual_s --pred pred_s --by zone --time placed_at --window 7d --every 7d -o r.html
 # error paths: a bad quote table, a NUL byte, a ragged row, an overflowing number
 printf 'zone,target,method,n,k,offset_s,slope\n*,0.9,add,10,9,5,1\nx,0.9,add,10,11,5,1\n' >bad_q.csv
 check bad_quotes 1 "$bin" apply bad_q.csv fresh.csv --pred pred_s -o never.csv

@@ -173,10 +173,18 @@ static void test_spec_checks(void **state)
     CHECK(s.half_life = 3600, "--half-life needs --time (the age of each row)");
     CHECK((s.half_life = 3600, s.time = "placed", s.confidence = 0.9), "--half-life does not go with --confidence");
     CHECK(s.method = 7, "--method must be add, ratio or qr");
+    /* a grid of targets (curve, report) up to ETACAL_FIT_MAX_TARGETS */
+    static double grid[ETACAL_FIT_MAX_TARGETS + 1];
+    for (size_t i = 0; i <= ETACAL_FIT_MAX_TARGETS; i++)
+        grid[i] = 0.0005 + 0.000998 * (double)i;
+    CHECK((s.targets = grid, s.ntargets = ETACAL_FIT_MAX_TARGETS + 1), "at most 1000 targets");
 #undef CHECK
     etacal_fitspec_init(&s);
     s.actual = "actual_s";
     s.pred = "pred_s";
+    assert_int_equal(etacal_fitspec_check(&s, &err), ETACAL_OK);
+    s.targets = grid;
+    s.ntargets = ETACAL_FIT_MAX_TARGETS;
     assert_int_equal(etacal_fitspec_check(&s, &err), ETACAL_OK);
     assert_int_equal(etacal_fitspec_check(NULL, &err), ETACAL_EINVAL);
 }
