@@ -107,7 +107,7 @@ int main(int argc, char **argv)
     for (size_t o = 0; o < 2; o++) {
         const char *k[1] = {order_zone[o]};
         long row = etacal_quote_index_lookup(ix, k, NULL, 0, NULL);
-        double promise = etacal_promise_round(etacal_quote_index_promise(ix, row, order_pred[o], NULL), 60);
+        double promise = etacal_promise_round(etacal_quote_index_promise(ix, row, order_pred[o], NULL, NULL, NULL), 60);
         printf("order %zu in %s: predicted %.0f s, promised %.0f s (%.0f min)\n", o + 1, order_zone[o],
                order_pred[o], promise, promise / 60);
     }

@@ -53,12 +53,9 @@ typedef struct applier {
     long *c_keys;         /* order column of each table key */
     long c_cov[ETACAL_QR_MAX_COVARIATES]; /* order column of each coef_ covariate */
     double cov[ETACAL_QR_MAX_COVARIATES];
-    strdict segs;         /* joined key texts -> table segment */
-    long *segrow;         /* [seg * ntargets + ti] -> row index or -1 */
+    etacal_quote_index *ix; /* the table's rows by segment */
     size_t nsel;
     size_t sel[ETACAL_APPLY_MAX_TARGETS];
-    char *joined;
-    size_t jcap;
 } applier;
 
 static void on_field(void *ud, size_t col, const char *s, size_t len)
@@ -146,35 +143,13 @@ static int header(applier *a, size_t line, const char *raw, size_t rawlen)
  * *level_out is the number of keys matched by value. */
 static long lookup(applier *a, size_t ti, size_t *level_out)
 {
-    const etacal_quotes *q = a->q;
-    rowbuf *b = &a->rb;
-    size_t need = 0;
-    for (size_t j = 0; j < q->nkeys; j++)
-        need += rowbuf_len(b, (size_t)a->c_keys[j]) + 2;
-    if (grow_array((void **)&a->joined, &a->jcap, need + 1, 1) != 0)
-        return -2;
-    for (size_t level = q->nkeys + 1; level-- > 0;) {
-        size_t w = 0;
-        for (size_t j = 0; j < q->nkeys; j++) {
-            if (j < level) {
-                size_t len = rowbuf_len(b, (size_t)a->c_keys[j]);
-                memcpy(a->joined + w, rowbuf_get(b, (size_t)a->c_keys[j]), len);
-                w += len;
-            } else {
-                a->joined[w++] = '*';
-            }
-            a->joined[w++] = '\x1f';
-        }
-        uint32_t seg;
-        if (strdict_find(&a->segs, a->joined, w, &seg)) {
-            long r = a->segrow[(size_t)seg * q->ntargets + ti];
-            if (r >= 0) {
-                *level_out = level;
-                return r;
-            }
-        }
+    const char *keys[ETACAL_MAX_KEYS];
+    size_t lens[ETACAL_MAX_KEYS];
+    for (size_t j = 0; j < a->q->nkeys; j++) {
+        keys[j] = rowbuf_get(&a->rb, (size_t)a->c_keys[j]);
+        lens[j] = rowbuf_len(&a->rb, (size_t)a->c_keys[j]);
     }
-    return -1;
+    return etacal_quote_index_lookup(a->ix, keys, lens, ti, level_out);
 }
 
 /* "column 'x' is not numeric: '1e400' (beyond the range of a double)" */
@@ -289,12 +264,8 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
             continue;
         size_t level = 0;
         long r = lookup(a, a->sel[t], &level);
-        if (r == -2) {
-            stop = fail(a, line, ETACAL_ENOMEM, "out of memory%s", "");
-            goto out;
-        }
         int moved = 0, low = 0;
-        double raw_v = etacal_quote_promise(a->q, &a->q->rows[r], pred, a->cov, &moved, &low);
+        double raw_v = etacal_quote_index_promise(a->ix, r, pred, a->cov, &moved, &low);
         clamped |= moved;
         floored |= low;
         double v = etacal_promise_round(raw_v, a->o->round_s);
@@ -335,7 +306,6 @@ int etacal_apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,
     a.path = in_path;
     a.err = err;
     a.delim = opts->delim ? opts->delim : ',';
-    strdict_init(&a.segs);
     if (!opts->pred_col)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "no prediction column given");
     if (opts->targets) {
@@ -358,48 +328,19 @@ int etacal_apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,
     }
     if (!(opts->round_s >= 0) || !isfinite(opts->round_s))
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "rounding must be a finite number of seconds >= 0");
-    /* lookup structures */
-    size_t ncell = q->nsegs * q->ntargets;
-    a.segrow = malloc((ncell ? ncell : 1) * sizeof *a.segrow);
-    if (!a.segrow) {
-        rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+    if ((rc = etacal_quote_index_create(q, &a.ix, err)) != 0)
         goto done;
-    }
-    for (size_t i = 0; i < q->nsegs * q->ntargets; i++)
-        a.segrow[i] = -1;
-    for (size_t s = 0; s < q->nsegs; s++) {
-        size_t w = 0;
+    for (size_t t = 0; t < a.nsel; t++) {
+        const char *any[ETACAL_MAX_KEYS];
         for (size_t j = 0; j < q->nkeys; j++)
-            w += strlen(q->segs[s].keys[j]) + 1;
-        if (grow_array((void **)&a.joined, &a.jcap, w + 1, 1) != 0) {
-            rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-            goto done;
-        }
-        w = 0;
-        for (size_t j = 0; j < q->nkeys; j++) {
-            size_t len = strlen(q->segs[s].keys[j]);
-            memcpy(a.joined + w, q->segs[s].keys[j], len);
-            w += len;
-            a.joined[w++] = '\x1f';
-        }
-        uint32_t id;
-        if (strdict_intern(&a.segs, a.joined, w, &id) != 0) {
-            rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-            goto done;
-        }
-        if (id != s) {
-            rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "the quote table has a duplicate segment");
-            goto done;
-        }
-    }
-    for (size_t r = 0; r < q->nrows; r++)
-        a.segrow[q->rows[r].seg * q->ntargets + q->rows[r].target] = (long)r;
-    for (size_t t = 0; t < a.nsel; t++)
-        if (a.segrow[0 * q->ntargets + a.sel[t]] < 0) {
+            any[j] = "*";
+        size_t level = 0;
+        if (etacal_quote_index_lookup(a.ix, any, NULL, a.sel[t], &level) < 0) {
             rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "the quote table has no global row for target %g",
                                   q->targets[a.sel[t]]);
             goto done;
         }
+    }
     csvstream_cb cb = {on_field, on_row, &a, NULL, NULL};
     rc = csvstream_run(in_path, a.delim, 1, &cb, NULL, err);
     if (rc)
@@ -409,9 +350,7 @@ int etacal_apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,
 
 done:
     rowbuf_free(&a.rb);
-    strdict_free(&a.segs);
-    free(a.segrow);
+    etacal_quote_index_destroy(a.ix);
     free(a.c_keys);
-    free(a.joined);
     return rc;
 }

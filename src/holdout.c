@@ -22,22 +22,6 @@ void etacal_holdout_free(etacal_holdout *h)
     memset(h, 0, sizeof *h);
 }
 
-/* "k1\x1fk2\x1f" of the first `level` keys of a segment, "*" for the rest. */
-static size_t join(char *buf, size_t cap, const char *const *keys, size_t nkeys, size_t level)
-{
-    size_t w = 0;
-    for (size_t j = 0; j < nkeys; j++) {
-        const char *k = j < level ? keys[j] : "*";
-        size_t len = strlen(k);
-        if (w + len + 1 >= cap)
-            return SIZE_MAX;
-        memcpy(buf + w, k, len);
-        w += len;
-        buf[w++] = '\x1f';
-    }
-    return w;
-}
-
 int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t actual_col, size_t pred_col,
                           const size_t *key_cols, const size_t *x_cols, const unsigned char *mask,
                           etacal_holdout *out, etacal_error *err)
@@ -47,9 +31,7 @@ int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t 
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "a quote table has at most %d key columns",
                                 ETACAL_MAX_KEYS);
     int rc = ETACAL_OK;
-    strdict d;
-    strdict_init(&d);
-    long *segrow = NULL;
+    etacal_quote_index *ix = NULL;
     size_t nt = q->ntargets, ns = q->nsegs;
     out->nsegs = ns;
     out->ntargets = nt;
@@ -58,20 +40,12 @@ int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t 
     out->bare = calloc(ns, sizeof *out->bare);
     out->promise_sum = calloc(ns * nt, sizeof *out->promise_sum);
     out->pred_sum = calloc(ns, sizeof *out->pred_sum);
-    segrow = malloc(ns * nt * sizeof *segrow);
-    char key[4096];
-    if (!out->n || !out->hits || !out->bare || !out->promise_sum || !out->pred_sum || !segrow)
-        goto nomem;
-    for (size_t i = 0; i < ns * nt; i++)
-        segrow[i] = -1;
-    for (size_t g = 0; g < ns; g++) {
-        size_t len = join(key, sizeof key, (const char *const *)q->segs[g].keys, q->nkeys, q->nkeys);
-        uint32_t id;
-        if (len == SIZE_MAX || strdict_intern(&d, key, len, &id) != 0)
-            goto nomem;
+    if (!out->n || !out->hits || !out->bare || !out->promise_sum || !out->pred_sum) {
+        rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+        goto done;
     }
-    for (size_t r = 0; r < q->nrows; r++)
-        segrow[q->rows[r].seg * nt + q->rows[r].target] = (long)r;
+    if ((rc = etacal_quote_index_create(q, &ix, err)) != 0)
+        goto done;
     const double *y = etacal_table_num(t, actual_col), *p = etacal_table_num(t, pred_col);
     const char *texts[ETACAL_MAX_KEYS + 1];
     size_t n = etacal_table_rows(t);
@@ -81,26 +55,18 @@ int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t 
         for (size_t j = 0; j < q->nkeys; j++)
             texts[j] = etacal_table_key_text(t, key_cols[j], etacal_table_key_id(t, key_cols[j], i));
         /* the row's own segment, if the table has it */
-        uint32_t own = 0;
-        size_t len = join(key, sizeof key, texts, q->nkeys, q->nkeys);
-        int has_own = len != SIZE_MAX && q->nkeys && strdict_find(&d, key, len, &own);
+        long own = q->nkeys ? etacal_quote_index_segment(ix, texts, NULL) : -1;
         size_t hit_bare = y[i] <= p[i];
         out->n[0]++;
         out->bare[0] += hit_bare;
         out->pred_sum[0] += p[i];
-        if (has_own && own) {
+        if (own > 0) {
             out->n[own]++;
             out->bare[own] += hit_bare;
             out->pred_sum[own] += p[i];
         }
         for (size_t ti = 0; ti < nt; ti++) {
-            long row = -1;
-            for (size_t level = q->nkeys + 1; level-- > 0 && row < 0;) {
-                uint32_t g;
-                len = join(key, sizeof key, texts, q->nkeys, level);
-                if (len != SIZE_MAX && strdict_find(&d, key, len, &g))
-                    row = segrow[(size_t)g * nt + ti];
-            }
+            long row = etacal_quote_index_lookup(ix, texts, NULL, ti, NULL);
             if (row < 0) {
                 rc = etacal_error_set(err, ETACAL_EINVAL, NULL, "the quote table has no global row");
                 goto done;
@@ -108,22 +74,18 @@ int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t 
             double x[ETACAL_QR_MAX_COVARIATES];
             for (size_t j = 0; j < q->ncoef; j++)
                 x[j] = etacal_table_num(t, x_cols[j])[i];
-            double v = etacal_quote_promise(q, &q->rows[row], p[i], x, NULL, NULL);
+            double v = etacal_quote_index_promise(ix, row, p[i], x, NULL, NULL);
             size_t hit = y[i] <= v;
             out->hits[ti] += hit;
             out->promise_sum[ti] += v;
-            if (has_own && own) {
+            if (own > 0) {
                 out->hits[(size_t)own * nt + ti] += hit;
                 out->promise_sum[(size_t)own * nt + ti] += v;
             }
         }
     }
-    goto done;
-nomem:
-    rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
 done:
-    strdict_free(&d);
-    free(segrow);
+    etacal_quote_index_destroy(ix);
     if (rc)
         etacal_holdout_free(out);
     return rc;

@@ -179,59 +179,23 @@ int etacal_reference_point(const etacal_table *t, size_t pred_col, const size_t 
 
 /* ---- comparing two tables ----------------------------------------------- */
 
-/* Row index of (segment g, target ti), or -1. */
-static long own_row(const etacal_quotes *q, size_t g, size_t ti)
+/* The row of segment g's own for target ti, or -1. */
+static long own_row(const etacal_quote_index *ix, const etacal_quotes *q, size_t g, size_t ti)
 {
-    /* rows are by segment, then target: a binary search on (seg, target) */
-    size_t lo = 0, hi = q->nrows;
-    while (lo < hi) {
-        size_t mid = lo + (hi - lo) / 2;
-        const etacal_quote *r = &q->rows[mid];
-        if (r->seg < g || (r->seg == g && r->target < ti))
-            lo = mid + 1;
-        else
-            hi = mid;
-    }
-    if (lo < q->nrows && q->rows[lo].seg == g && q->rows[lo].target == ti)
-        return (long)lo;
-    for (size_t r = 0; r < q->nrows; r++) /* a table not in that order */
-        if (q->rows[r].seg == g && q->rows[r].target == ti)
-            return (long)r;
-    return -1;
-}
-
-/* The segment whose keys are keys[0..level) followed by '*', or -1. */
-static long find_seg(const etacal_quotes *q, const char *const *keys, size_t level)
-{
-    for (size_t g = 0; g < q->nsegs; g++) {
-        const etacal_segment *s = &q->segs[g];
-        size_t j = 0;
-        for (; j < q->nkeys; j++) {
-            const char *want = j < level ? keys[j] : "*";
-            if (strcmp(s->keys[j], want) != 0)
-                break;
-        }
-        if (j == q->nkeys)
-            return (long)g;
-    }
-    return -1;
+    long r = etacal_quote_index_lookup(ix, (const char *const *)q->segs[g].keys, NULL, ti, NULL);
+    return r >= 0 && q->rows[r].seg == g ? r : -1;
 }
 
 double etacal_quotes_promise_at(const etacal_quotes *q, const char *const *keys, size_t ti, double pred,
                                 const double *x)
 {
-    for (size_t level = q->nkeys + 1; level-- > 0;) {
-        if (level > 0 && strcmp(keys[level - 1], "*") == 0)
-            continue; /* a wildcard key: the same segment as one level up */
-        long g = find_seg(q, keys, level);
-        if (g < 0)
-            continue;
-        long r = own_row(q, (size_t)g, ti);
-        if (r < 0)
-            continue;
-        return etacal_quote_promise(q, &q->rows[r], pred, x, NULL, NULL);
-    }
-    return NAN;
+    etacal_quote_index *ix = NULL;
+    if (etacal_quote_index_create(q, &ix, NULL) != 0)
+        return NAN;
+    long r = etacal_quote_index_lookup(ix, keys, NULL, ti, NULL);
+    double v = r >= 0 ? etacal_quote_index_promise(ix, r, pred, x, NULL, NULL) : NAN;
+    etacal_quote_index_destroy(ix);
+    return v;
 }
 
 void etacal_quotes_diff_free(etacal_quotes_diff *d)
@@ -304,18 +268,26 @@ int etacal_quotes_compare(const etacal_quotes *old_q, const etacal_quotes *new_q
     out->moves = calloc(cap ? cap : 1, sizeof *out->moves);
     if (!out->moves)
         return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+    etacal_quote_index *ixn = NULL, *ixo = NULL;
+    if ((rc = etacal_quote_index_create(new_q, &ixn, err)) != 0 ||
+        (rc = etacal_quote_index_create(old_q, &ixo, err)) != 0) {
+        etacal_quote_index_destroy(ixn);
+        etacal_quotes_diff_free(out);
+        return rc;
+    }
     for (int pass = 0; pass < 2; pass++) {
         const etacal_quotes *a = pass == 0 ? new_q : old_q, *b = pass == 0 ? old_q : new_q;
+        const etacal_quote_index *ia = pass == 0 ? ixn : ixo, *ib = pass == 0 ? ixo : ixn;
         size_t nseg = pass == 0 ? nseg_new : nseg_old;
         for (size_t g = 0; g < nseg; g++) {
             const etacal_segment *s = &a->segs[g];
-            long gb = out->keys_differ ? 0 : find_seg(b, (const char *const *)s->keys, a->nkeys);
+            long gb = out->keys_differ ? 0 : etacal_quote_index_segment(ib, (const char *const *)s->keys, NULL);
             int any_a = 0, any_b = 0, moved = 0;
             for (size_t t = 0; t < a->ntargets; t++) {
-                if (own_row(a, g, t) < 0)
+                if (own_row(ia, a, g, t) < 0)
                     continue;
                 long tb = target_index(b, a->targets[t]);
-                int in_b = gb >= 0 && tb >= 0 && own_row(b, (size_t)gb, (size_t)tb) >= 0;
+                int in_b = gb >= 0 && tb >= 0 && own_row(ib, b, (size_t)gb, (size_t)tb) >= 0;
                 any_a = 1;
                 any_b |= in_b;
                 if (pass == 1 && in_b)
@@ -327,9 +299,11 @@ int etacal_quotes_compare(const etacal_quotes *old_q, const etacal_quotes *new_q
                 const double *xa = pass == 0 ? xn : xo, *xb = pass == 0 ? xo : xn;
                 /* with other key columns, b's global segment */
                 const char *const *kb = (const char *const *)(out->keys_differ ? b->segs[0].keys : s->keys);
-                pa = etacal_quotes_promise_at(a, (const char *const *)s->keys, t, pred, xa);
-                if (tb >= 0)
-                    pb = etacal_quotes_promise_at(b, kb, (size_t)tb, pred, xb);
+                long ra = etacal_quote_index_lookup(ia, (const char *const *)s->keys, NULL, t, NULL);
+                pa = ra >= 0 ? etacal_quote_index_promise(ia, ra, pred, xa, NULL, NULL) : NAN;
+                long rb = tb >= 0 ? etacal_quote_index_lookup(ib, kb, NULL, (size_t)tb, NULL) : -1;
+                if (rb >= 0)
+                    pb = etacal_quote_index_promise(ib, rb, pred, xb, NULL, NULL);
                 m->in_new = pass == 0 ? 1 : in_b;
                 m->in_old = pass == 0 ? in_b : 1;
                 m->new_promise = pass == 0 ? pa : pb;
@@ -351,6 +325,8 @@ int etacal_quotes_compare(const etacal_quotes *old_q, const etacal_quotes *new_q
             }
         }
     }
+    etacal_quote_index_destroy(ixn);
+    etacal_quote_index_destroy(ixo);
     return ETACAL_OK;
 }
 

@@ -76,8 +76,13 @@ int etacal_quote_index_create(const etacal_quotes *q, etacal_quote_index **out, 
         unsigned char buf[1 + 4 * ETACAL_MAX_KEYS];
         size_t len = pack(buf, level, ids);
         uint32_t id;
+        size_t before = ix->segs.count;
         if (strdict_intern(&ix->segs, (const char *)buf, len, &id) != 0)
             goto nomem;
+        if (ix->segs.count == before) {
+            etacal_quote_index_destroy(ix);
+            return etacal_error_set(err, ETACAL_EINVAL, NULL, "the quote table has a duplicate segment");
+        }
     }
     /* rows to their segment's id in the dictionary */
     for (size_t r = 0; r < q->nrows; r++) {
@@ -134,13 +139,36 @@ long etacal_quote_index_lookup(const etacal_quote_index *ix, const char *const *
     return -1;
 }
 
-double etacal_quote_index_promise(const etacal_quote_index *ix, long r, double pred, const double *x)
+long etacal_quote_index_segment(const etacal_quote_index *ix, const char *const *keys, const size_t *lens)
 {
-    const etacal_quote *row = &ix->q->rows[r];
-    double v = row->offset_s + row->slope * pred;
-    for (size_t j = 0; j < ix->q->ncoef; j++)
-        v += row->coef[j] * x[j];
-    return v;
+    const etacal_quotes *q = ix->q;
+    uint32_t ids[ETACAL_MAX_KEYS];
+    size_t level = 0;
+    for (size_t j = 0; j < q->nkeys; j++) {
+        const char *k = keys[j];
+        size_t len = lens ? lens[j] : strlen(k);
+        int star = len == 1 && k[0] == '*';
+        if (star || level < j) {
+            /* "*" from here on: a coarser segment; a value after a "*" is none */
+            if (!star)
+                return -1;
+            continue;
+        }
+        if (!strdict_find(&ix->vals[j], k, len, &ids[j]))
+            return -1;
+        level = j + 1;
+    }
+    unsigned char buf[1 + 4 * ETACAL_MAX_KEYS];
+    uint32_t g;
+    if (!strdict_find(&ix->segs, (const char *)buf, pack(buf, level, ids), &g))
+        return -1;
+    return (long)g;
+}
+
+double etacal_quote_index_promise(const etacal_quote_index *ix, long r, double pred, const double *x, int *clamped,
+                                  int *floored)
+{
+    return etacal_quote_promise(ix->q, &ix->q->rows[r], pred, x, clamped, floored);
 }
 
 const etacal_quotes *etacal_quote_index_quotes(const etacal_quote_index *ix) { return ix->q; }

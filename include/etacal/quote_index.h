@@ -7,7 +7,8 @@
  * through one index, so that they all pick the same row by the same rule:
  * an order takes the most specific row of the table that matches it, its
  * own segment first, then its segment with the last keys replaced by "*",
- * down to the global row. */
+ * down to the global row.  A table with two segments of the same keys is
+ * refused (ETACAL_EINVAL). */
 #ifndef ETACAL_QUOTE_INDEX_H
 #define ETACAL_QUOTE_INDEX_H
 
@@ -40,10 +41,20 @@ void etacal_quote_index_destroy(etacal_quote_index *ix);
 long etacal_quote_index_lookup(const etacal_quote_index *ix, const char *const *keys, const size_t *lens, size_t ti,
                                size_t *level);
 
+/* The segment (an index into the table's segments) whose key values are
+ * exactly keys: values, then "*" for the keys a coarser segment leaves open
+ * ("north", "*"); -1 when the table has no such segment (or a value follows
+ * a "*").  The segments of a table are numbered as the table holds
+ * them. */
+long etacal_quote_index_segment(const etacal_quote_index *ix, const char *const *keys, const size_t *lens);
+
 /* The promise of row r for an order with prediction pred and covariates
- * x[0..ncoef) in the table's coefficient order (NULL without covariates):
- * offset_s + slope * pred + sum coef_j * x_j, seconds, not rounded. */
-double etacal_quote_index_promise(const etacal_quote_index *ix, long r, double pred, const double *x);
+ * x[0..ncoef) in the table's coefficient order (NULL without covariates),
+ * seconds, not rounded: etacal_quote_promise's formula (covariates clamped
+ * into the row's range, never below 0; *clamped and *floored, each may be
+ * NULL, say whether either happened). */
+double etacal_quote_index_promise(const etacal_quote_index *ix, long r, double pred, const double *x, int *clamped,
+                                  int *floored);
 
 /* The table the index was built from. */
 const etacal_quotes *etacal_quote_index_quotes(const etacal_quote_index *ix);

@@ -83,7 +83,7 @@ static void test_by_hand(void **state)
         const char *keys2[2] = {zbuf, keys[1]};
         assert_int_equal(etacal_quote_index_lookup(ix, keys2, lens, cases[c].ti, NULL), r);
         /* promise: offset + slope x pred */
-        assert_same_double(etacal_quote_index_promise(ix, r, 1234.5, NULL), cases[c].offset + 1234.5);
+        assert_same_double(etacal_quote_index_promise(ix, r, 1234.5, NULL, NULL, NULL), cases[c].offset + 1234.5);
     }
     const char *keys[2] = {"north", "lunch"};
     assert_int_equal(etacal_quote_index_lookup(ix, keys, NULL, 2, NULL), -1); /* no such target */
@@ -136,7 +136,7 @@ static void test_agrees_with_apply(void **state)
         for (size_t ti = 0; ti < 2; ti++) {
             long r = etacal_quote_index_lookup(ix, keys, NULL, ti, NULL);
             assert_true(r >= 0);
-            double v = etacal_quote_index_promise(ix, r, pred[i], NULL);
+            double v = etacal_quote_index_promise(ix, r, pred[i], NULL, NULL, NULL);
             assert_same_double(v, etacal_quotes_promise_at(q, keys, ti, pred[i], NULL));
             if (ti == 0) {
                 /* apply writes the promise of target 0.8 and 0.9 as promise_s_80,promise_s_90 */
@@ -145,7 +145,7 @@ static void test_agrees_with_apply(void **state)
                 assert_int_equal(sscanf(line, "%15[^,],%15[^,],%*[^,],%lf,%lf", zb, bb, &a80, &a90), 4);
                 assert_same_double(a80, etacal_promise_round(v, 0));
                 long r9 = etacal_quote_index_lookup(ix, keys, NULL, 1, NULL);
-                assert_same_double(a90, etacal_promise_round(etacal_quote_index_promise(ix, r9, pred[i], NULL), 0));
+                assert_same_double(a90, etacal_promise_round(etacal_quote_index_promise(ix, r9, pred[i], NULL, NULL, NULL), 0));
             }
         }
         line = strchr(line, '\n') + 1;
