@@ -1488,7 +1488,7 @@ static int fit_pre(design *d, double tau, double eps, int maxit, unsigned long s
         rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
         goto done;
     }
-    gsl_rng_set(rng, seed ? seed : 5489);
+    gsl_rng_set(rng, (unsigned long)etacal_seed_stream(seed ? seed : 5489, ETACAL_STREAM_QR_PRE));
     double mm = round(sqrt((double)p) * pow((double)n, 2.0 / 3.0));
     size_t m = (size_t)mm;
     for (int round_ = 0; round_ < 20; round_++) {
@@ -1936,7 +1936,7 @@ int etacal_qr_se(const double *y, const double *const *x, size_t k, size_t n, do
         rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
         goto bdone;
     }
-    gsl_rng_set(rng, seed ? seed : 5489);
+    gsl_rng_set(rng, (unsigned long)etacal_seed_stream(seed ? seed : 5489, ETACAL_STREAM_QR_BOOT));
     for (size_t j = 0; j < k; j++)
         xcols[j] = xb + j * n;
     size_t ok = 0;
