@@ -1,13 +1,15 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* predict.c: fitted quantile regressions applied to a stream of rows, with
  * the monotone rearrangement (Chernozhukov, Fernandez-Val & Galichon 2010)
- * at every row. */
+ * at every row: of the curve through the fitted quantiles, piecewise linear
+ * in the level (etacal_rearrange). */
 #include "internal.h"
 
 #include <math.h>
 #include <string.h>
 
 #define MAXT ETACAL_APPLY_MAX_TARGETS
+_Static_assert(MAXT <= ETACAL_QR_MAX_LEVELS, "every level count can be rearranged");
 
 typedef struct predictor {
     const double *coef, *taus;
@@ -111,7 +113,6 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         pr->missing++;
     }
     pr->rows++;
-    const char *term = csv_put_record(pr->out, raw, rawlen);
     double q[MAXT];
     if (!missing) {
         for (size_t t = 0; t < pr->ntau; t++) {
@@ -121,8 +122,13 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
                 v += c[j + 1] * x[j];
             q[t] = v;
         }
-        etacal_rearrange(q, pr->ntau);
+        etacal_error e2;
+        if (etacal_rearrange(pr->taus, q, pr->ntau, &e2) != ETACAL_OK) {
+            stop = fail(pr, line, e2.code, "%s", e2.msg);
+            goto out;
+        }
     }
+    const char *term = csv_put_record(pr->out, raw, rawlen);
     for (size_t t = 0; t < pr->ntau; t++) {
         putc(pr->delim, pr->out);
         if (!missing)
