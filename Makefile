@@ -25,7 +25,7 @@ LIB_SRC := $(wildcard src/*.c)
 CLI_SRC := $(wildcard src/cli/*.c)
 LIB_OBJ := $(LIB_SRC:src/%.c=$(BUILD)/obj/%.o)
 CLI_OBJ := $(CLI_SRC:src/cli/%.c=$(BUILD)/obj/cli/%.o)
-HDRS    := $(wildcard include/etacal/*.h) src/internal.h $(wildcard src/cli/*.h)
+HDRS    := $(wildcard include/etacal/*.h) $(wildcard src/*.h) $(wildcard src/cli/*.h)
 UNIT_SRC := $(wildcard tests/unit/test_*.c)
 UNIT_BIN := $(UNIT_SRC:tests/unit/%.c=$(BUILD)/tests/%)
 LIB      := $(BUILD)/libetacal.a

@@ -11,6 +11,7 @@
 #define ETACAL_QUANTREG_H
 
 #include <stddef.h>
+#include <stdio.h> /* FILE, for etacal_qr_predict_csv */
 
 #include "etacal/error.h"
 

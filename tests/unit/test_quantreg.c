@@ -5,6 +5,10 @@
  * python3-statsmodels and r-cran-quantreg) and R's stackloss data
  * (tests/ref/stackloss.csv, from r-base).  Check values: quantreg 5.94 on
  * Debian bookworm, as listed in ../shared/METHODS.md section 7. */
+/* First, before any system header: the build then checks that the public
+ * header compiles on its own. */
+#include "etacal/quantreg.h"
+
 #include <setjmp.h>
 #include <stdarg.h>
 #include <stddef.h>
