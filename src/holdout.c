@@ -120,7 +120,7 @@ size_t etacal_holdout_mask(const etacal_table *t, long time_col, double share, u
     gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
     if (!r)
         return ETACAL_HOLDOUT_NOMEM;
-    gsl_rng_set(r, seed ? seed : 1);
+    gsl_rng_set(r, (unsigned long)etacal_seed_stream(seed ? seed : 1, ETACAL_STREAM_HOLDOUT));
     for (size_t i = 0; i < n; i++)
         if (gsl_rng_uniform(r) < share) {
             mask[i] = 0;

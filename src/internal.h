@@ -232,6 +232,17 @@ static inline uint32_t seghier_row(const seghier *h, size_t L, size_t i)
     return L == 0 ? 0 : h->uni[L - 1][segset_row(&h->lv[L - 1], i)];
 }
 
+/* Independent random streams from one seed (seed.c): the seed of stream
+ * number `stream` (>= 1) is SplitMix64's output number `stream` from state
+ * `seed`.  GSL's mt19937 keeps the low 32 bits of a seed. */
+enum {
+    ETACAL_STREAM_HOLDOUT = 1,  /* the random held-out rows */
+    ETACAL_STREAM_QR_SPLIT = 2, /* method qr: fitting or calibration part */
+    ETACAL_STREAM_QR_PRE = 3,   /* quantile regression: preprocessing subsamples */
+    ETACAL_STREAM_QR_BOOT = 4   /* quantile regression: bootstrap resamples */
+};
+uint64_t etacal_seed_stream(uint64_t seed, unsigned stream);
+
 /* The p-quantile of Beta(a, b) by bisection (binom.c). */
 double beta_quantile(double p, double a, double b);
 

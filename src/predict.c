@@ -1,17 +1,19 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* predict.c: fitted quantile regressions applied to a stream of rows, with
  * the monotone rearrangement (Chernozhukov, Fernandez-Val & Galichon 2010)
- * at every row.  Covariates are clamped into the range of the data the
- * regression was fitted on (a linear model says nothing beyond it; common
- * practice, no source), and predictions can be floored (a duration is never
- * below 0: raising a quantile to a lower bound of the response's support
- * never increases its pinball loss). */
+ * at every row: of the curve through the fitted quantiles, piecewise linear
+ * in the level (etacal_rearrange).  Covariates are clamped into the range of
+ * the data the regression was fitted on (a linear model says nothing beyond
+ * it; common practice, no source), and predictions can be floored (a
+ * duration is never below 0: raising a quantile to a lower bound of the
+ * response's support never increases its pinball loss). */
 #include "internal.h"
 
 #include <math.h>
 #include <string.h>
 
 #define MAXT ETACAL_APPLY_MAX_TARGETS
+_Static_assert(MAXT <= ETACAL_QR_MAX_LEVELS, "every level count can be rearranged");
 
 typedef struct predictor {
     const double *coef, *taus;
@@ -117,7 +119,6 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         pr->st.missing++;
     }
     pr->st.rows++;
-    const char *term = csv_put_record(pr->out, raw, rawlen);
     double q[MAXT];
     if (!missing) {
         int moved = 0, low = 0;
@@ -137,7 +138,11 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
                 v += c[j + 1] * x[j];
             q[t] = v;
         }
-        etacal_rearrange(q, pr->ntau);
+        etacal_error e2;
+        if (etacal_rearrange(pr->taus, q, pr->ntau, &e2) != ETACAL_OK) {
+            stop = fail(pr, line, e2.code, "%s", e2.msg);
+            goto out;
+        }
         /* after the rearrangement: raising to a floor keeps the order */
         for (size_t t = 0; t < pr->ntau; t++)
             if (q[t] < pr->floor) {
@@ -147,6 +152,7 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         pr->st.clamped += moved;
         pr->st.floored += low;
     }
+    const char *term = csv_put_record(pr->out, raw, rawlen);
     for (size_t t = 0; t < pr->ntau; t++) {
         putc(pr->delim, pr->out);
         if (!missing)

@@ -249,7 +249,7 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
         rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
         goto done;
     }
-    gsl_rng_set(rng, o->seed ? o->seed : 1);
+    gsl_rng_set(rng, (unsigned long)etacal_seed_stream(o->seed ? o->seed : 1, ETACAL_STREAM_QR_SPLIT));
     size_t nall = 0;
     for (size_t i = 0; i < n; i++) {
         fitpart[i] = gsl_rng_uniform(rng) < split;

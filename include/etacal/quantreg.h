@@ -11,7 +11,7 @@
 #define ETACAL_QUANTREG_H
 
 #include <stddef.h>
-#include <stdio.h>
+#include <stdio.h> /* FILE, for etacal_qr_predict_csv */
 
 #include "etacal/error.h"
 
@@ -85,10 +85,20 @@ double etacal_qr_bandwidth_hs(size_t n, double tau);
 double etacal_t_pvalue(double t, double df);
 
 /* Monotone rearrangement (Chernozhukov, Fernandez-Val & Galichon 2010) of
- * predicted quantiles q[0..m) at ascending levels: sorts them, so that the
- * rearranged curve is the quantile function of the predictions on that grid
- * of levels. */
-void etacal_rearrange(double *q, size_t m);
+ * predicted quantiles q[0..m) at the strictly ascending levels tau[0..m),
+ * m <= ETACAL_QR_MAX_LEVELS, in place.  The curve tau -> q is taken as
+ * piecewise linear between the levels; the rearranged curve is the
+ * quantile function of q(U), U uniform on [tau[0], tau[m-1]], computed
+ * exactly (G(y) = |{u : q(u) <= y}| is piecewise linear) and read off at
+ * the levels.  So q[0] becomes the smallest value, q[m-1] the largest, a
+ * non-decreasing q is left as it is bit for bit, and the result never
+ * decreases.  This is not the sort of the values unless m <= 2 or they
+ * are monotone: at levels 0.1, 0.2, 0.9 the values 30, 10, 20 become 10,
+ * 11.33, 30 (the curve spends 0.7 of the range between 10 and 20).
+ * Errors: a non-finite value (ETACAL_ENUM), levels not ascending or too
+ * many (ETACAL_EINVAL); q is then unchanged. */
+#define ETACAL_QR_MAX_LEVELS 32
+int etacal_rearrange(const double *tau, double *q, size_t m, etacal_error *err);
 
 /* Options of etacal_qr_predict_csv. */
 typedef struct etacal_qr_predict_opts {

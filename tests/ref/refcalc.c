@@ -12,6 +12,8 @@
  *           SE is none, powell or boot (200 reps, seed 1); PRE 1 forces
  *           preprocessing, 2 forbids it
  *   refcalc utf8 < hex lines              1 or 0 per line: the bytes are UTF-8 (utf8_valid)
+ *   refcalc rearrange < "m t1..tm q1..qm" lines   etacal_rearrange: the m
+ *           rearranged values on one line
  * Numbers are read one per line; results print with %.17g, one per line. */
 #include <stdio.h>
 #include <stdlib.h>
@@ -185,6 +187,26 @@ int main(int argc, char **argv)
             free(cols[j]);
         free(y);
         free(xs);
+        return 0;
+    }
+    if (argc == 2 && strcmp(argv[1], "rearrange") == 0) {
+        size_t m;
+        while (scanf("%zu", &m) == 1) {
+            double t[ETACAL_QR_MAX_LEVELS], q[ETACAL_QR_MAX_LEVELS];
+            if (m == 0 || m > ETACAL_QR_MAX_LEVELS)
+                return 2;
+            for (size_t i = 0; i < 2 * m; i++)
+                if (scanf("%lf", i < m ? &t[i] : &q[i - m]) != 1)
+                    return 2;
+            etacal_error err;
+            if (etacal_rearrange(t, q, m, &err) != ETACAL_OK) {
+                fprintf(stderr, "refcalc: %s\n", err.msg);
+                return 1;
+            }
+            for (size_t i = 0; i < m; i++)
+                printf(i ? " %.17g" : "%.17g", q[i]);
+            putchar('\n');
+        }
         return 0;
     }
     fprintf(stderr, "usage: refcalc type1 P... | rank N TAU | conformal TAU | wilson|exact CONF\n");

@@ -5,6 +5,10 @@
  * python3-statsmodels and r-cran-quantreg) and R's stackloss data
  * (tests/ref/stackloss.csv, from r-base).  Check values: quantreg 5.94 on
  * Debian bookworm, as listed in ../shared/METHODS.md section 7. */
+/* First, before any system header: the build then checks that the public
+ * header compiles on its own. */
+#include "etacal/quantreg.h"
+
 #include <setjmp.h>
 #include <stdarg.h>
 #include <stddef.h>
@@ -277,17 +281,88 @@ static void test_errors(void **state)
 static void test_rearrange_and_p(void **state)
 {
     (void)state;
-    double q[] = {1200.5, 980.25, 1500, 1100};
-    etacal_rearrange(q, 4);
-    assert_true(q[0] == 980.25 && q[1] == 1100 && q[2] == 1200.5 && q[3] == 1500);
-    /* Chernozhukov, Fernandez-Val & Galichon (2010): the rearranged curve is
-     * monotone, and a monotone curve is left as it is.  Crossing fits: the
-     * Engel lines at tau .1 and .9 evaluated far outside the data cross. */
+    etacal_error err;
+    /* Hand-worked rearrangements (Chernozhukov, Fernandez-Val & Galichon
+     * 2010: the quantile function of Q(U), U uniform on the levels' range),
+     * Q piecewise linear through the points.  (1) levels .1 .2 .9, values
+     * 30 10 20: |{Q <= y}| = .1 (y-10)/20 + .7 (y-10)/10 for y in [10, 20];
+     * it reaches .1 (the middle level's share) at y = 10 + 4/3. */
+    const double t1[] = {0.1, 0.2, 0.9};
+    double q1[] = {30, 10, 20};
+    assert_int_equal(etacal_rearrange(t1, q1, 3, &err), ETACAL_OK);
+    close_rel(q1[0], 10, 1e-15);
+    close_rel(q1[1], 10 + 4.0 / 3, 1e-14);
+    close_rel(q1[2], 30, 1e-15);
+    /* (2) equally spaced levels .25 .5 .75, values 0 10 5: |{Q <= y}| =
+     * .25 y/10 + .25 (y-5)/5 for y in [5, 10] reaches .25 at y = 20/3, where
+     * sorting would give 5: with a curve between the levels, sorting is the
+     * rearrangement only when the values are monotone or m = 2. */
+    const double t2[] = {0.25, 0.5, 0.75};
+    double q2[] = {0, 10, 5};
+    assert_int_equal(etacal_rearrange(t2, q2, 3, &err), ETACAL_OK);
+    close_rel(q2[0], 0, 0);
+    close_rel(q2[1], 20.0 / 3, 1e-14);
+    close_rel(q2[2], 10, 1e-15);
+    /* (3) a flat piece: levels .1 .3 .5 .9, values 5 5 1 3.  |{Q <= y}| =
+     * .2 (y-1)/4 + .4 (y-1)/2 on [1, 3] (reaching .2 at 1.8 and .4 at 2.6),
+     * .6 just below 5, and jumps by the flat piece's .2 at 5. */
+    const double t3[] = {0.1, 0.3, 0.5, 0.9};
+    double q3[] = {5, 5, 1, 3};
+    assert_int_equal(etacal_rearrange(t3, q3, 4, &err), ETACAL_OK);
+    close_rel(q3[0], 1, 1e-15);
+    close_rel(q3[1], 1.8, 1e-14);
+    close_rel(q3[2], 2.6, 1e-14);
+    close_rel(q3[3], 5, 1e-15);
+    /* a monotone curve is its own rearrangement, bit for bit */
+    const double t4[] = {0.05, 0.1, 0.5, 0.51, 0.975};
+    double q4[] = {812.25, 812.25, 1433.0625, 1501.3, 2207.9}, c4[5];
+    memcpy(c4, q4, sizeof q4);
+    assert_int_equal(etacal_rearrange(t4, q4, 5, &err), ETACAL_OK);
+    assert_memory_equal(q4, c4, sizeof q4);
+    /* random crossing curves at unequal levels: non-decreasing, from the
+     * smallest value to the largest */
+    uint64_t st = 0x2385;
+    for (int rep = 0; rep < 2000; rep++) {
+        size_t m = 2 + (size_t)(rep % 31);
+        double t[ETACAL_QR_MAX_LEVELS], v[ETACAL_QR_MAX_LEVELS];
+        double lo = INFINITY, hi = -INFINITY, acc = 0;
+        for (size_t i = 0; i < m; i++) {
+            st = st * 6364136223846793005ULL + 1442695040888963407ULL;
+            acc += 0.001 + (double)(st >> 40) / 16777216.0;
+            t[i] = acc;
+            st = st * 6364136223846793005ULL + 1442695040888963407ULL;
+            v[i] = rep % 5 == 0 ? (double)(st >> 61) : 1000 * ((double)(st >> 11) * 0x1.0p-53) + 10 * (double)i;
+            lo = fmin(lo, v[i]);
+            hi = fmax(hi, v[i]);
+        }
+        for (size_t i = 0; i < m; i++)
+            t[i] /= acc + 0.01; /* levels in (0, 1) */
+        assert_int_equal(etacal_rearrange(t, v, m, &err), ETACAL_OK);
+        assert_true(v[0] == lo && v[m - 1] == hi);
+        for (size_t i = 1; i < m; i++)
+            assert_true(v[i] >= v[i - 1]);
+    }
+    /* errors: q is left as it is */
+    double bad[] = {3, NAN, 1};
+    assert_int_equal(etacal_rearrange(t1, bad, 3, &err), ETACAL_ENUM);
+    assert_true(bad[0] == 3 && isnan(bad[1]) && bad[2] == 1);
+    const double tdown[] = {0.5, 0.4, 0.9};
+    double q5[] = {3, 2, 1};
+    assert_int_equal(etacal_rearrange(tdown, q5, 3, &err), ETACAL_EINVAL);
+    assert_true(q5[0] == 3 && q5[1] == 2 && q5[2] == 1);
+    double many[ETACAL_QR_MAX_LEVELS + 1] = {0}, tmany[ETACAL_QR_MAX_LEVELS + 1];
+    for (size_t i = 0; i <= ETACAL_QR_MAX_LEVELS; i++)
+        tmany[i] = (double)(i + 1) / 40;
+    assert_int_equal(etacal_rearrange(tmany, many, ETACAL_QR_MAX_LEVELS + 1, &err), ETACAL_EINVAL);
+    /* Two levels: the curve is one line, and its rearrangement the line
+     * reversed when it falls, i.e. the two values sorted.  Crossing fits:
+     * the Engel lines at tau .1 and .9 evaluated far outside the data cross. */
     etacal_qr_result lo = fit_engel(0.1, 2), hi = fit_engel(0.9, 2);
+    const double t19[] = {0.1, 0.9};
     for (double x = -20000; x <= 20000; x += 97.3) {
         double v[2] = {lo.coef[0] + lo.coef[1] * x, hi.coef[0] + hi.coef[1] * x};
         double before[2] = {v[0], v[1]};
-        etacal_rearrange(v, 2);
+        assert_int_equal(etacal_rearrange(t19, v, 2, &err), ETACAL_OK);
         assert_true(v[0] <= v[1]);
         if (before[0] <= before[1])
             assert_true(v[0] == before[0] && v[1] == before[1]);
