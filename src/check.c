@@ -75,7 +75,9 @@ static void add_row(acc *a, const etacal_measure_def *d, double y, double v, dou
     case ETACAL_MEASURE_INTERVAL: /* v upper, v2 lower */
         a->hits += (v2 <= y && y <= v);
         ksum_add(&a->width, v - v2);
-        if (!isnan(d->level))
+        if (!isnan(d->tail_lo))
+            ksum_add(&a->is, etacal_interval_score_tails(y, v2, v, d->tail_lo, d->tail_hi));
+        else if (!isnan(d->level))
             ksum_add(&a->is, etacal_interval_score(y, v2, v, d->level));
         break;
     default:
@@ -167,7 +169,7 @@ int etacal_check_run(const etacal_table *t, const etacal_check_opts *o, etacal_c
     size_t nm = 0;
     if (o->upper_col >= 0 && o->lower_col < 0) {
         r->measures[nm++] = (etacal_measure_def){ETACAL_MEASURE_UPPER, (size_t)o->upper_col, 0,
-                                                 o->upper_level, o->upper_level};
+                                                 o->upper_level, o->upper_level, NAN, NAN};
     } else if (o->upper_col >= 0) {
         double cover = NAN;
         int both = !isnan(o->upper_level) && !isnan(o->lower_level);
@@ -184,8 +186,16 @@ int etacal_check_run(const etacal_table *t, const etacal_check_opts *o, etacal_c
         } else if (!isnan(o->lower_level)) {
             cover = o->lower_level;
         }
+        /* Equal tails (a = 1 - b, to rounding) keep the central interval's
+         * score with alpha = 1 - cover, as before; unequal ones weigh each
+         * side by its own tail (metrics.h). */
+        double tlo = NAN, thi = NAN;
+        if (both && fabs(o->lower_level - (1 - o->upper_level)) > 1e-9) {
+            tlo = o->lower_level;
+            thi = o->upper_level;
+        }
         r->measures[nm++] = (etacal_measure_def){ETACAL_MEASURE_INTERVAL, (size_t)o->upper_col,
-                                                 (size_t)o->lower_col, cover, 1 - cover};
+                                                 (size_t)o->lower_col, cover, 1 - cover, tlo, thi};
         if (both) { /* the two bounds join the quantile forecast */
             qs[nqs++] = (qsort_ent){o->lower_level, (size_t)o->lower_col};
             qs[nqs++] = (qsort_ent){o->upper_level, (size_t)o->upper_col};
@@ -207,7 +217,8 @@ int etacal_check_run(const etacal_table *t, const etacal_check_opts *o, etacal_c
     qsort(qs, nqs, sizeof *qs, cmp_q);
     size_t qfirst = nm;
     for (size_t i = 0; i < nqs; i++)
-        r->measures[nm++] = (etacal_measure_def){ETACAL_MEASURE_QUANTILE, qs[i].col, 0, qs[i].tau, qs[i].tau};
+        r->measures[nm++] =
+            (etacal_measure_def){ETACAL_MEASURE_QUANTILE, qs[i].col, 0, qs[i].tau, qs[i].tau, NAN, NAN};
     r->nmeasures = nm;
     r->nq_sorted = nqs;
 

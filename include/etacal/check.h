@@ -52,6 +52,11 @@ typedef struct etacal_measure_def {
     size_t col, col2;  /* forecast column (interval: upper, lower) */
     double nominal;    /* nominal hit rate (coverage, on-time rate, tau); NaN if unknown */
     double level;      /* pinball level (upper/quantile) or interval alpha; NaN if none */
+    /* interval with unequal tails (both levels given, lower level a and
+     * upper level b with a != 1 - b): the interval score is
+     * etacal_interval_score_tails with these; else NaN and the central
+     * interval's score with alpha = level */
+    double tail_lo, tail_hi;
 } etacal_measure_def;
 
 typedef struct etacal_measure {

@@ -102,6 +102,29 @@ static void test_interval_score_examples(void **state)
     }
 }
 
+/* Unequal tails (METHODS.md sec. 9, worked by hand): l = 2, u = 8, lower
+ * level a = 0.1, upper level b = 0.95: y = 10 -> 6 + 2/0.05 = 46, y = 5
+ * -> the width 6, y = 1 -> 6 + 1/0.1 = 16.  It equals the sum of the two
+ * quantiles' pinball losses each divided by its tail, and with a = 1 - b
+ * the central interval's score. */
+static void test_interval_score_tails(void **state)
+{
+    (void)state;
+    assert_true(fabs(etacal_interval_score_tails(10, 2, 8, 0.1, 0.95) - 46) < 1e-12);
+    assert_true(fabs(etacal_interval_score_tails(5, 2, 8, 0.1, 0.95) - 6) < 1e-12);
+    assert_true(fabs(etacal_interval_score_tails(1, 2, 8, 0.1, 0.95) - 16) < 1e-12);
+    /* not the symmetric 2/alpha with alpha = 1 - (b - a) = 0.15: 6 + 2 (2/0.15) = 32.67 */
+    assert_true(fabs(etacal_interval_score(10, 2, 8, 0.15) - 46) > 10);
+    for (double y = -3.5; y < 12; y += 0.77) {
+        double a = 0.0725, b = 0.815;
+        double lhs = etacal_interval_score_tails(y, 2.385, 7.125, a, b);
+        double rhs = etacal_pinball(y, 2.385, a) / a + etacal_pinball(y, 7.125, b) / (1 - b);
+        assert_true(fabs(lhs - rhs) < 1e-9 * fabs(lhs));
+        double sym = etacal_interval_score_tails(y, 2.385, 7.125, 0.1, 0.9);
+        assert_true(fabs(sym - etacal_interval_score(y, 2.385, 7.125, 0.2)) < 1e-9 * fabs(sym));
+    }
+}
+
 /* Pinball loss: scikit-learn's documentation example of mean_pinball_loss
  * (y = 1, 2, 3), as recomputed in METHODS.md. */
 static void test_pinball_examples(void **state)
@@ -128,6 +151,7 @@ int main(void)
         cmocka_unit_test(test_newcombe_exact),
         cmocka_unit_test(test_edges_and_errors),
         cmocka_unit_test(test_interval_score_examples),
+        cmocka_unit_test(test_interval_score_tails),
         cmocka_unit_test(test_pinball_examples),
     };
     return cmocka_run_group_tests_name("binom", tests, NULL, NULL);

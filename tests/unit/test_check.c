@@ -142,6 +142,39 @@ static void test_interval_and_bounds(void **state)
     etacal_table_destroy(t);
 }
 
+/* Unequal tails: lower level 0.1, upper level 0.95.  Zone a's rows are
+ * inside (width 900 - 1000 + ... as above), zone b's are above the upper
+ * bound by 50 + 10 i, each weighed 1/(1 - 0.95) = 20 (not the 2/0.15 of a
+ * central interval at alpha = 0.15). */
+static void test_interval_unequal_tails(void **state)
+{
+    (void)state;
+    char *txt = table_text();
+    etacal_table *t = load(txt);
+    free(txt);
+    etacal_check_opts o = base();
+    o.lower_col = 2;
+    o.lower_level = 0.1;
+    o.upper_level = 0.95;
+    etacal_check_result *r = NULL;
+    etacal_error err;
+    assert_int_equal(etacal_check_run(t, &o, &r, &err), ETACAL_OK);
+    assert_true(fabs(r->measures[0].nominal - 0.85) < 1e-12);
+    assert_true(fabs(r->measures[0].tail_lo - 0.1) < 1e-15 && fabs(r->measures[0].tail_hi - 0.95) < 1e-15);
+    const etacal_measure *m = &r->segs[0].m[0];
+    double is = m->mean_width * 44;
+    for (int i = 0; i < 4; i++)
+        is += 20.0 * (50 + 10 * i);
+    assert_true(fabs(m->interval_score - is / 44) < 1e-9 * is / 44);
+    etacal_check_destroy(r);
+    /* a = 1 - b: the central interval's score, as before (20 = 2/0.1) */
+    o.lower_level = 0.05;
+    assert_int_equal(etacal_check_run(t, &o, &r, &err), ETACAL_OK);
+    assert_true(isnan(r->measures[0].tail_lo));
+    etacal_check_destroy(r);
+    etacal_table_destroy(t);
+}
+
 static void test_quantiles_and_crossing(void **state)
 {
     (void)state;
@@ -207,6 +240,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_upper_by_segment),
         cmocka_unit_test(test_interval_and_bounds),
+        cmocka_unit_test(test_interval_unequal_tails),
         cmocka_unit_test(test_quantiles_and_crossing),
         cmocka_unit_test(test_errors),
     };
