@@ -212,15 +212,16 @@ static void test_confidence_mc(void **state)
  * gate: p = P(H <= hits) under Beta-binomial(500, k, 501 - k), Holm at
  * family-wise level 0.05.  Returns the share of runs the gate fails, and
  * in *old the share the former rule fails (some segment's 95% Wilson
- * interval wholly below 0.9). */
-static double gate_mc(double shift, size_t reps, unsigned long seed, double *old)
+ * interval wholly below 0.9) and in *nolaw the share the gate without
+ * --table fails (Holm over binomial tests at the nominal 0.9). */
+static double gate_mc(double shift, size_t reps, unsigned long seed, double *old, double *nolaw)
 {
     enum { G = 40, NCAL = 500, NFRESH = 500 };
     const double tau = 0.9, sigma = 600, delta = 0.05;
     gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
     gsl_rng_set(r, seed);
-    double x[NCAL], p[G];
-    size_t fails = 0, oldfails = 0;
+    double x[NCAL], p[G], pb[G];
+    size_t fails = 0, oldfails = 0, nolawfails = 0;
     etacal_error err;
     for (size_t rep = 0; rep < reps; rep++) {
         int oldfail = 0;
@@ -232,19 +233,25 @@ static double gate_mc(double shift, size_t reps, unsigned long seed, double *old
             assert_int_equal(k, 451);
             unsigned hits = gsl_ran_binomial(r, gsl_cdf_gaussian_P(q, sigma), NFRESH);
             p[g] = etacal_betabinom_cdf(hits, NFRESH, (double)k, (double)(NCAL + 1 - k));
+            pb[g] = etacal_binom_cdf(hits, NFRESH, tau);
             double lo, hi;
             assert_int_equal(etacal_binom_wilson(hits, NFRESH, 0.95, &lo, &hi, &err), ETACAL_OK);
             oldfail |= hi < tau;
         }
         assert_int_equal(etacal_holm(p, G, p, &err), ETACAL_OK);
-        int fail = 0;
-        for (size_t g = 0; g < G; g++)
+        assert_int_equal(etacal_holm(pb, G, pb, &err), ETACAL_OK);
+        int fail = 0, nl = 0;
+        for (size_t g = 0; g < G; g++) {
             fail |= p[g] <= delta;
+            nl |= pb[g] <= delta;
+        }
         fails += (size_t)fail;
+        nolawfails += (size_t)nl;
         oldfails += (size_t)oldfail;
     }
     gsl_rng_free(r);
     *old = (double)oldfails / (double)reps;
+    *nolaw = (double)nolawfails / (double)reps;
     return (double)fails / (double)reps;
 }
 
@@ -254,20 +261,26 @@ static double gate_mc(double shift, size_t reps, unsigned long seed, double *old
  * Monte-Carlo standard errors of a rate of 0.05, 3 sqrt(0.05 0.95 / 2000)
  * = 0.0146.  The former Wilson rule fails about 96% of these honest runs
  * (issue 11: 1 - (1 - 0.076)^40); it is asserted above 90% to show that
- * the setup is the one of the issue.  A table shifted down 150 s must be
+ * the setup is the one of the issue; the gate without --table fails
+ * about half of them.  A table shifted down 150 s must be
  * caught in at least 90% of the runs. */
 static void test_gate_table_law(void **state)
 {
     (void)state;
     const size_t reps = 2000;
-    double old = 0;
-    double rate = gate_mc(0, reps, 1979, &old);
+    double old = 0, nolaw = 0;
+    double rate = gate_mc(0, reps, 1979, &old, &nolaw);
     double bound = 0.05 + 3 * sqrt(0.05 * 0.95 / (double)reps);
-    printf("   honest: gate fails %.4f of %zu runs (bound %.4f); the Wilson rule fails %.4f\n", rate, reps, bound,
-           old);
+    printf("   honest: gate fails %.4f of %zu runs (bound %.4f); the Wilson rule fails %.4f, Holm over\n"
+           "   binomial tests at the nominal level (no table) %.4f\n",
+           rate, reps, bound, old, nolaw);
     assert_true(rate <= bound);
     assert_true(old >= 0.90);
-    double power = gate_mc(150, reps, 2012, &old);
+    /* calibration noise not accounted for: about half the honest runs fail
+     * (0.476 in a separate run of 4000 with numpy/scipy); asserted above
+     * 0.3 to show why the table's law is needed */
+    assert_true(nolaw >= 0.30);
+    double power = gate_mc(150, reps, 2012, &old, &nolaw);
     printf("   shifted down 150 s: gate fails %.4f of %zu runs\n", power, reps);
     assert_true(power >= 0.90);
 }
