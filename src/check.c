@@ -297,7 +297,7 @@ static int table_segments(etacal_check_result *r, const segset *ss, const etacal
             memcpy(sg->keys[j], txt, len + 1);
         }
         /* The Beta law needs a rank fixed by n alone (Vovk 2012). */
-        size_t want = fit_rank(row->n, q->targets[ti], q->confidence);
+        size_t want = fit_rank(row->n, q->targets[ti], q->confidence > 0 ? q->confidence : o->table_confidence);
         if (row->k != want) {
             char lab[160];
             row_label(lab, sizeof lab, q, row->seg);
@@ -424,6 +424,9 @@ int etacal_check_run(const etacal_table *t, const etacal_check_opts *o, etacal_c
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "the gate level must be in (0,1), got %g", glevel);
     long ti = -1;
     if (o->table) {
+        if (!(o->table_confidence >= 0 && o->table_confidence < 1))
+            return etacal_error_set(err, ETACAL_EINVAL, NULL, "the table's confidence must be in (0,1), got %g",
+                                    o->table_confidence);
         if (o->upper_col < 0 || o->lower_col >= 0 || o->nq > 0 || o->nkeys > 0)
             return etacal_error_set(err, ETACAL_EINVAL, NULL,
                                     "a check under a table's law takes one promise column at one of its "

@@ -61,6 +61,11 @@ typedef struct etacal_check_opts {
     const etacal_quotes *table;
     const size_t *table_key_cols;
     const char *table_source; /* the table's file, for messages; may be NULL */
+    /* The confidence the table was fitted with (its 'confidence' column;
+     * etacal_quotes_read_csv does not keep it), 0 for none: its rows' k
+     * are then the rank with that confidence.  Used when table->confidence
+     * is 0. */
+    double table_confidence;
 } etacal_check_opts;
 
 /* What is measured, in the order of etacal_check_result.measures:
