@@ -178,7 +178,10 @@ static size_t fit_rank(size_t n, double tau, double conf)
 static void row_label(char *buf, size_t size, const etacal_quotes *q, size_t seg)
 {
     size_t w = 0;
-    buf[0] = '\0';
+    if (q->nkeys == 0) {
+        snprintf(buf, size, "(global)");
+        return;
+    }
     w += (size_t)snprintf(buf, size, "(");
     for (size_t j = 0; j < q->nkeys && w < size; j++)
         w += (size_t)snprintf(buf + w, size - w, "%s%.40s", j ? ", " : "", q->segs[seg].keys[j]);
