@@ -4,6 +4,7 @@
  * on the result.  Output as aligned text, CSV or JSON (jansson). */
 #include "cli.h"
 
+#include <errno.h>
 #include <getopt.h>
 #include <jansson.h>
 #include <math.h>
@@ -496,7 +497,8 @@ static int table_confidence(const char *path, double *conf, etacal_error *err)
     *conf = 0;
     FILE *fp = fopen(path, "r");
     if (!fp)
-        return etacal_error_set(err, ETACAL_EIO, path, "cannot open");
+        return etacal_error_set(err, errno == ENOMEM ? ETACAL_ENOMEM : ETACAL_EIO, path, "cannot open: %s",
+                                strerror(errno));
     char line[4096];
     int has = 0;
     if (fgets(line, sizeof line, fp)) {
