@@ -2,7 +2,10 @@
 /* check.c: coverage of promises, intervals and quantile forecasts, with
  * binomial confidence intervals (binom.c), pinball loss and the interval
  * score (metrics.c), overall and per segment (segment.c).  One pass over
- * the rows; sums are compensated (Kahan-Neumaier). */
+ * the rows; sums are compensated (Kahan-Neumaier).  The gate: one-sided
+ * tests of each figure, binomial at the nominal level or, with the quote
+ * table that made the promises, Beta-binomial under the law of each served
+ * row's bound (Vovk 2012), and Holm's (1979) correction across them. */
 #include "internal.h"
 
 #include <math.h>
