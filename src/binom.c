@@ -1,7 +1,8 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* binom.c: Wilson and Clopper-Pearson intervals for a proportion, the two
  * that Newcombe (1998, Statistics in Medicine 17:857-872) recommends and
- * compares (his methods 3 and 5). */
+ * compares (his methods 3 and 5); the lower tails of the binomial and
+ * Beta-binomial laws, for the gate of check. */
 #include "internal.h"
 
 #include <gsl/gsl_cdf.h>
@@ -139,4 +140,78 @@ int etacal_binom_range(double p, size_t n, double conf, size_t *lo, size_t *hi, 
     if (binom_ppf(p, n, a / 2, 1 - a / 2, lo, hi) != 0)
         return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
     return ETACAL_OK;
+}
+
+/* The lower tail of a log-concave law on 0..m given by the ratio
+ * r(j) = pmf(j+1)/pmf(j), which falls as j grows (binom.h).  kind 0:
+ * binomial, par[0] = p/(1-p); kind 1: Beta-binomial, par = {a, b}. */
+static double lc_ratio(int kind, const double *par, size_t m, size_t j)
+{
+    double mj = (double)(m - j), j1 = (double)j + 1;
+    if (kind == 0)
+        return mj / j1 * par[0];
+    /* (m - j)(j + a) / ((j + 1)(m - j - 1 + b)) */
+    return mj * ((double)j + par[0]) / (j1 * (mj - 1 + par[1]));
+}
+
+#define LC_TINY 1e-300
+
+static double lc_cdf(int kind, const double *par, size_t h, size_t m)
+{
+    if (h >= m)
+        return 1;
+    /* the mode: the smallest j with r(j) <= 1 (r(m) taken as 0) */
+    size_t lo = 0, hi = m;
+    while (lo < hi) {
+        size_t mid = lo + (hi - lo) / 2;
+        if (lc_ratio(kind, par, m, mid) <= 1)
+            hi = mid;
+        else
+            lo = mid + 1;
+    }
+    size_t mode = lo;
+    ksum tot = {0, 0}, low = {0, 0};
+    ksum_add(&tot, 1);
+    if (mode <= h)
+        ksum_add(&low, 1);
+    double w = 1;
+    for (size_t j = mode; j > 0; j--) { /* pmf(j - 1) = pmf(j) / r(j - 1) */
+        w /= lc_ratio(kind, par, m, j - 1);
+        if (w < LC_TINY)
+            break;
+        ksum_add(&tot, w);
+        if (j - 1 <= h)
+            ksum_add(&low, w);
+    }
+    w = 1;
+    for (size_t j = mode; j < m; j++) { /* pmf(j + 1) = pmf(j) r(j) */
+        w *= lc_ratio(kind, par, m, j);
+        if (w < LC_TINY)
+            break;
+        ksum_add(&tot, w);
+        if (j + 1 <= h)
+            ksum_add(&low, w);
+    }
+    double c = ksum_value(&low) / ksum_value(&tot);
+    return c > 1 ? 1 : c;
+}
+
+double etacal_binom_cdf(size_t h, size_t m, double p)
+{
+    if (!(p >= 0 && p <= 1))
+        return NAN;
+    if (h >= m || p == 0)
+        return 1;
+    if (p == 1)
+        return 0;
+    double par[1] = {p / (1 - p)};
+    return lc_cdf(0, par, h, m);
+}
+
+double etacal_betabinom_cdf(size_t h, size_t m, double a, double b)
+{
+    if (!(a >= 1 && b >= 1 && isfinite(a) && isfinite(b)))
+        return NAN;
+    double par[2] = {a, b};
+    return lc_cdf(1, par, h, m);
 }

@@ -17,3 +17,13 @@ double etacal_interval_score(double y, double l, double u, double alpha)
         s += 2 / alpha * (y - u);
     return s;
 }
+
+double etacal_interval_score_tails(double y, double l, double u, double a, double b)
+{
+    double s = u - l;
+    if (y < l)
+        s += (l - y) / a;
+    if (y > u)
+        s += (y - u) / (1 - b);
+    return s;
+}

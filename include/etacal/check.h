@@ -9,6 +9,7 @@
 
 #include "etacal/binom.h"
 #include "etacal/error.h"
+#include "etacal/quote.h"
 #include "etacal/table.h"
 
 #ifdef __cplusplus
@@ -46,6 +47,30 @@ typedef struct etacal_check_opts {
     double confidence; /* of the binomial interval; 0 means 0.95 */
     int ci;            /* ETACAL_CI_WILSON or ETACAL_CI_EXACT */
     size_t min_rows;   /* segments with fewer rows are flagged thin; 0 means 30 */
+    /* The gate: family-wise error level in (0,1) of its Holm (1979)
+     * procedure; 0 means 0.05. */
+    double gate_level;
+    /* The quote table whose promises upper_col holds (NULL: none).  With
+     * it, the orders are grouped by the table row that served them, found
+     * as etacal apply finds it (the order's own segment, else its keys
+     * replaced by "*" from the last one on until a row for the target
+     * exists), and each row's hits are tested against the law of its
+     * bound: Beta-binomial(m, k, n + 1 - k) for m orders, the row's
+     * calibration n and rank k (Vovk 2012; Angelopoulos & Bates 2023, sec.
+     * 3.2).  Needs upper_col with upper_level one of the table's targets,
+     * no lower bound, no quantiles and no key_cols; table_key_cols[j] is
+     * the column of t that holds the table's key j.  Rows whose k is
+     * unknown or is not the rank an unweighted fit gives for their n
+     * (ceil((n+1) tau), or the rank with the table's confidence) are an
+     * error: recency weights (or hand edits) leave no known law. */
+    const etacal_quotes *table;
+    const size_t *table_key_cols;
+    const char *table_source; /* the table's file, for messages; may be NULL */
+    /* The confidence the table was fitted with (its 'confidence' column;
+     * etacal_quotes_read_csv does not keep it), 0 for none: its rows' k
+     * are then the rank with that confidence.  Used when table->confidence
+     * is 0. */
+    double table_confidence;
 } etacal_check_opts;
 
 /* What is measured, in the order of etacal_check_result.measures:
@@ -57,6 +82,11 @@ typedef struct etacal_measure_def {
     size_t col, col2;  /* forecast column (interval: upper, lower) */
     double nominal;    /* nominal hit rate (coverage, on-time rate, tau); NaN if unknown */
     double level;      /* pinball level (upper/quantile) or interval alpha; NaN if none */
+    /* interval with unequal tails (both levels given, lower level a and
+     * upper level b with a != 1 - b): the interval score is
+     * etacal_interval_score_tails with these; else NaN and the central
+     * interval's score with alpha = level */
+    double tail_lo, tail_hi;
 } etacal_measure_def;
 
 typedef struct etacal_measure {
@@ -69,6 +99,14 @@ typedef struct etacal_measure {
     double mean_slack;     /* upper: mean upper - actual over on-time rows (s); NaN if none */
     double mean_lateness;  /* upper: mean actual - upper over late rows (s); NaN if none */
     size_t late;           /* upper: rows with actual > upper */
+    /* The gate's test of this figure (NaN and 0 when it is not tested: no
+     * nominal level, a thin segment, or the overall figure under a table):
+     * p = P(X <= hits) under the law of an honest figure, Binomial(n,
+     * nominal) without a table and Beta-binomial(n, k, n_cal + 1 - k)
+     * with one; p_holm the Holm-adjusted p-value over every tested
+     * figure; reject = p_holm <= the gate level. */
+    double p, p_holm;
+    int tested, reject;
 } etacal_measure;
 
 typedef struct etacal_check_segment {
@@ -77,6 +115,8 @@ typedef struct etacal_check_segment {
     int thin;             /* n < min_rows: shown, not gated */
     etacal_measure *m;    /* nmeasures entries */
     size_t crossing_rows; /* rows where a lower-tau quantile exceeds a higher one */
+    long table_row;       /* with a table: the row of table->rows serving these orders; else -1 */
+    size_t cal_n, cal_k;  /* with a table: that row's calibration n and rank k; else 0 */
 } etacal_check_segment;
 
 typedef struct etacal_check_result {
@@ -90,7 +130,16 @@ typedef struct etacal_check_result {
     double confidence;
     int ci;
     size_t min_rows;
-    int gate_failed; /* the overall figure, or a segment that is not thin, is under */
+    /* The gate: every figure with a nominal level in the overall segment
+     * and the segments that are not thin (with a table: the table rows
+     * that served at least min_rows orders) is tested one-sided, and Holm's
+     * step-down procedure at gate_level across the ntests of them decides;
+     * gate_failed when it rejects any. */
+    double gate_level;
+    size_t ntests, nrejected;
+    int table_law;   /* the tests use the table's Beta-binomial law */
+    double target;   /* with a table: the target checked */
+    int gate_failed;
 } etacal_check_result;
 
 /* Runs the check over the rows of t (read with ETACAL_NUM_SKIP_MISSING on
@@ -101,6 +150,13 @@ typedef struct etacal_check_result {
 int etacal_check_run(const etacal_table *t, const etacal_check_opts *opts, etacal_check_result **out,
                      etacal_error *err);
 void etacal_check_destroy(etacal_check_result *r);
+
+/* Holm's (1979) step-down adjusted p-values of n p-values: with p sorted
+ * ascending, adj_(i) = max over j <= i of min(1, (n - j + 1) p_(j)), so
+ * that rejecting every adj <= delta is Holm's procedure at family-wise
+ * error delta (under any dependence).  adj may be p.  Errors: a p-value
+ * outside [0,1] or NaN; out of memory. */
+int etacal_holm(const double *p, size_t n, double *adj, etacal_error *err);
 
 /* "ok", "under", "over" or "-". */
 const char *etacal_status_name(int status);

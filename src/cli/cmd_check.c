@@ -4,6 +4,7 @@
  * on the result.  Output as aligned text, CSV or JSON (jansson). */
 #include "cli.h"
 
+#include <errno.h>
 #include <getopt.h>
 #include <jansson.h>
 #include <math.h>
@@ -19,6 +20,7 @@ enum { EXIT_GATE = 3 };
 static const char help[] =
     "Usage: etacal check DATA.csv --actual COL [--upper COL[=LEVEL]] [--lower COL[=LEVEL]]\n"
     "                    [--quantile COL=TAU]... [OPTION]...\n"
+    "       etacal check DATA.csv --actual COL --upper COL=LEVEL --table QUOTES.csv [OPTION]...\n"
     "Check whether promises, intervals or quantile forecasts cover what they claim:\n"
     "coverage with a binomial confidence interval, pinball loss, interval score,\n"
     "slack and lateness, overall and per segment.\n"
@@ -37,8 +39,18 @@ static const char help[] =
     "  --min-rows N          segments with fewer rows are marked thin and not gated (default 30)\n"
     "  --format text|csv|json  output format (default text)\n"
     "  -o, --output FILE     write to FILE, which appears only when complete (default stdout)\n"
-    "  --gate                exit 3 when the overall figure, or a segment that is not thin,\n"
-    "                        is under its nominal level (its whole interval below it)\n"
+    "  --gate                exit 3 when the gate fails: each figure (overall, and each\n"
+    "                        segment that is not thin) is tested one-sided against its\n"
+    "                        nominal level (binomial), with Holm's correction across them;\n"
+    "                        this does not allow for the calibration noise of a fitted table\n"
+    "  --table QUOTES.csv    the quote table whose promises --upper COL=LEVEL holds (LEVEL one\n"
+    "                        of its targets): orders are grouped by the table row that served\n"
+    "                        them (as etacal apply looks it up) and each row's hits are tested\n"
+    "                        against the exact law of its bound, Beta-binomial(m, k, n+1-k)\n"
+    "                        with the row's n and k; not with --by, --lower or --quantile\n"
+    "  --gate-level D        family-wise error of the gate: an honest forecast (or table,\n"
+    "                        with --table) fails it with probability at most D\n"
+    "                        (default 1 - the --confidence, so 0.05)\n"
     "  --delim D             comma (default), semicolon, tab or pipe\n"
     "  --bad-rows error|skip malformed data rows are an error (default) or skipped and counted\n"
     "  --max-bad-share F     with --bad-rows skip: fail above this share (default 0.01)\n"
@@ -104,9 +116,109 @@ static void fmt(char *buf, size_t n, const char *f, double v)
         snprintf(buf, n, f, v);
 }
 
+/* The verdict of the gate on one figure. */
+static const char *verdict(const etacal_check_result *r, size_t g, const etacal_measure *m)
+{
+    if (m->tested)
+        return m->reject ? "under" : "ok";
+    if (!isnan(r->measures[0].nominal) && r->segs[g].thin && (g != 0 || !r->table_law))
+        return "thin";
+    return "-";
+}
+
+static void fmt_p(char *buf, size_t n, double p)
+{
+    if (isnan(p))
+        snprintf(buf, n, "-");
+    else
+        snprintf(buf, n, "%.3g", p);
+}
+
+/* The gate's tests: how, and one line per figure. */
+static int write_gate_text(FILE *fp, const etacal_check_result *r, const etacal_table *t, const char *table_path)
+{
+    char lv[32];
+    snprintf(lv, sizeof lv, "%g", r->gate_level);
+    if (r->table_law) {
+        char tg[ETACAL_NUM_BUFSZ];
+        etacal_num_format(r->target, tg);
+        fprintf(fp,
+                "\ngate test under the law of the table %s at target %s: the orders each table row\n"
+                "served, against Beta-binomial(orders, k, n+1-k), the law of the hits of a\n"
+                "split-conformal bound of rank k among n calibration rows (Vovk 2012);\n"
+                "one-sided, p = P(H <= hits), Holm (1979) across %zu rows at family-wise error %s\n",
+                table_path, tg, r->ntests, lv);
+    } else {
+        fprintf(fp,
+                "\ngate test: each figure's hits against Binomial(n, nominal), one-sided, p = P(X <= hits),\n"
+                "Holm (1979) across %zu figures at family-wise error %s.\n"
+                "Calibration noise is not accounted for: a fitted table's own coverage is random\n"
+                "(Beta(k, n+1-k) for rank k of n; Vovk 2012), so an honest table can fail this\n"
+                "gate; give --table QUOTES.csv to test against that law.\n",
+                r->ntests, lv);
+    }
+    size_t nk = r->nkeys ? r->nkeys : 1;
+    enum { NG = 10 };
+    size_t ng = r->table_law ? 9 : 8;
+    text_table tt;
+    if (tt_init(&tt, nk + ng) != 0)
+        return -1;
+    const char *cells[MAX_KEYS + NG];
+    size_t c = 0;
+    for (size_t j = 0; j < r->nkeys; j++)
+        cells[c++] = r->key_names[j];
+    if (!r->nkeys)
+        cells[c++] = "segment";
+    static const char *hlaw[NG] = {"n", "k", "expected", "orders", "hits", "coverage", "p", "p_holm", "verdict", ""};
+    static const char *hbin[NG] = {"measure", "n", "hits", "coverage", "nominal", "p", "p_holm", "verdict", "", ""};
+    for (size_t i = 0; i < ng; i++)
+        cells[c + i] = r->table_law ? hlaw[i] : hbin[i];
+    tt_add(&tt, cells);
+    for (size_t i = nk; i < nk + ng - 1; i++)
+        tt.right[i] = 1;
+    if (!r->table_law)
+        tt.right[nk] = 0;
+    for (size_t g = 0; g < r->nsegs; g++) {
+        const etacal_check_segment *sg = &r->segs[g];
+        if (r->table_law && g == 0)
+            continue; /* the overall figure mixes the rows' laws: not tested */
+        for (size_t k = 0; k < r->nmeasures; k++) {
+            const etacal_measure *m = &sg->m[k];
+            c = 0;
+            for (size_t j = 0; j < r->nkeys; j++)
+                cells[c++] = sg->keys[j];
+            if (!r->nkeys)
+                cells[c++] = "*";
+            char b[NG][96];
+            size_t i = 0;
+            if (r->table_law) {
+                snprintf(b[i++], sizeof b[0], "%zu", sg->cal_n);
+                snprintf(b[i++], sizeof b[0], "%zu", sg->cal_k);
+                snprintf(b[i++], sizeof b[0], "%.4f", (double)sg->cal_k / (double)(sg->cal_n + 1));
+            } else {
+                label(b[i++], sizeof b[0], r, k, t);
+            }
+            snprintf(b[i++], sizeof b[0], "%zu", m->n);
+            snprintf(b[i++], sizeof b[0], "%zu", m->hits);
+            fmt(b[i++], sizeof b[0], "%.4f", m->coverage);
+            if (!r->table_law)
+                fmt(b[i++], sizeof b[0], "%.4f", r->measures[k].nominal);
+            fmt_p(b[i++], sizeof b[0], m->p);
+            fmt_p(b[i++], sizeof b[0], m->p_holm);
+            snprintf(b[i++], sizeof b[0], "%s", verdict(r, g, m));
+            for (size_t x = 0; x < i; x++)
+                cells[c + x] = b[x];
+            tt_add(&tt, cells);
+        }
+    }
+    int bad = tt_print(&tt, fp) != 0;
+    tt_free(&tt);
+    return bad ? -1 : 0;
+}
+
 /* Returns 0, or -1 when out of memory. */
 static int write_text(FILE *fp, const char *path, const etacal_table *t, const etacal_check_result *r,
-                       int gate)
+                       int gate, const char *table_path)
 {
     const etacal_read_stats *st = etacal_table_stats(t);
     char cl[ETACAL_NUM_BUFSZ];
@@ -205,8 +317,11 @@ static int write_text(FILE *fp, const char *path, const etacal_table *t, const e
         fprintf(fp, "crossing: %zu of %zu rows have a lower-tau quantile above a higher one\n",
                 all->crossing_rows, all->n);
     }
+    if ((gate || r->table_law) && write_gate_text(fp, r, t, table_path) != 0)
+        return -1;
     if (gate)
-        fprintf(fp, "\ngate: %s\n", r->gate_failed ? "FAILED (a figure is under its nominal level)" : "passed");
+        fprintf(fp, "\ngate: %s (%zu of %zu %s under after Holm's correction)\n",
+                r->gate_failed ? "FAILED" : "passed", r->nrejected, r->ntests, r->table_law ? "table rows" : "figures");
     return 0;
 }
 
@@ -216,15 +331,21 @@ static void csv_num(FILE *fp, double v, const char *f)
         fprintf(fp, f, v);
 }
 
-static void write_csv(FILE *fp, const etacal_table *t, const etacal_check_result *r)
+static void write_csv(FILE *fp, const etacal_table *t, const etacal_check_result *r, int gate)
 {
+    int gcols = gate || r->table_law;
     for (size_t j = 0; j < r->nkeys; j++) {
         csv_field(fp, r->key_names[j]);
         putc(',', fp);
     }
     fputs("measure,column,column2,nominal,n,hits,coverage,ci_low,ci_high,status,thin,pinball,"
-          "interval_score,mean_width_s,mean_slack_s,mean_lateness_s,late,crossing_rows\n",
+          "interval_score,mean_width_s,mean_slack_s,mean_lateness_s,late,crossing_rows",
           fp);
+    if (gcols)
+        fputs(",p,p_holm,verdict", fp);
+    if (r->table_law)
+        fputs(",table_n,table_k", fp);
+    putc('\n', fp);
     for (size_t g = 0; g < r->nsegs; g++) {
         const etacal_check_segment *sg = &r->segs[g];
         for (size_t k = 0; k < r->nmeasures; k++) {
@@ -263,6 +384,18 @@ static void write_csv(FILE *fp, const etacal_table *t, const etacal_check_result
             putc(',', fp);
             if (r->nq_sorted >= 2)
                 fprintf(fp, "%zu", sg->crossing_rows);
+            if (gcols) {
+                putc(',', fp);
+                csv_num(fp, m->p, "%.10g");
+                putc(',', fp);
+                csv_num(fp, m->p_holm, "%.10g");
+                const char *v = verdict(r, g, m);
+                fprintf(fp, ",%s", strcmp(v, "-") ? v : "");
+            }
+            if (r->table_law && g > 0)
+                fprintf(fp, ",%zu,%zu", sg->cal_n, sg->cal_k);
+            else if (r->table_law)
+                fputs(",,", fp);
             putc('\n', fp);
         }
     }
@@ -271,7 +404,8 @@ static void write_csv(FILE *fp, const etacal_table *t, const etacal_check_result
 /* NaN and infinities become null (STYLE.md). */
 static json_t *jnum(double v) { return isfinite(v) ? json_real(v) : json_null(); }
 
-static json_t *build_json(const char *path, const etacal_table *t, const etacal_check_result *r, int gate)
+static json_t *build_json(const char *path, const etacal_table *t, const etacal_check_result *r, int gate,
+                          const char *table_path)
 {
     const etacal_read_stats *st = etacal_table_stats(t);
     json_t *root = json_object();
@@ -298,6 +432,10 @@ static json_t *build_json(const char *path, const etacal_table *t, const etacal_
         json_object_set_new(s, "overall", json_boolean(g == 0));
         json_object_set_new(s, "n", json_integer((json_int_t)sg->n));
         json_object_set_new(s, "thin", json_boolean(sg->thin));
+        if (r->table_law)
+            json_object_set_new(s, "table_row", g ? json_pack("{s:I,s:I}", "n", (json_int_t)sg->cal_n, "k",
+                                                              (json_int_t)sg->cal_k)
+                                                  : json_null());
         json_object_set_new(s, "crossing_rows",
                             r->nq_sorted >= 2 ? json_integer((json_int_t)sg->crossing_rows) : json_null());
         json_t *ms = json_array();
@@ -323,28 +461,88 @@ static json_t *build_json(const char *path, const etacal_table *t, const etacal_
             json_object_set_new(o, "mean_lateness_s", jnum(m->mean_lateness));
             json_object_set_new(o, "late",
                                 d->kind == ETACAL_MEASURE_UPPER ? json_integer((json_int_t)m->late) : json_null());
+            if (gate || r->table_law) {
+                const char *v = verdict(r, g, m);
+                json_object_set_new(o, "p", jnum(m->p));
+                json_object_set_new(o, "p_holm", jnum(m->p_holm));
+                json_object_set_new(o, "verdict", strcmp(v, "-") ? json_string(v) : json_null());
+            }
             json_array_append_new(ms, o);
         }
         json_object_set_new(s, "measures", ms);
         json_array_append_new(segs, s);
     }
     json_object_set_new(root, "segments", segs);
-    json_object_set_new(root, "gate", gate ? json_pack("{s:b}", "failed", r->gate_failed) : json_null());
+    json_t *gj = json_null();
+    if (gate || r->table_law) {
+        gj = json_pack("{s:b,s:s,s:o,s:I,s:I,s:b}", "failed", r->gate_failed, "law",
+                       r->table_law ? "beta-binomial" : "binomial", "level", json_real(r->gate_level), "tests",
+                       (json_int_t)r->ntests, "rejected", (json_int_t)r->nrejected, "calibration_noise_accounted",
+                       r->table_law);
+        if (r->table_law) {
+            json_object_set_new(gj, "table", json_string(table_path));
+            json_object_set_new(gj, "target", json_real(r->target));
+        }
+    }
+    json_object_set_new(root, "gate", gj);
     return root;
+}
+
+/* The 'confidence' column of a quote table written with --confidence (the
+ * table reader checks it but does not keep it): *conf = its value, 0 when
+ * the table has no such column.  The same value on every row, else an
+ * error; 0 on success. */
+static int table_confidence(const char *path, double *conf, etacal_error *err)
+{
+    *conf = 0;
+    FILE *fp = fopen(path, "r");
+    if (!fp)
+        return etacal_error_set(err, errno == ENOMEM ? ETACAL_ENOMEM : ETACAL_EIO, path, "cannot open: %s",
+                                strerror(errno));
+    char line[4096];
+    int has = 0;
+    if (fgets(line, sizeof line, fp)) {
+        line[strcspn(line, "\r\n")] = '\0';
+        for (char *f = strtok(line, ","); f; f = strtok(NULL, ","))
+            has |= strcmp(f, "confidence") == 0 || strcmp(f, "\"confidence\"") == 0;
+    }
+    fclose(fp);
+    if (!has)
+        return 0;
+    etacal_colspec cs = {"confidence", ETACAL_COL_NUM, ETACAL_NUM_FINITE, NULL};
+    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR};
+    etacal_table *t = NULL;
+    int rc = etacal_table_read_csv(path, &cs, 1, &ro, &t, err);
+    if (rc)
+        return rc;
+    const double *v = etacal_table_num(t, 0);
+    size_t n = etacal_table_rows(t);
+    for (size_t i = 0; i < n && rc == 0; i++) {
+        if (i == 0)
+            *conf = v[0];
+        else if (v[i] != *conf)
+            rc = etacal_error_set(err, ETACAL_EPARSE, path, "the rows have different confidences (%g, %g)", *conf,
+                                  v[i]);
+    }
+    etacal_table_destroy(t);
+    return rc;
 }
 
 int cmd_check(int argc, char **argv)
 {
-    enum { O_ACTUAL = 256, O_UPPER, O_LOWER, O_QUANT, O_BY, O_CONF, O_CI, O_MINROWS, O_FORMAT, O_GATE };
+    enum { O_ACTUAL = 256, O_UPPER, O_LOWER, O_QUANT, O_BY, O_CONF, O_CI, O_MINROWS, O_FORMAT, O_GATE, O_TABLE,
+           O_GLEVEL };
     static const struct option longopts[] = {
         {"actual", required_argument, 0, O_ACTUAL},   {"upper", required_argument, 0, O_UPPER},
         {"lower", required_argument, 0, O_LOWER},     {"quantile", required_argument, 0, O_QUANT},
         {"by", required_argument, 0, O_BY},           {"confidence", required_argument, 0, O_CONF},
         {"ci", required_argument, 0, O_CI},           {"min-rows", required_argument, 0, O_MINROWS},
         {"format", required_argument, 0, O_FORMAT},   {"gate", no_argument, 0, O_GATE},
+        {"table", required_argument, 0, O_TABLE},     {"gate-level", required_argument, 0, O_GLEVEL},
         {"output", required_argument, 0, 'o'},        READ_OPTIONS, {"help", no_argument, 0, 'h'},
         {0, 0, 0, 0}};
-    const char *actual = NULL, *output = NULL, *format = "text";
+    const char *actual = NULL, *output = NULL, *format = "text", *table_path = NULL;
+    double glevel = NAN;
     char *upper = NULL, *lower = NULL, *by = NULL;
     char *qargs[MAX_Q];
     size_t nq = 0, nkeys = 0;
@@ -396,6 +594,11 @@ int cmd_check(int argc, char **argv)
                 return EXIT_USAGE;
             break;
         case O_GATE: gate = 1; break;
+        case O_TABLE: table_path = optarg; break;
+        case O_GLEVEL:
+            if (parse_share(optarg, &glevel) != 0 || !(glevel > 0 && glevel < 1))
+                return usage_error("check", "--gate-level takes a family-wise error level in (0,1), such as 0.05");
+            break;
         case 'o': output = optarg; break;
         case 'h': fputs(help, stdout); return 0;
         default: {
@@ -415,6 +618,17 @@ int cmd_check(int argc, char **argv)
         return usage_error("check", "nothing to check: give --upper or --quantile");
     if (lower && !upper)
         return usage_error("check", "--lower needs --upper (a two-sided interval)");
+    if (table_path) {
+        if (!upper || !strrchr(upper, '='))
+            return usage_error("check", "--table needs --upper COL=LEVEL, LEVEL one of the table's targets");
+        if (lower || nq)
+            return usage_error("check", "--table checks one-sided promises: not with --lower or --quantile");
+        if (nkeys)
+            return usage_error("check", "--table groups the orders by the table row that served them: not with --by");
+    }
+    /* The gate's family-wise error follows the confidence of the intervals
+     * unless given. */
+    co.gate_level = isnan(glevel) ? 1 - co.confidence : glevel;
     const char *path = argv[optind];
 
     colset cs = {.n = 0};
@@ -442,6 +656,49 @@ int cmd_check(int argc, char **argv)
                 return usage_error("check", "two --quantile columns at the same level %g", qtaus[i]);
         qcols[i] = add_col(&cs, qargs[i], ETACAL_COL_NUM, fflags, "quantile");
     }
+    /* The table first: its key columns are read from the data. */
+    etacal_quotes *qt = NULL;
+    etacal_error err;
+    etacal_error_clear(&err);
+    size_t tkey_cols[MAX_KEYS];
+    if (table_path) {
+        if (etacal_quotes_read_csv(table_path, ',', &qt, &err) != 0)
+            return report_error(&err);
+        if (etacal_quotes_find_target(qt, co.upper_level) < 0) {
+            char list[256];
+            size_t w = 0;
+            list[0] = '\0';
+            for (size_t i = 0; i < qt->ntargets && w + ETACAL_NUM_BUFSZ + 2 < sizeof list; i++) {
+                char num[ETACAL_NUM_BUFSZ];
+                etacal_num_format(qt->targets[i], num);
+                w += (size_t)snprintf(list + w, sizeof list - w, "%s%s", i ? ", " : "", num);
+            }
+            etacal_quotes_destroy(qt);
+            return usage_error("check", "--upper level %g is not a target of the table %s (its targets: %s)",
+                               co.upper_level, table_path, list);
+        }
+        if (qt->nkeys > MAX_KEYS) {
+            etacal_quotes_destroy(qt);
+            return usage_error("check", "the table has more than %d key columns", MAX_KEYS);
+        }
+        for (size_t j = 0; j < qt->nkeys; j++) {
+            for (size_t i = 0; i < cs.n; i++)
+                if (strcmp(cs.spec[i].name, qt->key_names[j]) == 0) {
+                    etacal_quotes_destroy(qt);
+                    return usage_error("check", "the table's key column '%s' is also a numeric column here",
+                                       qt->key_names[j]);
+                }
+        }
+        for (size_t j = 0; j < qt->nkeys; j++)
+            tkey_cols[j] = add_col(&cs, qt->key_names[j], ETACAL_COL_KEY, 0, NULL);
+        if (table_confidence(table_path, &co.table_confidence, &err) != 0) {
+            etacal_quotes_destroy(qt);
+            return report_error(&err);
+        }
+        co.table = qt;
+        co.table_key_cols = tkey_cols;
+        co.table_source = table_path;
+    }
     size_t key_cols[MAX_KEYS];
     for (size_t j = 0; j < nkeys; j++) {
         for (size_t i = 0; i < cs.n; i++)
@@ -462,15 +719,15 @@ int cmd_check(int argc, char **argv)
     progress pg = {path, 0, -1};
     ro.progress = progress_cb;
     ro.progress_ud = &pg;
-    etacal_error err;
-    etacal_error_clear(&err);
     etacal_table *t = NULL;
     etacal_check_result *r = NULL;
     etacal_outfile of = {0};
     int rc = etacal_table_read_csv(path, cs.spec, cs.n, &ro, &t, &err);
     progress_end(&pg);
-    if (rc)
+    if (rc) {
+        etacal_quotes_destroy(qt);
         return report_error(&err);
+    }
     rc = etacal_check_run(t, &co, &r, &err);
     if (rc)
         goto fail;
@@ -478,13 +735,13 @@ int cmd_check(int argc, char **argv)
     if (rc)
         goto fail;
     if (strcmp(format, "json") == 0) {
-        json_t *j = build_json(path, t, r, gate);
+        json_t *j = build_json(path, t, r, gate, table_path);
         rc = json_out(j, of.fp, JSON_INDENT(2) | JSON_PRESERVE_ORDER | JSON_REAL_PRECISION(10),
                       output ? output : "stdout", &err);
         json_decref(j);
     } else if (strcmp(format, "csv") == 0) {
-        write_csv(of.fp, t, r);
-    } else if (write_text(of.fp, path, t, r, gate) != 0) {
+        write_csv(of.fp, t, r, gate);
+    } else if (write_text(of.fp, path, t, r, gate, table_path) != 0) {
         rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
     }
     if (rc == 0)
@@ -496,9 +753,11 @@ int cmd_check(int argc, char **argv)
     int failed = r->gate_failed;
     etacal_check_destroy(r);
     etacal_table_destroy(t);
+    etacal_quotes_destroy(qt);
     return gate && failed ? EXIT_GATE : 0;
 fail:
     etacal_check_destroy(r);
     etacal_table_destroy(t);
+    etacal_quotes_destroy(qt);
     return report_error(&err);
 }

@@ -14,6 +14,9 @@
  *   refcalc utf8 < hex lines              1 or 0 per line: the bytes are UTF-8 (utf8_valid)
  *   refcalc rearrange < "m t1..tm q1..qm" lines   etacal_rearrange: the m
  *           rearranged values on one line
+ *   refcalc betabinom < "h m a b" lines   P(H <= h), H ~ Beta-binomial(m, a, b), one per line
+ *   refcalc binomcdf < "h m p" lines      P(X <= h), X ~ Binomial(m, p), one per line
+ *   refcalc holm < lines of p-values      Holm-adjusted p-values, the same shape
  * Numbers are read one per line; results print with %.17g, one per line. */
 #include <stdio.h>
 #include <stdlib.h>
@@ -80,6 +83,44 @@ int main(int argc, char **argv)
         for (int i = 2; i < argc; i++)
             printf("%.17g\n", etacal_quantile_type1(x, n, arg(argv[i])));
         free(x);
+        return 0;
+    }
+    if (argc == 2 && strcmp(argv[1], "betabinom") == 0) {
+        size_t h, m;
+        double a, b;
+        while (scanf("%zu %zu %lf %lf", &h, &m, &a, &b) == 4)
+            printf("%.17g\n", etacal_betabinom_cdf(h, m, a, b));
+        return 0;
+    }
+    if (argc == 2 && strcmp(argv[1], "binomcdf") == 0) {
+        size_t h, m;
+        double p;
+        while (scanf("%zu %zu %lf", &h, &m, &p) == 3)
+            printf("%.17g\n", etacal_binom_cdf(h, m, p));
+        return 0;
+    }
+    if (argc == 2 && strcmp(argv[1], "holm") == 0) {
+        static char line[65536];
+        while (fgets(line, sizeof line, stdin)) {
+            double p[1024];
+            size_t n = 0;
+            char *s = line, *end;
+            while (n < 1024) {
+                double v = strtod(s, &end);
+                if (end == s)
+                    break;
+                p[n++] = v;
+                s = end;
+            }
+            etacal_error err;
+            if (etacal_holm(p, n, p, &err) != ETACAL_OK) {
+                fprintf(stderr, "refcalc: %s\n", err.msg);
+                return 1;
+            }
+            for (size_t i = 0; i < n; i++)
+                printf("%s%.17g", i ? " " : "", p[i]);
+            printf("\n");
+        }
         return 0;
     }
     if (argc == 4 && strcmp(argv[1], "rank") == 0) {

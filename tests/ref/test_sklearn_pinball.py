@@ -68,4 +68,17 @@ for r in rows(["--upper", "q90=0.9", "--lower", "q10=0.1"]):
     assert abs(float(r["mean_width_s"]) - np.mean(u - l)) <= 1e-6
     assert int(r["hits"]) == int(np.sum((l <= y) & (y <= u)))
     checked += 1
+# unequal tails: [q10, q90] declared as lower level 0.1, upper level 0.95
+# (nominal 0.85): the score (u - l) + (l - y)+/a + (y - u)+/(1 - b)
+# (METHODS.md sec. 9) is pinball(l, a)/a + pinball(u, b)/(1 - b), each
+# mean pinball loss from scikit-learn
+for r in rows(["--upper", "q90=0.95", "--lower", "q10=0.1"]):
+    if r["measure"] != "interval":
+        continue
+    m = np.ones(n, bool) if r["zone"] == "*" else zone == r["zone"]
+    y, l, u = actual[m], lo[m], hi[m]
+    a, b = 0.1, 0.95
+    want = mean_pinball_loss(y, l, alpha=a) / a + mean_pinball_loss(y, u, alpha=b) / (1 - b)
+    assert abs(float(r["interval_score"]) - want) <= 1e-9 * want, (r["interval_score"], want)
+    checked += 1
 print(f"{checked} segment measures agree with scikit-learn's mean_pinball_loss and numpy")

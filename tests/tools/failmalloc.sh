@@ -88,6 +88,8 @@ run apply_actual out.csv "$bin" apply q.csv fresh.csv --pred pred_s --actual act
 run check out.txt "$bin" check promised.csv --actual actual_s --upper promise_s=0.9 --by zone -o out.txt
 run check_json out.json "$bin" check promised.csv --actual actual_s --upper promise_s=0.9 --by zone --format json -o out.json
 run check_stdout - "$bin" check promised.csv --actual actual_s --upper promise_s=0.9 --format csv
+run check_table out.txt "$bin" check promised.csv --actual actual_s --upper promise_s=0.9 --table q.csv -o out.txt
+run check_table_json out.json "$bin" check promised.csv --actual actual_s --upper promise_s=0.9 --table q.csv --format json -o out.json
 run qr out.txt "$bin" qr engel.csv --y foodexp --x income --tau 0.25,0.5 -o out.txt
 run qr_json out.json "$bin" qr engel.csv --y foodexp --x income --tau 0.5 --format json -o out.json
 run curve out.txt "$bin" curve cal.csv --actual actual_s --pred pred_s --by zone --from 0.85 --to 0.9 --step 0.05 -o out.txt
