@@ -512,6 +512,44 @@ static void test_unterminated_and_malformed_quotes(void **state)
     }
 }
 
+/* Raw mode hands each record's bytes on to be copied, cut at the line
+ * terminator (LF or CRLF, RFC 4180 rule 1): a carriage return that is not
+ * right before an LF, outside quotes, cannot be cut there, and is refused
+ * with csv_stream.c's message wherever it is, the end of the file
+ * included.  Inside quotes it is field text (rule 6). */
+static void test_raw_bare_cr(void **state)
+{
+    fixture *f = *state;
+    const char *msg = "a bare carriage return ends a line; use LF or CRLF line endings";
+    const struct {
+        const char *text;
+        size_t line;
+    } bad[] = {
+        {"h1,h2\na,b\r3,4\n", 2},    /* in the middle of a line */
+        {"h1,h2\nx,z,1000\r", 2},      /* the last line, no LF after it */
+        {"h1,h2\r\na,b\r\r\n", 2},  /* CR CR LF */
+        {"h1,h2\n\n\rb,1\n", 3},     /* a line starting with a CR */
+        {"h1,h2\na,1\n\r", 3},        /* a lone CR at the end */
+        {"h1,h2\n\"q\nq\",1\rc,2\n", 2},
+    };
+    for (size_t k = 0; k < sizeof bad / sizeof *bad; k++) {
+        int rc = run_str(f, bad[k].text, 1);
+        if (rc != ETACAL_EPARSE)
+            fail_msg("case %zu: status %d, expected %d", k, rc, ETACAL_EPARSE);
+        assert_error(&f->err, ETACAL_EPARSE, where_line(f, bad[k].line), msg);
+    }
+    /* Accepted: CRLF, a CRLF blank line, CRs inside quotes, also before
+     * an LF inside quotes and as the last byte of a quoted field. */
+    const char ok[] = "h1,h2\r\n\r\n\"a\rb\",\"c\r\nd\"\n\"e\r\",f\r\n\"g\r\"";
+    assert_int_equal(run_bytes(f, ok, sizeof ok - 1, 1), ETACAL_OK);
+    assert_int_equal(f->log.n, 4);
+    expect_fields(&f->log.r[1], 3, 2, "a\rb", "c\r\nd");
+    expect_fields(&f->log.r[2], 5, 2, "e\r", "f");
+    expect_fields(&f->log.r[3], 6, 1, "g\r");
+    assert_int_equal(f->log.r[2].rawlen, 8);
+    assert_memory_equal(f->log.r[2].raw, "\"e\r\",f\r\n", 8);
+}
+
 static void test_nul_byte(void **state)
 {
     fixture *f = *state;
@@ -884,6 +922,7 @@ int main(void)
         T(test_raw_bytes_exact),
         T(test_across_chunks),
         T(test_unterminated_and_malformed_quotes),
+        T(test_raw_bare_cr),
         T(test_nul_byte),
         T(test_open_errors),
         T(test_row_callback_stops),
