@@ -26,7 +26,7 @@ typedef struct {
     size_t pending_nl; /* LFs inside quoted fields of the current record */
     const char *raw;   /* raw mode: the current record's bytes */
     size_t rawlen;
-    size_t rows_in_raw; /* records libcsv found in the current raw slice */
+    size_t cr_ends;     /* unquoted CRs libcsv found in the current raw slice */
     int count_nl;       /* fields of this chunk may hold a line feed */
     int check_nul;      /* this chunk holds a NUL byte */
     size_t nul_line;    /* a field with a NUL byte: its line, else 0 */
@@ -71,6 +71,7 @@ static void on_field(void *s, size_t len, void *ud)
 static void on_row(int term, void *ud)
 {
     ctx *c = ud;
+    c->cr_ends += term == '\r';
     if (c->col == 0) { /* a blank line, or the LF after a CR */
         if (term == '\n')
             c->line++;
@@ -79,7 +80,6 @@ static void on_row(int term, void *ud)
     size_t nf = c->col;
     c->col = 0;
     if (!c->stopped) {
-        c->rows_in_raw++;
         if (c->cb->row(c->cb->ud, nf, c->line, c->raw, c->rawlen))
             c->stopped = 1;
     }
@@ -100,25 +100,33 @@ static int quote_error(struct csv_parser *p, const char *path, size_t line, etac
                             "inner quotes doubled");
 }
 
-/* Feeds one whole record (raw mode) to libcsv. */
+static int bare_cr_error(const char *path, size_t line, etacal_error *err)
+{
+    char where[128];
+    format_where(where, sizeof where, path, line);
+    return etacal_error_set(err, ETACAL_EPARSE, where,
+                            "a bare carriage return ends a line; use LF or CRLF line endings");
+}
+
+/* Feeds one whole record (raw mode) to libcsv.  A raw slice ends at its
+ * first unquoted LF, so the only unquoted CR it may hold is the one right
+ * before that LF: any other would end a record inside the slice (or make a
+ * blank line of its own), and the raw bytes could not be cut at it. */
 static int feed_record(struct csv_parser *p, ctx *c, const char *rec, size_t len, const char *path,
                        etacal_error *err)
 {
     c->raw = rec;
     c->rawlen = len;
-    c->rows_in_raw = 0;
+    c->cr_ends = 0;
     size_t startline = c->line;
     size_t used = csv_parse(p, rec, len, on_field, on_row, c);
     if (c->stopped)
         return ETACAL_OK; /* the caller sees c->stopped and keeps that error */
     if (used != len)
         return quote_error(p, path, startline, err);
-    if (c->rows_in_raw > 1 && !c->stopped) {
-        char where[128];
-        format_where(where, sizeof where, path, startline);
-        return etacal_error_set(err, ETACAL_EPARSE, where,
-                                "a bare carriage return ends a line; use LF or CRLF line endings");
-    }
+    int crlf = len >= 2 && rec[len - 2] == '\r' && rec[len - 1] == '\n';
+    if (c->cr_ends > (size_t)crlf)
+        return bare_cr_error(path, startline, err);
     return ETACAL_OK;
 }
 
@@ -299,11 +307,16 @@ int csvstream_run_range(const char *path, char delim, int raw, const csvstream_c
         /* The last record has no line terminator; csv_fini ends it. */
         c.raw = rec;
         c.rawlen = reclen;
-        c.rows_in_raw = 0;
+        c.cr_ends = 0;
         size_t startline = c.line;
         size_t used = csv_parse(&p, rec, reclen, on_field, on_row, &c);
         if (!c.stopped && used != reclen) {
             rc = quote_error(&p, path, startline, err);
+            goto done;
+        }
+        /* no LF follows: any unquoted CR here is a bare one */
+        if (!c.stopped && c.cr_ends) {
+            rc = bare_cr_error(path, startline, err);
             goto done;
         }
     }
