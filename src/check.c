@@ -201,69 +201,22 @@ static int table_segments(etacal_check_result *r, const segset *ss, const etacal
 {
     const etacal_quotes *q = o->table;
     int rc = ETACAL_OK;
-    strdict dict;
-    strdict_init(&dict);
-    long *segrow = malloc((q->nsegs ? q->nsegs : 1) * sizeof *segrow);
+    etacal_quote_index *ix = NULL;
     long *rowseg = malloc((q->nrows ? q->nrows : 1) * sizeof *rowseg);
     uint32_t *segof = calloc(ss->nseg ? ss->nseg : 1, sizeof *segof);
-    char *joined = NULL;
-    size_t jcap = 0;
-    if (!segrow || !rowseg || !segof)
+    if (!rowseg || !segof)
         goto nomem;
-    for (size_t g = 0; g < q->nsegs; g++)
-        segrow[g] = -1;
-    for (size_t i = 0; i < q->nrows; i++) {
+    for (size_t i = 0; i < q->nrows; i++)
         rowseg[i] = -1;
-        if (q->rows[i].target == ti)
-            segrow[q->rows[i].seg] = (long)i;
+    if ((rc = etacal_quote_index_create(q, &ix, err)) != 0) {
+        if (rc == ETACAL_EINVAL)
+            snprintf(err->where, sizeof err->where, "%s", o->table_source);
+        goto done;
     }
-    /* the table's segments by their joined key texts */
-    for (size_t g = 0; g < q->nsegs; g++) {
-        size_t need = 1;
-        for (size_t j = 0; j < q->nkeys; j++)
-            need += strlen(q->segs[g].keys[j]) + 1;
-        if (grow_array((void **)&joined, &jcap, need, 1) != 0)
-            goto nomem;
-        size_t w = 0;
-        for (size_t j = 0; j < q->nkeys; j++) {
-            size_t len = strlen(q->segs[g].keys[j]);
-            memcpy(joined + w, q->segs[g].keys[j], len);
-            w += len;
-            joined[w++] = '\x1f';
-        }
-        uint32_t id;
-        if (strdict_intern(&dict, joined, w, &id) != 0)
-            goto nomem;
-        if (id != g) { /* the reader refuses duplicate segments; be safe */
-            rc = etacal_error_set(err, ETACAL_EINVAL, o->table_source, "the table has a segment twice");
-            goto done;
-        }
-    }
-    /* each combination of the data's keys: the most specific row */
+    /* each combination of the data's keys: the row that serves it */
     size_t first = q->nkeys ? 1 : 0;
     for (size_t c = first; c < ss->nseg; c++) {
-        long row = -1;
-        size_t need = 1;
-        for (size_t j = 0; j < q->nkeys; j++)
-            need += strlen(ss->keys[c][j]) + 2;
-        if (grow_array((void **)&joined, &jcap, need, 1) != 0)
-            goto nomem;
-        for (size_t level = q->nkeys + 1; level-- > 0 && row < 0;) {
-            size_t w = 0;
-            for (size_t j = 0; j < q->nkeys; j++) {
-                if (j < level) {
-                    size_t len = strlen(ss->keys[c][j]);
-                    memcpy(joined + w, ss->keys[c][j], len);
-                    w += len;
-                } else {
-                    joined[w++] = '*';
-                }
-                joined[w++] = '\x1f';
-            }
-            uint32_t g;
-            if (strdict_find(&dict, joined, w, &g))
-                row = segrow[g];
-        }
+        long row = etacal_quote_index_lookup(ix, (const char *const *)ss->keys[c], NULL, ti, NULL);
         if (row < 0) { /* the reader demands a global row for every target */
             rc = etacal_error_set(err, ETACAL_EINVAL, o->table_source, "the table has no global row for target %g",
                                   q->targets[ti]);
@@ -334,9 +287,7 @@ static int table_segments(etacal_check_result *r, const segset *ss, const etacal
 nomem:
     rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
 done:
-    strdict_free(&dict);
-    free(joined);
-    free(segrow);
+    etacal_quote_index_destroy(ix);
     free(rowseg);
     free(segof);
     return rc;

@@ -48,6 +48,7 @@ typedef struct qreader {
     size_t nrange;     /* min_/max_ columns in the header */
     double *ranges;    /* per row: ncoef minima, then ncoef maxima */
     size_t rangecap;
+    double confidence; /* the 'confidence' column's one value, or 0 */
 } qreader;
 
 static void on_field(void *ud, size_t col, const char *s, size_t len)
@@ -294,6 +295,14 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
                         i == 0 ? "'%s' must be in (0,1)" : "'%s' must be a share in [0,1]", fracname[i]);
             goto out;
         }
+        if (i == 0 && r->confidence > 0 && v != r->confidence) {
+            char msg[96];
+            snprintf(msg, sizeof msg, "the rows have different confidences (%.17g, %.17g)", r->confidence, v);
+            stop = fail(r, line, ETACAL_EPARSE, "%s", msg);
+            goto out;
+        }
+        if (i == 0)
+            r->confidence = v;
     }
     if (r->ncoef && q.method != ETACAL_METHOD_QR) {
         stop = fail(r, line, ETACAL_EPARSE, "coef_ columns belong to method qr, not '%s'",
@@ -423,6 +432,7 @@ int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, et
         goto done;
     }
     q->nkeys = r.nkeys;
+    q->confidence = r.confidence;
     q->key_names = r.key_names;
     r.key_names = NULL;
     q->method = r.method;

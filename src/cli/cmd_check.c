@@ -488,46 +488,6 @@ static json_t *build_json(const char *path, const etacal_table *t, const etacal_
     return root;
 }
 
-/* The 'confidence' column of a quote table written with --confidence (the
- * table reader checks it but does not keep it): *conf = its value, 0 when
- * the table has no such column.  The same value on every row, else an
- * error; 0 on success. */
-static int table_confidence(const char *path, double *conf, etacal_error *err)
-{
-    *conf = 0;
-    FILE *fp = fopen(path, "r");
-    if (!fp)
-        return etacal_error_set(err, errno == ENOMEM ? ETACAL_ENOMEM : ETACAL_EIO, path, "cannot open: %s",
-                                strerror(errno));
-    char line[4096];
-    int has = 0;
-    if (fgets(line, sizeof line, fp)) {
-        line[strcspn(line, "\r\n")] = '\0';
-        for (char *f = strtok(line, ","); f; f = strtok(NULL, ","))
-            has |= strcmp(f, "confidence") == 0 || strcmp(f, "\"confidence\"") == 0;
-    }
-    fclose(fp);
-    if (!has)
-        return 0;
-    etacal_colspec cs = {"confidence", ETACAL_COL_NUM, ETACAL_NUM_FINITE, NULL};
-    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR};
-    etacal_table *t = NULL;
-    int rc = etacal_table_read_csv(path, &cs, 1, &ro, &t, err);
-    if (rc)
-        return rc;
-    const double *v = etacal_table_num(t, 0);
-    size_t n = etacal_table_rows(t);
-    for (size_t i = 0; i < n && rc == 0; i++) {
-        if (i == 0)
-            *conf = v[0];
-        else if (v[i] != *conf)
-            rc = etacal_error_set(err, ETACAL_EPARSE, path, "the rows have different confidences (%g, %g)", *conf,
-                                  v[i]);
-    }
-    etacal_table_destroy(t);
-    return rc;
-}
-
 int cmd_check(int argc, char **argv)
 {
     enum { O_ACTUAL = 256, O_UPPER, O_LOWER, O_QUANT, O_BY, O_CONF, O_CI, O_MINROWS, O_FORMAT, O_GATE, O_TABLE,
@@ -691,10 +651,6 @@ int cmd_check(int argc, char **argv)
         }
         for (size_t j = 0; j < qt->nkeys; j++)
             tkey_cols[j] = add_col(&cs, qt->key_names[j], ETACAL_COL_KEY, 0, NULL);
-        if (table_confidence(table_path, &co.table_confidence, &err) != 0) {
-            etacal_quotes_destroy(qt);
-            return report_error(&err);
-        }
         co.table = qt;
         co.table_key_cols = tkey_cols;
         co.table_source = table_path;
