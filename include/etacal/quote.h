@@ -219,6 +219,41 @@ void etacal_recency_weights(const double *time, size_t n, const unsigned char *m
 double etacal_quote_promise(const etacal_quotes *q, const etacal_quote *row, double pred, const double *x,
                             int *clamped, int *floored);
 
+/* ---- read access ----------------------------------------------------------
+ * A program outside the library reads a table through these (the fields
+ * above are the library's own and will leave this header).  Indices out of
+ * range give 0, NaN or NULL.  Texts are borrowed from the table. */
+size_t etacal_quotes_nkeys(const etacal_quotes *q);
+const char *etacal_quotes_key_name(const etacal_quotes *q, size_t j);
+int etacal_quotes_method(const etacal_quotes *q);
+size_t etacal_quotes_ntargets(const etacal_quotes *q);
+double etacal_quotes_target(const etacal_quotes *q, size_t t);
+double etacal_quotes_confidence(const etacal_quotes *q); /* 0: the average-case rank */
+const etacal_accuracy *etacal_quotes_accuracy(const etacal_quotes *q); /* fitted tables */
+size_t etacal_quotes_ncoef(const etacal_quotes *q);
+const char *etacal_quotes_coef_name(const etacal_quotes *q, size_t j);
+/* Segments: 0 is the global one; keys are "*" where a level leaves them open. */
+size_t etacal_quotes_nsegs(const etacal_quotes *q);
+const char *etacal_quotes_seg_key(const etacal_quotes *q, size_t g, size_t j);
+const char *const *etacal_quotes_seg_keys(const etacal_quotes *q, size_t g);
+size_t etacal_quotes_seg_level(const etacal_quotes *q, size_t g);
+size_t etacal_quotes_seg_n(const etacal_quotes *q, size_t g);
+size_t etacal_quotes_seg_bare_hits(const etacal_quotes *q, size_t g);
+size_t etacal_quotes_seg_k(const etacal_quotes *q, size_t g, size_t t);
+double etacal_quotes_seg_score(const etacal_quotes *q, size_t g, size_t t);
+int etacal_quotes_seg_status(const etacal_quotes *q, size_t g, size_t t); /* ETACAL_OWN_ROW, ... */
+/* Rows: by segment, then target. */
+size_t etacal_quotes_nrows(const etacal_quotes *q);
+typedef struct etacal_quote_row {
+    size_t seg, target;  /* indices of its segment and target */
+    size_t n, k;         /* calibration rows behind it and the rank used */
+    double offset_s, slope;
+} etacal_quote_row;
+int etacal_quotes_row(const etacal_quotes *q, size_t r, etacal_quote_row *out);
+double etacal_quotes_row_coef(const etacal_quotes *q, size_t r, size_t j);
+/* 1 and the range of covariate j on row r's fitting rows, or 0 (no ranges). */
+int etacal_quotes_row_range(const etacal_quotes *q, size_t r, size_t j, double *lo, double *hi);
+
 /* Index of the target equal to tau, or -1. */
 long etacal_quotes_find_target(const etacal_quotes *q, double tau);
 
