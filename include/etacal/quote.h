@@ -36,8 +36,25 @@ int etacal_method_parse(const char *name);
 enum {
     ETACAL_OWN_ROW = 0,
     ETACAL_FALLBACK_FEW_ROWS = 1, /* n < min_rows */
-    ETACAL_FALLBACK_RANK = 2      /* k = ceil((n+1) tau) > n: no finite bound */
+    ETACAL_FALLBACK_RANK = 2,     /* k = ceil((n+1) tau) > n: no finite bound */
+    ETACAL_FALLBACK_EMPTY = 3     /* a coarser segment whose pooled cell is empty:
+                                     every segment below it has a row of its own */
 };
+
+/* What the rows behind a table row are (the 'cell' column). */
+enum {
+    ETACAL_CELL_UNKNOWN = 0, /* a table read without a 'cell' column */
+    ETACAL_CELL_OWN = 1,     /* the rows of its own segment (full key combination,
+                                or the only segment of a table without keys) */
+    ETACAL_CELL_REST = 2,    /* a pooled cell: the rows of the segments below it
+                                that have no row of their own (Mondrian conformal
+                                on that cell) */
+    ETACAL_CELL_ALL = 3      /* the global row when too few rows are left over for
+                                a pooled cell: all rows, no guarantee for the
+                                segments that fall back to it */
+};
+/* "own", "rest", "all"; NULL for unknown. */
+const char *etacal_cell_name(int cell);
 
 /* Point accuracy of the prediction column against the actuals. */
 typedef struct etacal_accuracy {
@@ -51,7 +68,18 @@ typedef struct etacal_accuracy {
  * j, or "*" where the segment's level leaves key j open: --by zone,band gives
  * the levels (zone, band), (zone, *) and (*, *), the global segment.  A
  * segment without a row of its own for a target uses the nearest level
- * above it that has one. */
+ * above it that has one.
+ *
+ * Pooled thin cells (fit): the row of a coarser segment, such as (zone, *),
+ * is calibrated on its pooled cell, the rows of the segments below it that
+ * have no row of their own for that target (the parent's rows minus those
+ * of qualified children), so that coverage holds given "a thin segment of
+ * this parent" (Mondrian conformal, Vovk et al. 2005).  A full key
+ * combination's pooled cell is its own rows.  A cell qualifies with
+ * pool_n >= min_rows and a finite bound; otherwise its rows go up into the
+ * parent's pooled cell.  The global segment takes the rows left over; when
+ * they are none or give no finite bound, its row is calibrated on all rows
+ * (ETACAL_CELL_ALL). */
 typedef struct etacal_segment {
     char **keys;
     size_t n;          /* calibration rows (fit), or the table's n (read) */
@@ -63,6 +91,9 @@ typedef struct etacal_segment {
     int *status;       /* ETACAL_OWN_ROW or a fallback reason */
     size_t level;      /* keys it fixes: nkeys for a full combination, 0 global */
     size_t parent;     /* the segment one level up (fit only; 0 = global) */
+    size_t *pool_n;    /* per target: rows of its pooled cell (fit); k, score_q
+                          and status describe that cell (for the global row
+                          with ETACAL_CELL_ALL: all rows) */
 } etacal_segment;
 
 /* One row of the quote table. */
@@ -73,6 +104,7 @@ typedef struct etacal_quote {
     size_t n, k;   /* calibration rows behind the bound, and the rank used */
     double offset_s, slope;
     double *coef;  /* ncoef coefficients of the extra covariates (method qr) */
+    int cell;      /* ETACAL_CELL_*: what the n rows are */
 } etacal_quote;
 
 /* A quote table.  Read-only for callers; built by etacal_quotes_fit or
