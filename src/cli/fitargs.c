@@ -31,22 +31,21 @@ static void segment_label(char *buf, size_t n, const etacal_quotes *q, size_t g)
         snprintf(buf + w, n - w, ")");
 }
 
-/* The rows of the cell behind segment g's row at target ti (its pooled
- * cell; for the global row without one, all rows). */
-static size_t pooled_n(const etacal_quotes *q, size_t g, size_t ti)
-{
-    for (size_t r = 0; r < q->nrows; r++)
-        if (q->rows[r].seg == g && q->rows[r].target == ti)
-            return q->rows[r].n;
-    return q->segs[g].pool_n[ti];
-}
-
+/* Whether the global row at target ti is calibrated on all rows, and the
+ * rows of the cell behind segment g's row at target ti (its pooled cell;
+ * for the global row without one, all rows; method qr: fitting and
+ * calibration parts together). */
 static int global_all(const etacal_quotes *q, size_t ti)
 {
     for (size_t r = 0; r < q->nrows; r++)
         if (q->rows[r].seg == 0 && q->rows[r].target == ti)
             return q->rows[r].cell == ETACAL_CELL_ALL;
     return 0;
+}
+
+static size_t pooled_n(const etacal_quotes *q, size_t g, size_t ti)
+{
+    return g == 0 && global_all(q, ti) ? q->segs[0].n : q->segs[g].pool_n[ti];
 }
 
 /* Which segments were pooled into which row, and with how many rows: per
@@ -73,7 +72,7 @@ static int print_pooled(FILE *fp, const etacal_quotes *q)
         char p[ETACAL_NUM_BUFSZ];
         etacal_percent_label(q->targets[ti], p);
         for (size_t g = 0; g < ns; g++) {
-            if (q->segs[g].level == q->nkeys || q->segs[g].status[ti] != ETACAL_OWN_ROW)
+            if (q->segs[g].level == q->nkeys || q->segs[g].status[ti] != ETACAL_OWN_ROW || (g == 0 && !members[0]))
                 continue;
             if (!header) {
                 fputs("pooled cells (calibrated on the rows of the segments below them without a row of their "
@@ -83,11 +82,7 @@ static int print_pooled(FILE *fp, const etacal_quotes *q)
             char who[64];
             segment_label(who, sizeof who, q, g);
             size_t m = members[g];
-            if (g == 0 && global_all(q, ti) && m == 0)
-                fprintf(fp, "  %s at %s%%: all %zu rows (every segment has a row of its own; this row serves values "
-                            "never seen, with no guarantee)\n",
-                        who, p, pooled_n(q, 0, ti));
-            else if (g == 0 && global_all(q, ti))
+            if (g == 0 && global_all(q, ti))
                 fprintf(fp, "  %s at %s%%: all %zu rows; %zu row%s left over from %zu segment%s, too few for a "
                             "pooled cell: no guarantee for %s\n",
                         who, p, pooled_n(q, 0, ti), q->segs[0].pool_n[ti], q->segs[0].pool_n[ti] == 1 ? "" : "s", m,
@@ -238,7 +233,9 @@ static int print_summary(FILE *fp, const char *path, const char *pred, const eta
             int all = global_all(q, 0);
             for (size_t ti = 1; ti < nt; ti++)
                 same_n &= global_all(q, ti) == all;
-            if (!same_n)
+            if (nk == 0)
+                snprintf(buf[c], sizeof buf[c], "global");
+            else if (!same_n)
                 snprintf(buf[c], sizeof buf[c], "global (rows by target below)");
             else if (all)
                 snprintf(buf[c], sizeof buf[c], "global: all %zu rows", rn);
