@@ -88,7 +88,8 @@ static int print_pooled(FILE *fp, const etacal_quotes *q)
                         who, p, pooled_n(q, 0, ti), q->segs[0].pool_n[ti], q->segs[0].pool_n[ti] == 1 ? "" : "s", m,
                         m == 1 ? "" : "s", m == 1 ? "it" : "them");
             else
-                fprintf(fp, "  %s at %s%%: %zu rows from %zu segment%s\n", who, p, pooled_n(q, g, ti), m,
+                fprintf(fp, "  %s at %s%%: %zu row%s from %zu segment%s\n", who, p, pooled_n(q, g, ti),
+                        pooled_n(q, g, ti) == 1 ? "" : "s", m,
                         m == 1 ? "" : "s");
         }
     }
@@ -240,7 +241,7 @@ static int print_summary(FILE *fp, const char *path, const char *pred, const eta
             else if (all)
                 snprintf(buf[c], sizeof buf[c], "global: all %zu rows", rn);
             else
-                snprintf(buf[c], sizeof buf[c], "global: pooled, %zu rows", rn);
+                snprintf(buf[c], sizeof buf[c], "global: pooled, %zu row%s", rn, rn == 1 ? "" : "s");
         } else if (!few && !rankmsg[0] && !empty && g->level == nk) {
             snprintf(buf[c], sizeof buf[c], "own");
         } else if (g->level < nk) {
@@ -257,11 +258,12 @@ static int print_summary(FILE *fp, const char *path, const char *pred, const eta
                 char who[40];
                 segment_label(who, sizeof who, q, up);
                 if (sti == ETACAL_OWN_ROW)
-                    snprintf(what, sizeof what, "pooled, %zu rows", pooled_n(q, s, ti));
+                    snprintf(what, sizeof what, "pooled, %zu row%s", pooled_n(q, s, ti), pooled_n(q, s, ti) == 1 ? "" : "s");
                 else if (sti == ETACAL_FALLBACK_EMPTY)
                     snprintf(what, sizeof what, "empty (unseen values: %s)", who);
                 else
-                    snprintf(what, sizeof what, "%zu rows, pooled in %s", g->pool_n[ti], who);
+                    snprintf(what, sizeof what, "%zu row%s, pooled in %s", g->pool_n[ti], g->pool_n[ti] == 1 ? "" : "s",
+                             who);
                 int alike = 1;
                 for (size_t t2 = 0; t2 < nt; t2++)
                     alike &= q->segs[s].status[t2] == sti && pooled_n(q, s, t2) == pooled_n(q, s, ti);

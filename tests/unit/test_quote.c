@@ -553,6 +553,102 @@ static void test_fit_random_against_brute_force(void **state)
     free(all);
 }
 
+/* Pooled thin cells by hand (--by zone,vehicle --min-rows 3).  Scores
+ * actual - pred:
+ *   (x, p) 10 20 30 40   (x, q) 100   (x, r) 200 300
+ *   (y, p) 7             (z, p) 1 2 3
+ * At .5: (x, p) own, k = ceil(5 x .5) = 3 -> 30; (x, q) and (x, r) are
+ * thin, their cell (x, *) = {100, 200, 300}, n = 3, k = 2 -> 200; (y, p)
+ * is thin and so is its cell {7}, which goes up: the global cell is {7},
+ * k = 1 -> 7; (z, p) own, k = 2 -> 2, so (z, *) is empty.
+ * At .9: (x, p) k = 5 > 4, (x, *) = all 7 of x, k = 8 > 7; (z, p) k = 4 > 3
+ * and (z, *) = its 3, k = 4 > 3: everything reaches the global cell, all
+ * 11 rows, k = ceil(12 x .9) = 11 -> 300. */
+static const char *pooled_csv = "zone,vehicle,pred_s,actual_s\n"
+                                "x,p,611.5,621.5\n"
+                                "z,p,905.25,906.25\n"
+                                "x,r,700,900\n"
+                                "y,p,1210.125,1217.125\n"
+                                "x,p,533,553\n"
+                                "x,q,812.75,912.75\n"
+                                "z,p,640,642\n"
+                                "x,p,777.5,807.5\n"
+                                "x,r,1020,1320\n"
+                                "z,p,1500.5,1503.5\n"
+                                "x,p,450.25,490.25\n";
+
+static void test_fit_pooled_by_hand(void **state)
+{
+    fixture *f = *state;
+    load(f, pooled_csv, 2);
+    const double targets[] = {0.9, 0.5};
+    assert_int_equal(fit(f, 2, ETACAL_METHOD_ADD, targets, 2, 3), ETACAL_OK);
+    char *buf = NULL;
+    size_t len = 0;
+    FILE *fp = open_memstream(&buf, &len);
+    assert_non_null(fp);
+    assert_int_equal(etacal_quotes_write_csv(f->q, fp, &f->err), ETACAL_OK);
+    fclose(fp);
+    assert_string_equal(buf, "zone,vehicle,target,method,n,k,offset_s,slope,cell\n"
+                             "*,*,0.5,add,1,1,7,1,rest\n"
+                             "*,*,0.9,add,11,11,300,1,rest\n"
+                             "x,*,0.5,add,3,2,200,1,rest\n"
+                             "x,p,0.5,add,4,3,30,1,own\n"
+                             "z,p,0.5,add,3,2,2,1,own\n");
+    free(buf);
+    /* segments: * | x,* x,p x,q x,r | y,* y,p | z,* z,p */
+    const etacal_quotes *q = f->q;
+    assert_int_equal(q->nsegs, 9);
+    static const size_t pool5[] = {1, 3, 4, 1, 2, 1, 1, 0, 3}, pool9[] = {11, 7, 4, 1, 2, 1, 1, 3, 3};
+    static const int st5[] = {ETACAL_OWN_ROW,           ETACAL_OWN_ROW,           ETACAL_OWN_ROW,
+                              ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_FEW_ROWS,
+                              ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_EMPTY,    ETACAL_OWN_ROW};
+    static const int st9[] = {ETACAL_OWN_ROW,           ETACAL_FALLBACK_RANK,     ETACAL_FALLBACK_RANK,
+                              ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_FEW_ROWS,
+                              ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_RANK,     ETACAL_FALLBACK_RANK};
+    for (size_t g = 0; g < 9; g++) {
+        assert_int_equal(q->segs[g].pool_n[0], pool5[g]);
+        assert_int_equal(q->segs[g].pool_n[1], pool9[g]);
+        assert_int_equal(q->segs[g].status[0], st5[g]);
+        assert_int_equal(q->segs[g].status[1], st9[g]);
+    }
+    assert_true(isnan(q->segs[7].score_q[0])); /* (z, *) at .5: no rows */
+
+    /* Method ratio follows the same cells: pred 1000 + the scores would give
+     * factors 1 + s/1000; here the factors of the rows' own scores, y/p. */
+    assert_int_equal(fit(f, 2, ETACAL_METHOD_RATIO, targets, 2, 3), ETACAL_OK);
+    assert_int_equal(f->q->nrows, 5);
+    for (size_t r = 0; r < f->q->nrows; r++) {
+        const etacal_quote *row = &f->q->rows[r];
+        assert_int_equal(row->n, f->q->segs[row->seg].pool_n[row->target]);
+    }
+    /* the global row at .9: the largest factor of all 11 rows,
+     * 1320/1020 = 1.294118 (rounded up to 1e-6) */
+    assert_same_double(f->q->rows[1].slope, 1.294118);
+    /* (x, *) at .5: factors 912.75/812.75, 900/700, 1320/1020, the second
+     * smallest: 900/700 = 1.2857143 -> 1.285715 */
+    assert_same_double(f->q->rows[2].slope, 1.285715);
+    /* the global row at .5: (y, p) alone, 1217.125/1210.125 -> 1.005785 */
+    assert_same_double(f->q->rows[0].slope, 1.005785);
+
+    /* Recency weights all 1 give the unweighted cells (the mass tau (1 + n)
+     * is the rank ceil((n+1) tau)). */
+    double w[11];
+    for (size_t i = 0; i < 11; i++)
+        w[i] = 1;
+    static const size_t keys[] = {2, 3};
+    etacal_fit_opts o = {ETACAL_METHOD_ADD, targets, 2, 3, NULL, 0, 0, 0, 0, NULL, w};
+    etacal_quotes *qw = NULL;
+    assert_int_equal(etacal_quotes_fit(f->t, 0, 1, keys, 2, &o, &qw, &f->err), ETACAL_OK);
+    assert_int_equal(qw->nrows, 5);
+    static const double offs[] = {7, 300, 200, 30, 2};
+    for (size_t r = 0; r < 5; r++) {
+        assert_same_double(qw->rows[r].offset_s, offs[r]);
+        assert_int_equal(qw->rows[r].cell, r < 3 ? ETACAL_CELL_REST : ETACAL_CELL_OWN);
+    }
+    etacal_quotes_destroy(qw);
+}
+
 static void test_write_and_read_back(void **state)
 {
     fixture *f = *state;
@@ -739,6 +835,28 @@ static void test_read_keeps_file_order(void **state)
 static void test_read_errors(void **state)
 {
     fixture *f = *state;
+    /* the cell column: one of own, rest, all; own on a full key combination,
+     * all on the global row */
+#define CHDR "zone,band,target,method,n,k,offset_s,slope,cell\n"
+    expect_read_error(f, CHDR "*,*,0.9,add,5000,4501,312.125,1,pooled\n", ETACAL_EPARSE, 2,
+                      "'cell' must be own, rest or all, got 'pooled'");
+    expect_read_error(f, CHDR "*,*,0.9,add,5000,4501,312.125,1,all\nnorth,*,0.9,add,900,811,250.25,1,own\n",
+                      ETACAL_EPARSE, 3, "cell 'own' needs a value in every key (a row with '*' keys is 'rest')");
+    expect_read_error(f, CHDR "*,*,0.9,add,5000,4501,312.125,1,all\nnorth,*,0.9,add,900,811,250.25,1,all\n",
+                      ETACAL_EPARSE, 3, "cell 'all' belongs to the global row (every key '*')");
+    assert_int_equal(read_q(f,
+                            CHDR "*,*,0.9,add,150,136,312.125,1,rest\nnorth,*,0.9,add,900,811,250.25,1,rest\n"
+                                 "north,lunch,0.9,add,700,631,201.5,1,own\n",
+                            0),
+                     ETACAL_OK);
+    assert_int_equal(f->q2->rows[0].cell, ETACAL_CELL_REST);
+    assert_int_equal(f->q2->rows[1].cell, ETACAL_CELL_REST);
+    assert_int_equal(f->q2->rows[2].cell, ETACAL_CELL_OWN);
+    /* a key column may be called cell: the column comes before 'target' */
+    assert_int_equal(read_q(f, "cell,target,method,n,k,offset_s,slope\n*,0.9,add,50,46,3.5,1\n", 0), ETACAL_OK);
+    assert_int_equal(f->q2->nkeys, 1);
+    assert_int_equal(f->q2->rows[0].cell, ETACAL_CELL_UNKNOWN);
+#undef CHDR
     expect_read_error(f, "zone,target,method,n,k,offset_s\n*,0.9,add,50,46,3.5\n", ETACAL_EPARSE, 1,
                       "not a quote table: no column 'slope' in the header");
     expect_read_error(f, "zone,target,n,k,offset_s,slope\n*,0.9,50,46,3.5,1\n", ETACAL_EPARSE, 1,
@@ -860,6 +978,7 @@ int main(void)
         T(test_fit_ratio_needs_positive_predictions),
         T(test_fit_errors),
         T(test_fit_random_against_brute_force),
+        T(test_fit_pooled_by_hand),
         T(test_write_and_read_back),
         T(test_write_quotes_key_fields),
         T(test_read_hand_written_table),
