@@ -201,14 +201,18 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
  * target,method,n,k,offset_s,slope and, for method qr, one coef_<name>
  * column per extra covariate; with a confidence, also confidence,
  * coverage_mean and coverage_low (the mean of the coverage law of the bound
- * and the coverage reached with that confidence); one row per segment with a row of its own and
+ * and the coverage reached with that confidence); with key columns, a last
+ * column cell (own, rest, all: etacal_cell_name) when every row's cell is
+ * known; one row per segment with a row of its own and
  * target, global rows first.  Numbers in shortest round-trip form. */
 int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err);
 
 /* Reads a table written by etacal_quotes_write_csv (or by hand, or by SQL):
  * the columns before 'target' are the key columns; 'target', 'method', 'n',
  * 'offset_s' and 'slope' are required, 'coef_<name>' columns are the
- * coefficients of covariates, others are ignored.  Checks: numbers
+ * coefficients of covariates, an optional 'cell' column (own on full key
+ * combinations, rest, all on the global row; ETACAL_CELL_UNKNOWN without
+ * it), others are ignored.  Checks: numbers
  * finite, targets in (0,1), one method, no duplicate (segment, target), a
  * global row for every target.  Errors carry FILE:LINE. */
 int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, etacal_error *err);
