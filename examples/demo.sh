@@ -54,10 +54,10 @@ echo "\$ etacal publish $demo/cal.csv --table $pub/quotes.csv $opts -q"
 "$etacal" publish "$demo/cal.csv" --table "$pub/quotes.csv" $opts -q
 echo "first table published: $pub/quotes.csv, provenance in $pub/quotes.csv.meta.json"
 echo "A night with only one week of data, as a dry run (a guard should refuse it):"
-echo "\$ etacal publish $demo/fresh.csv --table $pub/quotes.csv $opts --max-change 5m --show 5 --dry-run"
+echo "\$ etacal publish $demo/fresh.csv --table $pub/quotes.csv $opts --max-change 3m --show 5 --dry-run"
 status=0
 # shellcheck disable=SC2086
-"$etacal" publish "$demo/fresh.csv" --table "$pub/quotes.csv" $opts --max-change 5m --show 5 --dry-run || status=$?
+"$etacal" publish "$demo/fresh.csv" --table "$pub/quotes.csv" $opts --max-change 3m --show 5 --dry-run || status=$?
 echo "exit status $status (3: refused by a guard; the published table is unchanged)"
 [ "$status" = 3 ] || { echo "demo: expected the change guard to refuse"; exit 1; }
 

@@ -26,6 +26,16 @@ const char *etacal_method_name(int method)
     }
 }
 
+const char *etacal_cell_name(int cell)
+{
+    switch (cell) {
+    case ETACAL_CELL_OWN: return "own";
+    case ETACAL_CELL_REST: return "rest";
+    case ETACAL_CELL_ALL: return "all";
+    default: return NULL;
+    }
+}
+
 int etacal_method_parse(const char *name)
 {
     if (strcmp(name, "add") == 0)
@@ -46,6 +56,7 @@ static void segment_free(etacal_segment *s, size_t nkeys)
     free(s->k);
     free(s->score_q);
     free(s->status);
+    free(s->pool_n);
 }
 
 void etacal_quotes_destroy(etacal_quotes *q)
@@ -126,7 +137,8 @@ int segment_alloc(etacal_segment *s, size_t nkeys, size_t ntargets)
     s->k = calloc(ntargets, sizeof *s->k);
     s->score_q = calloc(ntargets, sizeof *s->score_q);
     s->status = calloc(ntargets, sizeof *s->status);
-    return (s->keys && s->k && s->score_q && s->status) ? 0 : -1;
+    s->pool_n = calloc(ntargets, sizeof *s->pool_n);
+    return (s->keys && s->k && s->score_q && s->status && s->pool_n) ? 0 : -1;
 }
 
 static size_t bucket(double x, double lo, double scale, size_t B)
@@ -234,17 +246,20 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
     /* the rows of each segment: one counting sort per level */
     uint32_t *idx = malloc((nk ? nk : 1) * n * sizeof *idx), *gidx = malloc(n * sizeof *gidx);
     size_t *start = calloc(nseg + 1, sizeof *start), *fill = calloc(nseg, sizeof *fill);
-    size_t *count = calloc(nseg, sizeof *count), *nbseg = calloc(nseg, sizeof *nbseg);
+    size_t *count = calloc(nseg, sizeof *count), *nbrow = calloc(nseg * q->ntargets, sizeof *nbrow);
+    size_t *order = malloc(nseg * sizeof *order);
+    char *qual = calloc(nseg * q->ntargets, 1), *cellrow = calloc(nseg * q->ntargets, 1);
+    unsigned char *sel = malloc(n ? n : 1);
     size_t lvl_off[ETACAL_MAX_KEYS + 1] = {0};
     unsigned char *fitpart = malloc(n);
     double *buf = malloc(n * (p + 1) * sizeof *buf);
     double *wbuf = o->weights ? malloc(n * sizeof *wbuf) : NULL;
     double *coef = malloc(nseg * q->ntargets * p * sizeof *coef);
-    /* per segment, each covariate's range on the fitting part: [g*2*nx + j]
-     * the minimum, [g*2*nx + nx + j] the maximum */
-    double *segrange = malloc((nseg * 2 * nx + 1) * sizeof *segrange);
+    /* per cell (segment, target): each covariate's range on its fitting part */
+    double *cellrange = malloc((nseg * q->ntargets * 2 * nx + 1) * sizeof *cellrange);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    if (!idx || !gidx || !start || !fill || !count || !nbseg || !fitpart || !buf || !coef || !segrange || !rng ||
+    if (!idx || !gidx || !start || !fill || !count || !nbrow || !order || !qual || !cellrow || !sel || !fitpart ||
+        !buf || !coef || !cellrange || !rng ||
         (o->weights && !wbuf)) {
         rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
         goto done;
@@ -272,128 +287,163 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
             idx[(L - 1) * n + start[g] + fill[g]++] = (uint32_t)i;
         }
     }
-    for (size_t g = 0; g < nseg; g++) {
+    /* Pooled thin cells as for methods add and ratio (see etacal_quotes_fit),
+     * bottom up: the cell of segment g at target ti holds the rows of g whose
+     * segments below g all failed to qualify at ti; the regression and its
+     * correction are fitted on that cell.  The global cell takes the rows
+     * left over, and all rows when those give no fit or no finite bound. */
+    for (size_t L = nk + 1, w = 0; L-- > 0;)
+        for (size_t g = 0; g < nseg; g++)
+            if (hs->level[g] == L)
+                order[w++] = g;
+    for (size_t oi = 0; oi < nseg; oi++) {
+        size_t g = order[oi];
         etacal_segment *sg = &q->segs[g];
         int global = g == 0;
+        size_t L = hs->level[g];
         /* rows of the segment: all rows for the global one */
-        const uint32_t *rows = global ? gidx : idx + (hs->level[g] - 1) * n + start[g];
-        size_t lo = 0, hi = global ? nall : count[g];
-        size_t na = 0, nb = 0;
-        for (size_t r = lo; r < hi; r++)
-            na += fitpart[rows[r]];
-        nb = (hi - lo) - na;
-        nbseg[g] = nb;
-        if (!global && (sg->n < min_rows || na <= p)) {
-            for (size_t ti = 0; ti < q->ntargets; ti++) {
-                sg->status[ti] = ETACAL_FALLBACK_FEW_ROWS;
-                sg->score_q[ti] = NAN;
-                sg->k[ti] = 0;
-            }
-            continue;
-        }
-        /* columns of the fitting part, then of the calibration part (with
-         * recency weights, a weight column after each part) */
-        double *fy = buf, *fx = buf + na, *cy = buf + na * (p + 1), *cx = cy + nb;
-        double *fw = wbuf, *cw = wbuf ? wbuf + na : NULL;
-        size_t wa = 0, wb = 0;
-        for (size_t r = lo; r < hi; r++) {
-            size_t i = rows[r];
-            if (fitpart[i]) {
-                fy[wa] = y[i];
-                fx[wa] = pr[i];
-                for (size_t j = 0; j < nx; j++)
-                    fx[(j + 1) * na + wa] = xc[j][i];
-                if (fw)
-                    fw[wa] = o->weights[i];
-                wa++;
-            } else {
-                cy[wb] = y[i];
-                cx[wb] = pr[i];
-                for (size_t j = 0; j < nx; j++)
-                    cx[(j + 1) * nb + wb] = xc[j][i];
-                if (cw)
-                    cw[wb] = o->weights[i];
-                wb++;
-            }
-        }
-        const double *fcols[ETACAL_QR_MAX_COVARIATES];
-        for (size_t j = 0; j <= nx; j++)
-            fcols[j] = fx + j * na;
-        /* The covariates' range on the fitting part: the regression says
-         * nothing beyond it, so the promise clamps covariates into it
-         * (promise.c), and so do the calibration scores below, which makes
-         * the conformal bound that of the clamped formula. */
-        double *xlo = segrange + g * 2 * nx, *xhi = xlo + nx;
-        for (size_t j = 0; j < nx; j++) {
-            const double *col = fx + (j + 1) * na;
-            xlo[j] = xhi[j] = na ? col[0] : 0;
-            for (size_t r = 1; r < na; r++) {
-                if (col[r] < xlo[j])
-                    xlo[j] = col[r];
-                if (col[r] > xhi[j])
-                    xhi[j] = col[r];
-            }
-        }
+        const uint32_t *rows = global ? gidx : idx + (L - 1) * n + start[g];
+        size_t nrows_g = global ? nall : count[g];
         for (size_t ti = 0; ti < q->ntargets; ti++) {
             double tau = q->targets[ti];
-            double *b = coef + (g * q->ntargets + ti) * p;
-            etacal_qr_result res;
-            etacal_error e2;
-            etacal_qr_opts qo = {0};
-            qo.seed = o->seed;
-            int frc = na > p ? etacal_qr_fit(fy, fcols, nx + 1, fw, na, tau, names, &qo, &res, &e2)
-                             : ETACAL_EINVAL;
-            if (frc == ETACAL_ENOMEM) { /* not a reason to fall back: an error */
-                rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-                goto done;
-            }
-            if (frc != ETACAL_OK && !global) {
-                sg->status[ti] = ETACAL_FALLBACK_FEW_ROWS;
-                sg->score_q[ti] = NAN;
-                continue;
-            }
-            if (frc != ETACAL_OK) {
-                if (na <= p)
-                    etacal_error_set(&e2, ETACAL_ENUM, NULL, "%zu rows to fit the regression", na);
-                rc = etacal_error_set(err, e2.code, etacal_table_source(t), "method qr, all rows: %s", e2.msg);
-                goto done;
-            }
-            memcpy(b, res.coef, p * sizeof *b);
-            /* the conformal correction from the calibration part */
-            size_t k;
-            double *scores = malloc((nb ? nb : 1) * sizeof *scores);
-            if (!scores) {
-                rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-                goto done;
-            }
-            for (size_t r = 0; r < nb; r++) {
-                double f = b[0] + b[1] * cx[r];
-                for (size_t j = 0; j < nx; j++) {
-                    double xj = cx[(j + 1) * nb + r];
-                    f += b[j + 2] * (xj < xlo[j] ? xlo[j] : xj > xhi[j] ? xhi[j] : xj);
+            for (int all = 0; all < 2; all++) {
+                /* the rows of the cell: a row of g is in it when no segment
+                 * between its own and g qualified */
+                size_t na = 0, nb = 0;
+                for (size_t r = 0; r < nrows_g; r++) {
+                    size_t i = rows[r];
+                    int in = 1;
+                    for (size_t Lc = nk; Lc > L && in && !all; Lc--)
+                        in = !qual[(size_t)seghier_row(hs, Lc, i) * q->ntargets + ti];
+                    sel[r] = (unsigned char)in;
+                    na += in && fitpart[i];
+                    nb += in && !fitpart[i];
                 }
-                scores[r] = cy[r] - f;
-            }
-            double corr;
-            if (cw) {
-                corr = weighted_upper(scores, cw, nb, tau, &k);
-            } else {
-                k = rank_rule(nb, tau, o->confidence);
-                corr = k <= nb ? etacal_select(scores, nb, k) : INFINITY;
-            }
-            free(scores);
-            if (isnan(corr)) {
-                rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-                goto done;
-            }
-            sg->k[ti] = k;
-            sg->score_q[ti] = corr;
-            sg->status[ti] = isinf(corr) ? ETACAL_FALLBACK_RANK : ETACAL_OWN_ROW;
-            if (global && isinf(corr)) {
-                rc = etacal_error_set(err, ETACAL_ENUM, etacal_table_source(t),
-                                      "method qr: %zu calibration rows; target %g needs at least %zu", nb, tau,
-                                      rule_min_n(tau, o->confidence));
-                goto done;
+                if (!all)
+                    sg->pool_n[ti] = na + nb;
+                if (!global && (na + nb < min_rows || na <= p)) {
+                    sg->status[ti] = na + nb == 0 && L < nk ? ETACAL_FALLBACK_EMPTY : ETACAL_FALLBACK_FEW_ROWS;
+                    sg->score_q[ti] = NAN;
+                    sg->k[ti] = 0;
+                    break;
+                }
+                /* columns of the fitting part, then of the calibration part
+                 * (with recency weights, a weight column after each part) */
+                double *fy = buf, *fx = buf + na, *cy = buf + na * (p + 1), *cx = cy + nb;
+                double *fw = wbuf, *cw = wbuf ? wbuf + na : NULL;
+                size_t wa = 0, wb = 0;
+                for (size_t r = 0; r < nrows_g; r++) {
+                    if (!sel[r])
+                        continue;
+                    size_t i = rows[r];
+                    if (fitpart[i]) {
+                        fy[wa] = y[i];
+                        fx[wa] = pr[i];
+                        for (size_t j = 0; j < nx; j++)
+                            fx[(j + 1) * na + wa] = xc[j][i];
+                        if (fw)
+                            fw[wa] = o->weights[i];
+                        wa++;
+                    } else {
+                        cy[wb] = y[i];
+                        cx[wb] = pr[i];
+                        for (size_t j = 0; j < nx; j++)
+                            cx[(j + 1) * nb + wb] = xc[j][i];
+                        if (cw)
+                            cw[wb] = o->weights[i];
+                        wb++;
+                    }
+                }
+                const double *fcols[ETACAL_QR_MAX_COVARIATES];
+                for (size_t j = 0; j <= nx; j++)
+                    fcols[j] = fx + j * na;
+                /* The covariates' range on the fitting part: the regression
+                 * says nothing beyond it, so the promise clamps covariates
+                 * into it (promise.c), and so do the calibration scores
+                 * below, which makes the conformal bound that of the clamped
+                 * formula. */
+                double *xlo = cellrange + (g * q->ntargets + ti) * 2 * nx, *xhi = xlo + nx;
+                for (size_t j = 0; j < nx; j++) {
+                    const double *col = fx + (j + 1) * na;
+                    xlo[j] = xhi[j] = na ? col[0] : 0;
+                    for (size_t r = 1; r < na; r++) {
+                        if (col[r] < xlo[j])
+                            xlo[j] = col[r];
+                        if (col[r] > xhi[j])
+                            xhi[j] = col[r];
+                    }
+                }
+                double *b = coef + (g * q->ntargets + ti) * p;
+                etacal_qr_result res;
+                etacal_error e2;
+                etacal_qr_opts qo = {0};
+                qo.seed = o->seed;
+                int frc = na > p ? etacal_qr_fit(fy, fcols, nx + 1, fw, na, tau, names, &qo, &res, &e2)
+                                 : ETACAL_EINVAL;
+                if (frc == ETACAL_ENOMEM) { /* not a reason to fall back: an error */
+                    rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+                    goto done;
+                }
+                if (frc != ETACAL_OK && !global) {
+                    sg->status[ti] = ETACAL_FALLBACK_FEW_ROWS;
+                    sg->score_q[ti] = NAN;
+                    break;
+                }
+                if (frc != ETACAL_OK && !all)
+                    continue; /* the global cell of the rows left over: all rows instead */
+                if (frc != ETACAL_OK) {
+                    if (na <= p)
+                        etacal_error_set(&e2, ETACAL_ENUM, NULL, "%zu rows to fit the regression", na);
+                    rc = etacal_error_set(err, e2.code, etacal_table_source(t), "method qr, all rows: %s", e2.msg);
+                    goto done;
+                }
+                memcpy(b, res.coef, p * sizeof *b);
+                /* the conformal correction from the calibration part */
+                size_t k;
+                double *scores = malloc((nb ? nb : 1) * sizeof *scores);
+                if (!scores) {
+                    rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+                    goto done;
+                }
+                for (size_t r = 0; r < nb; r++) {
+                    double f = b[0] + b[1] * cx[r];
+                    for (size_t j = 0; j < nx; j++) {
+                        double xj = cx[(j + 1) * nb + r];
+                        f += b[j + 2] * (xj < xlo[j] ? xlo[j] : xj > xhi[j] ? xhi[j] : xj);
+                    }
+                    scores[r] = cy[r] - f;
+                }
+                double corr;
+                if (cw) {
+                    corr = weighted_upper(scores, cw, nb, tau, &k);
+                } else {
+                    k = rank_rule(nb, tau, o->confidence);
+                    corr = k <= nb ? etacal_select(scores, nb, k) : INFINITY;
+                }
+                free(scores);
+                if (isnan(corr)) {
+                    rc = etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+                    goto done;
+                }
+                sg->k[ti] = k;
+                sg->score_q[ti] = corr;
+                sg->status[ti] = isinf(corr) ? ETACAL_FALLBACK_RANK : ETACAL_OWN_ROW;
+                if (global && isinf(corr) && !all) {
+                    sg->status[ti] = ETACAL_OWN_ROW;
+                    continue;
+                }
+                if (global && isinf(corr)) {
+                    rc = etacal_error_set(err, ETACAL_ENUM, etacal_table_source(t),
+                                          "method qr: %zu calibration rows; target %g needs at least %zu", nb, tau,
+                                          rule_min_n(tau, o->confidence));
+                    goto done;
+                }
+                qual[g * q->ntargets + ti] = !isinf(corr);
+                nbrow[g * q->ntargets + ti] = nb;
+                cellrow[g * q->ntargets + ti] = (char)(nk == 0 || L == nk ? ETACAL_CELL_OWN
+                                                       : all            ? ETACAL_CELL_ALL
+                                                                        : ETACAL_CELL_REST);
+                break;
             }
         }
     }
@@ -437,29 +487,37 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
             r->coef = q->coefs + q->nrows * nx;
             r->x_min = q->ranges + q->nrows * 2 * nx;
             r->x_max = r->x_min + nx;
+            const double *cr = cellrange + (g * q->ntargets + ti) * 2 * nx;
             for (size_t j = 0; j < nx; j++) {
                 r->coef[j] = b[j + 2];
-                r->x_min[j] = segrange[g * 2 * nx + j];
-                r->x_max[j] = segrange[g * 2 * nx + nx + j];
+                r->x_min[j] = cr[j];
+                r->x_max[j] = cr[nx + j];
             }
             q->nrows++;
         }
     }
-    /* n of a row: the calibration rows of its segment */
-    for (size_t rr = 0; rr < q->nrows; rr++)
-        q->rows[rr].n = nbseg[q->rows[rr].seg];
+    /* n of a row: the calibration rows of its cell */
+    for (size_t rr = 0; rr < q->nrows; rr++) {
+        size_t c = q->rows[rr].seg * q->ntargets + q->rows[rr].target;
+        q->rows[rr].n = nbrow[c];
+        q->rows[rr].cell = cellrow[c];
+    }
 done:
     free(idx);
     free(gidx);
     free(start);
     free(fill);
     free(count);
-    free(nbseg);
+    free(nbrow);
+    free(order);
+    free(qual);
+    free(cellrow);
+    free(sel);
     free(fitpart);
     free(buf);
     free(wbuf);
     free(coef);
-    free(segrange);
+    free(cellrange);
     gsl_rng_free(rng);
     return rc;
 }
@@ -576,6 +634,9 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
     wpair *wcand = NULL;
     job *jobs = NULL;
     seghier hs = {0};
+    size_t *order = NULL, *phist = NULL;
+    char *qual = NULL, *gall = NULL, *inpool = NULL;
+    double *pw = NULL, *wphist = NULL;
     *out = NULL;
 
     size_t n = etacal_table_rows(t);
@@ -768,54 +829,122 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
             }
         free(n1), free(b1), free(h2), free(n2), free(b2), free(wh2), free(ws2);
     }
+    /* Pooled thin cells (Mondrian conformal on the cell, Vovk et al. 2005,
+     * ch. 4): per target, bottom up, a segment's pooled cell holds the rows
+     * of its children that did not qualify (a full key combination's cell,
+     * its own rows).  A cell qualifies with at least min_rows rows and a
+     * finite bound; the global cell needs only the finite bound, and when
+     * it has none (no rows left over, or too few) the global row is
+     * calibrated on all rows instead (gall).  Qualification depends on the
+     * counts and weights only, so it is settled before any score is
+     * selected; the histogram of a pooled cell is the sum of its
+     * unqualified children's (phist, one target at a time). */
+    size_t nt = q->ntargets;
+    order = malloc(nseg * sizeof *order);
+    qual = calloc(nseg * nt, 1);
+    gall = calloc(nt, 1);
+    inpool = calloc(nt, 1);
+    pw = calloc(nseg, sizeof *pw);
+    phist = nkeys ? malloc(nseg * B * sizeof *phist) : NULL;
+    if (wts && nkeys)
+        wphist = malloc(nseg * B * sizeof *wphist);
+    if (!order || !qual || !gall || !inpool || !pw || (nkeys && !phist) || (wts && nkeys && !wphist))
+        goto nomem;
+    {
+        /* segments by level, the most specific first, the global one last */
+        size_t w = 0;
+        for (size_t L = nkeys + 1; L-- > 0;)
+            for (size_t g = 0; g < nseg; g++)
+                if (q->segs[g].level == L)
+                    order[w++] = g;
+    }
     size_t ncand = 0;
-    for (size_t g = 0; g < nseg; g++) {
-        etacal_segment *sg = &q->segs[g];
-        for (size_t ti = 0; ti < q->ntargets; ti++) {
-            size_t k = rank_rule(sg->n, q->targets[ti], opts->confidence);
+    for (size_t ti = 0; ti < nt; ti++) {
+        double tau = q->targets[ti];
+        for (size_t g = 0; g < nseg; g++) {
+            q->segs[g].pool_n[ti] = q->segs[g].level == nkeys ? q->segs[g].n : 0;
+            pw[g] = q->segs[g].level == nkeys && wts ? wseg[g] : 0;
+        }
+        for (size_t o = 0; o < nseg; o++) {
+            size_t g = order[o];
+            etacal_segment *sg = &q->segs[g];
+            size_t pn = sg->pool_n[ti];
+            int finite = wts ? pn > 0 && pw[g] >= tau * (1 + pw[g]) * (1 - WSLACK)
+                             : rank_rule(pn, tau, opts->confidence) <= pn;
+            int ok = finite && (g == 0 || pn >= min_rows);
+            qual[g * nt + ti] = (char)ok;
+            sg->status[ti] = g == 0 || ok                  ? ETACAL_OWN_ROW
+                             : pn == 0 && sg->level < nkeys ? ETACAL_FALLBACK_EMPTY
+                             : pn < min_rows                ? ETACAL_FALLBACK_FEW_ROWS
+                                                            : ETACAL_FALLBACK_RANK;
+            if (g != 0 && !ok) {
+                q->segs[sg->parent].pool_n[ti] += pn;
+                pw[sg->parent] += pw[g];
+            }
+        }
+        gall[ti] = !qual[ti];
+        if (nkeys) {
+            memcpy(phist, hist, nseg * B * sizeof *phist);
+            if (wts)
+                memcpy(wphist, whist, nseg * B * sizeof *wphist);
+            for (size_t g = 0; g < nseg; g++)
+                if (q->segs[g].level < nkeys) {
+                    memset(phist + g * B, 0, B * sizeof *phist);
+                    if (wts)
+                        memset(wphist + g * B, 0, B * sizeof *wphist);
+                }
+            for (size_t o = 0; o + 1 < nseg; o++) {
+                size_t g = order[o], up = q->segs[g].parent;
+                if (qual[g * nt + ti])
+                    continue;
+                for (size_t b = 0; b < B; b++)
+                    phist[up * B + b] += phist[g * B + b];
+                if (wts)
+                    for (size_t b = 0; b < B; b++)
+                        wphist[up * B + b] += wphist[g * B + b];
+            }
+        }
+        for (size_t g = 0; g < nseg; g++) {
+            etacal_segment *sg = &q->segs[g];
+            /* the rows of the cell: its pool, or all rows for the global
+             * row without a pooled cell */
+            int all = g == 0 && gall[ti];
+            size_t cn = all ? sg->n : sg->pool_n[ti];
+            double cw = wts ? (all ? wseg[g] : pw[g]) : 0;
+            const size_t *h = (all || !nkeys ? hist : phist) + g * B;
+            job *jb = &jobs[g * nt + ti];
             if (wts) {
                 /* weighted: the mass tau (1 + W) must be reached by the
                  * calibration weights, else the bound is +infinity */
-                double need = q->targets[ti] * (1 + wseg[g]);
-                job *jw = &jobs[g * q->ntargets + ti];
-                if (sg->n == 0 || wseg[g] < need * (1 - WSLACK)) {
-                    sg->k[ti] = sg->n + 1;
-                    sg->status[ti] = g == 0 ? ETACAL_OWN_ROW
-                                     : sg->n < min_rows ? ETACAL_FALLBACK_FEW_ROWS
-                                                        : ETACAL_FALLBACK_RANK;
-                    jw->bucket = SIZE_MAX;
-                    sg->score_q[ti] = INFINITY;
+                double need = tau * (1 + cw);
+                if (cn == 0 || cw < need * (1 - WSLACK)) {
+                    sg->k[ti] = cn + 1;
+                    jb->bucket = SIZE_MAX;
+                    sg->score_q[ti] = cn ? INFINITY : NAN; /* NaN: an empty cell */
                     continue;
                 }
-                const double *wh = whist + g * B;
-                const size_t *h = hist + g * B;
+                const double *wh = (all || !nkeys ? whist : wphist) + g * B;
                 double cumw = 0;
                 size_t cum = 0, b = 0;
                 while (b + 1 < B && cumw + wh[b] < need * (1 - WSLACK)) {
                     cumw += wh[b];
                     cum += h[b++];
                 }
-                jw->bucket = b;
-                jw->rank = cum;
-                jw->need = need - cumw;
-                jw->cap = h[b];
-                jw->off = ncand;
+                jb->bucket = b;
+                jb->rank = cum;
+                jb->need = need - cumw;
+                jb->cap = h[b];
+                jb->off = ncand;
                 ncand += h[b];
-                sg->status[ti] = g == 0 ? ETACAL_OWN_ROW : sg->n < min_rows ? ETACAL_FALLBACK_FEW_ROWS : ETACAL_OWN_ROW;
                 continue;
             }
+            size_t k = rank_rule(cn, tau, opts->confidence);
             sg->k[ti] = k;
-            sg->status[ti] = g == 0                 ? ETACAL_OWN_ROW
-                             : sg->n < min_rows     ? ETACAL_FALLBACK_FEW_ROWS
-                             : k > sg->n            ? ETACAL_FALLBACK_RANK
-                                                    : ETACAL_OWN_ROW;
-            job *jb = &jobs[g * q->ntargets + ti];
-            if (k > sg->n) {
+            if (k > cn) {
                 jb->bucket = SIZE_MAX;
-                sg->score_q[ti] = INFINITY;
+                sg->score_q[ti] = cn ? INFINITY : NAN;
                 continue;
             }
-            const size_t *h = hist + g * B;
             size_t cum = 0, b = 0;
             while (cum + h[b] < k)
                 cum += h[b++];
@@ -848,20 +977,27 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
         wcand = malloc((ncand ? ncand : 1) * sizeof *wcand);
     if (!cand || (wts && !wcand))
         goto nomem;
+    /* Each row goes to the cell of every segment above it up to the first
+     * that qualified (inclusive), and to the global row without a pooled
+     * cell. */
     for (size_t i = 0; i < n; i++) {
         if (mask && !mask[i])
             continue;
         double sc = ratio ? y[i] / p[i] : y[i] - p[i];
         size_t bg = bucket(sc, lo_s, scale0, B);
+        memset(inpool, 1, nt);
         for (uint32_t g = seghier_row(&hs, nkeys, i), L = (uint32_t)nkeys + 1; L-- > 0;
              g = (uint32_t)hs.parent[g]) {
-            job *jg = &jobs[(size_t)g * q->ntargets];
-            for (size_t ti = 0; ti < q->ntargets; ti++)
-                if (jg[ti].bucket == bg) {
+            job *jg = &jobs[(size_t)g * nt];
+            for (size_t ti = 0; ti < nt; ti++) {
+                if ((inpool[ti] || (g == 0 && gall[ti])) && jg[ti].bucket == bg) {
                     if (wts)
                         wcand[jg[ti].off + jg[ti].used] = (wpair){sc, wts[i]};
                     cand[jg[ti].off + jg[ti].used++] = sc;
                 }
+                if (qual[(size_t)g * nt + ti])
+                    inpool[ti] = 0;
+            }
         }
     }
     for (size_t g = 0; g < nseg; g++)
@@ -901,7 +1037,10 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
             r->seg = s;
             r->target = ti;
             r->method = q->method;
-            r->n = g->n;
+            /* the rows of its cell: its own, a pooled cell, or all rows */
+            int all = s == 0 && gall[ti];
+            r->n = all ? g->n : g->pool_n[ti];
+            r->cell = nkeys == 0 || g->level == nkeys ? ETACAL_CELL_OWN : all ? ETACAL_CELL_ALL : ETACAL_CELL_REST;
             r->k = g->k[ti];
             /* Rounded up, never down, so the guarantee survives: the
              * offset to the millisecond, a factor to 1e-6. */
@@ -926,6 +1065,13 @@ done:
     free(wcand);
     free(cand);
     free(jobs);
+    free(order);
+    free(phist);
+    free(wphist);
+    free(qual);
+    free(gall);
+    free(inpool);
+    free(pw);
     if (rc) {
         etacal_quotes_destroy(q);
         return rc;
@@ -977,6 +1123,12 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
         }
     if (q->confidence > 0)
         fputs(",confidence,coverage_mean,coverage_low", fp);
+    /* what the rows behind each row are: with keys, when every row says */
+    int cells = q->nkeys > 0;
+    for (size_t r = 0; r < q->nrows && cells; r++)
+        cells = etacal_cell_name(q->rows[r].cell) != NULL;
+    if (cells)
+        fputs(",cell", fp);
     putc('\n', fp);
     for (size_t r = 0; r < q->nrows; r++) {
         const etacal_quote *row = &q->rows[r];
@@ -1012,6 +1164,10 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
             /* the bound rounded down, so that it never claims too much */
             fprintf(fp, ",%s,%.6f,%.6f", num, etacal_coverage_mean(row->n, row->k),
                     floor(etacal_coverage_low(row->n, row->k, q->confidence) * 1e6) / 1e6);
+        }
+        if (cells) {
+            putc(',', fp);
+            fputs(etacal_cell_name(row->cell), fp);
         }
         putc('\n', fp);
     }

@@ -63,6 +63,11 @@ int etacal_quotes_seg_status(const etacal_quotes *q, size_t g, size_t t)
     return g < q->nsegs && t < q->ntargets ? q->segs[g].status[t] : -1;
 }
 
+size_t etacal_quotes_seg_pool_n(const etacal_quotes *q, size_t g, size_t t)
+{
+    return g < q->nsegs && t < q->ntargets && q->segs[g].pool_n ? q->segs[g].pool_n[t] : 0;
+}
+
 size_t etacal_quotes_nrows(const etacal_quotes *q) { return q->nrows; }
 
 int etacal_quotes_row(const etacal_quotes *q, size_t r, etacal_quote_row *out)
@@ -76,6 +81,7 @@ int etacal_quotes_row(const etacal_quotes *q, size_t r, etacal_quote_row *out)
     out->k = x->k;
     out->offset_s = x->offset_s;
     out->slope = x->slope;
+    out->cell = x->cell;
     return ETACAL_OK;
 }
 

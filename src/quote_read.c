@@ -4,7 +4,9 @@
  * then 'target' and the known columns; others, such as a note, are
  * ignored), one known method, finite numbers, targets in
  * (0,1), 1 <= k <= n, the slope and offset each method implies, key values
- * that are UTF-8 text, key levels of the form (values..., *, ...*), no
+ * that are UTF-8 text, key levels of the form (values..., *, ...*), an
+ * optional cell column (own on full key combinations, rest, all on the
+ * global row), no
  * duplicate rows and a global row for every target.  Every defect is
  * reported with the line of the row (or header) that has it. */
 #include "internal.h"
@@ -20,6 +22,7 @@ typedef struct qrow {
     size_t n, k, line;
     double offset_s, slope;
     size_t coef_off; /* into the reader's coefficient store (and, times 2, the range store) */
+    int cell;        /* ETACAL_CELL_*; unknown without a 'cell' column */
 } qrow;
 
 typedef struct qreader {
@@ -31,6 +34,7 @@ typedef struct qreader {
     size_t nkeys;
     long c_target, c_method, c_n, c_k, c_offset, c_slope;
     long c_conf, c_covmean, c_covlow; /* written with --confidence */
+    long c_cell;                      /* own, rest or all (optional) */
     size_t header_line;
     char **key_names;
     strdict segs; /* joined key texts (unit separator between) -> segment */
@@ -69,7 +73,7 @@ static int header(qreader *r, size_t line)
 {
     rowbuf *b = &r->rb;
     r->c_target = r->c_method = r->c_n = r->c_k = r->c_offset = r->c_slope = -1;
-    r->c_conf = r->c_covmean = r->c_covlow = -1;
+    r->c_conf = r->c_covmean = r->c_covlow = r->c_cell = -1;
     r->header_line = line;
     for (size_t i = 0; i < b->nf; i++) {
         const char *h = rowbuf_get(b, i);
@@ -98,6 +102,8 @@ static int header(qreader *r, size_t line)
             slot = &r->c_covmean;
         else if (strcmp(h, "coverage_low") == 0)
             slot = &r->c_covlow;
+        else if (strcmp(h, "cell") == 0 && r->c_target >= 0) /* before 'target': a key */
+            slot = &r->c_cell;
         if (slot) {
             if (*slot >= 0)
                 return fail(r, line, ETACAL_EPARSE, "column '%s' appears twice in the header", h);
@@ -304,6 +310,19 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
         if (i == 0)
             r->confidence = v;
     }
+    if (r->c_cell >= 0) {
+        const char *cv = rowbuf_get(b, (size_t)r->c_cell);
+        q.cell = strcmp(cv, "own") == 0    ? ETACAL_CELL_OWN
+                 : strcmp(cv, "rest") == 0 ? ETACAL_CELL_REST
+                 : strcmp(cv, "all") == 0  ? ETACAL_CELL_ALL
+                                           : ETACAL_CELL_UNKNOWN;
+        if (q.cell == ETACAL_CELL_UNKNOWN) {
+            char msg[120];
+            snprintf(msg, sizeof msg, "'cell' must be own, rest or all, got '%.40s'", cv);
+            stop = fail(r, line, ETACAL_EPARSE, "%s", msg);
+            goto out;
+        }
+    }
     if (r->ncoef && q.method != ETACAL_METHOD_QR) {
         stop = fail(r, line, ETACAL_EPARSE, "coef_ columns belong to method qr, not '%s'",
                     etacal_method_name(q.method));
@@ -343,6 +362,7 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
     r->ncoefs += r->ncoef;
     /* Key level: some values, then only "*". */
     int star = 0;
+    size_t nstar = 0;
     rowbuf_reset(&r->joined);
     size_t jl = 0;
     for (size_t j = 0; j < r->nkeys; j++) {
@@ -367,7 +387,15 @@ static int on_row(void *ud, size_t nfields, size_t line, const char *raw, size_t
             goto out;
         }
         star |= is_star;
+        nstar += (size_t)is_star;
         jl += rowbuf_len(b, j) + 1;
+    }
+    /* own: a full key combination; all: the global row */
+    if ((q.cell == ETACAL_CELL_OWN && star) || (q.cell == ETACAL_CELL_ALL && nstar < r->nkeys)) {
+        stop = fail(r, line, ETACAL_EPARSE, "%s",
+                    q.cell == ETACAL_CELL_OWN ? "cell 'own' needs a value in every key (a row with '*' keys is 'rest')"
+                                              : "cell 'all' belongs to the global row (every key '*')");
+        goto out;
     }
     /* Joined key: the fields with a unit separator after each. */
     char small[512];
@@ -540,11 +568,13 @@ int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, et
         o->k = x->k;
         o->offset_s = x->offset_s;
         o->slope = x->slope;
+        o->cell = x->cell;
         o->coef = q->coefs ? q->coefs + x->coef_off : NULL;
         o->x_min = q->ranges ? q->ranges + 2 * x->coef_off : NULL;
         o->x_max = q->ranges ? o->x_min + q->ncoef : NULL;
         etacal_segment *g = &q->segs[x->seg];
         g->n = x->n;
+        g->pool_n[o->target] = x->n;
         g->k[o->target] = x->k;
         g->status[o->target] = ETACAL_OWN_ROW;
         g->score_q[o->target] = x->method == ETACAL_METHOD_RATIO ? x->slope : x->offset_s;

@@ -677,7 +677,7 @@ static int buffer_grid(FILE *fp, const etacal_report *r, etacal_error *err)
     }
     fputs(", darker for more. ", fp);
     if (nmark)
-        fputs("* marks a cell too thin for a buffer of its own, which uses the nearest coarser level. ", fp);
+        fputs("* marks a cell too thin for a buffer of its own: it is pooled with the other thin cells of its row (or, when those are too few, of the whole table) and uses their buffer. ", fp);
     fputs("\xE2\x80\x93: no calibration rows.", fp);
     if (dropped)
         fprintf(fp, " %zu segments beyond the first %d rows and %d columns are not drawn.", dropped, MAX_GRID_ROWS,

@@ -42,8 +42,25 @@ int etacal_method_parse(const char *name);
 enum {
     ETACAL_OWN_ROW = 0,
     ETACAL_FALLBACK_FEW_ROWS = 1, /* n < min_rows */
-    ETACAL_FALLBACK_RANK = 2      /* k = ceil((n+1) tau) > n: no finite bound */
+    ETACAL_FALLBACK_RANK = 2,     /* k = ceil((n+1) tau) > n: no finite bound */
+    ETACAL_FALLBACK_EMPTY = 3     /* a coarser segment whose pooled cell is empty:
+                                     every segment below it has a row of its own */
 };
+
+/* What the rows behind a table row are (the 'cell' column). */
+enum {
+    ETACAL_CELL_UNKNOWN = 0, /* a table read without a 'cell' column */
+    ETACAL_CELL_OWN = 1,     /* the rows of its own segment (full key combination,
+                                or the only segment of a table without keys) */
+    ETACAL_CELL_REST = 2,    /* a pooled cell: the rows of the segments below it
+                                that have no row of their own (Mondrian conformal
+                                on that cell) */
+    ETACAL_CELL_ALL = 3      /* the global row when too few rows are left over for
+                                a pooled cell: all rows, no guarantee for the
+                                segments that fall back to it */
+};
+/* "own", "rest", "all"; NULL for unknown. */
+const char *etacal_cell_name(int cell);
 
 /* Point accuracy of the prediction column against the actuals. */
 typedef struct etacal_accuracy {
@@ -57,7 +74,18 @@ typedef struct etacal_accuracy {
  * j, or "*" where the segment's level leaves key j open: --by zone,band gives
  * the levels (zone, band), (zone, *) and (*, *), the global segment.  A
  * segment without a row of its own for a target uses the nearest level
- * above it that has one. */
+ * above it that has one.
+ *
+ * Pooled thin cells (fit): the row of a coarser segment, such as (zone, *),
+ * is calibrated on its pooled cell, the rows of the segments below it that
+ * have no row of their own for that target (the parent's rows minus those
+ * of qualified children), so that coverage holds given "a thin segment of
+ * this parent" (Mondrian conformal, Vovk et al. 2005).  A full key
+ * combination's pooled cell is its own rows.  A cell qualifies with
+ * pool_n >= min_rows and a finite bound; otherwise its rows go up into the
+ * parent's pooled cell.  The global segment takes the rows left over; when
+ * they are none or give no finite bound, its row is calibrated on all rows
+ * (ETACAL_CELL_ALL). */
 typedef struct etacal_segment {
     char **keys;
     size_t n;          /* calibration rows (fit), or the table's n (read) */
@@ -69,6 +97,9 @@ typedef struct etacal_segment {
     int *status;       /* ETACAL_OWN_ROW or a fallback reason */
     size_t level;      /* keys it fixes: nkeys for a full combination, 0 global */
     size_t parent;     /* the segment one level up (fit only; 0 = global) */
+    size_t *pool_n;    /* per target: rows of its pooled cell (fit); k, score_q
+                          and status describe that cell (for the global row
+                          with ETACAL_CELL_ALL: all rows) */
 } etacal_segment;
 
 /* One row of the quote table. */
@@ -84,6 +115,7 @@ typedef struct etacal_quote {
      * [x_min[j], x_max[j]] before the formula.  NULL: a table without
      * ranges (written before they were stored): no clamping. */
     double *x_min, *x_max;
+    int cell;      /* ETACAL_CELL_*: what the n rows are */
 } etacal_quote;
 
 /* A quote table.  Read-only for callers; built by etacal_quotes_fit or
@@ -183,7 +215,9 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
  * column per extra covariate, then min_<name>,max_<name> per covariate (its
  * range on the rows the segment's regression was fitted on); with a confidence, also confidence,
  * coverage_mean and coverage_low (the mean of the coverage law of the bound
- * and the coverage reached with that confidence); one row per segment with a row of its own and
+ * and the coverage reached with that confidence); with key columns, a last
+ * column cell (own, rest, all: etacal_cell_name) when every row's cell is
+ * known; one row per segment with a row of its own and
  * target, global rows first.  Numbers in shortest round-trip form. */
 int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err);
 /* The same CSV to a sink, or to a file at path that appears whole or not at
@@ -195,7 +229,9 @@ int etacal_quotes_write_path(const etacal_quotes *q, const char *path, etacal_er
  * the columns before 'target' are the key columns; 'target', 'method', 'n',
  * 'offset_s' and 'slope' are required, 'coef_<name>' columns are the
  * coefficients of covariates, 'min_<name>' and 'max_<name>' their ranges
- * (for every covariate or for none; none: no clamping), others are ignored.  Checks: numbers
+ * (for every covariate or for none; none: no clamping), an optional 'cell'
+ * column (own on full key combinations, rest, all on the global row;
+ * ETACAL_CELL_UNKNOWN without it), others are ignored.  Checks: numbers
  * finite, targets in (0,1), one method, no duplicate (segment, target), a
  * global row for every target.  Errors carry FILE:LINE. */
 int etacal_quotes_read_csv(const char *path, char delim, etacal_quotes **out, etacal_error *err);
@@ -242,12 +278,15 @@ size_t etacal_quotes_seg_bare_hits(const etacal_quotes *q, size_t g);
 size_t etacal_quotes_seg_k(const etacal_quotes *q, size_t g, size_t t);
 double etacal_quotes_seg_score(const etacal_quotes *q, size_t g, size_t t);
 int etacal_quotes_seg_status(const etacal_quotes *q, size_t g, size_t t); /* ETACAL_OWN_ROW, ... */
+/* Rows of the segment's pooled cell at target t (fitted tables; 0 otherwise). */
+size_t etacal_quotes_seg_pool_n(const etacal_quotes *q, size_t g, size_t t);
 /* Rows: by segment, then target. */
 size_t etacal_quotes_nrows(const etacal_quotes *q);
 typedef struct etacal_quote_row {
     size_t seg, target;  /* indices of its segment and target */
     size_t n, k;         /* calibration rows behind it and the rank used */
     double offset_s, slope;
+    int cell;            /* ETACAL_CELL_*: what the n rows are */
 } etacal_quote_row;
 int etacal_quotes_row(const etacal_quotes *q, size_t r, etacal_quote_row *out);
 double etacal_quotes_row_coef(const etacal_quotes *q, size_t r, size_t j);

@@ -31,6 +31,72 @@ static void segment_label(char *buf, size_t n, const etacal_quotes *q, size_t g)
         snprintf(buf + w, n - w, ")");
 }
 
+/* Whether the global row at target ti is calibrated on all rows, and the
+ * rows of the cell behind segment g's row at target ti (its pooled cell;
+ * for the global row without one, all rows; method qr: fitting and
+ * calibration parts together). */
+static int global_all(const etacal_quotes *q, size_t ti)
+{
+    for (size_t r = 0; r < q->nrows; r++)
+        if (q->rows[r].seg == 0 && q->rows[r].target == ti)
+            return q->rows[r].cell == ETACAL_CELL_ALL;
+    return 0;
+}
+
+static size_t pooled_n(const etacal_quotes *q, size_t g, size_t ti)
+{
+    return g == 0 && global_all(q, ti) ? q->segs[0].n : q->segs[g].pool_n[ti];
+}
+
+/* Which segments were pooled into which row, and with how many rows: per
+ * target, every row of a pooled cell (a coarser segment's row, or the
+ * global one) with the full key combinations whose rows it holds.
+ * Returns 0, or -1 when out of memory. */
+static int print_pooled(FILE *fp, const etacal_quotes *q)
+{
+    size_t ns = q->nsegs, nt = q->ntargets;
+    size_t *members = calloc(ns, sizeof *members);
+    if (!members)
+        return -1;
+    int header = 0;
+    for (size_t ti = 0; ti < nt; ti++) {
+        memset(members, 0, ns * sizeof *members);
+        for (size_t g = 1; g < ns; g++) {
+            if (q->segs[g].level != q->nkeys || q->segs[g].status[ti] == ETACAL_OWN_ROW)
+                continue;
+            size_t up = g;
+            while (up != 0 && q->segs[up].status[ti] != ETACAL_OWN_ROW)
+                up = q->segs[up].parent;
+            members[up]++;
+        }
+        char p[ETACAL_NUM_BUFSZ];
+        etacal_percent_label(q->targets[ti], p);
+        for (size_t g = 0; g < ns; g++) {
+            if (q->segs[g].level == q->nkeys || q->segs[g].status[ti] != ETACAL_OWN_ROW || (g == 0 && !members[0]))
+                continue;
+            if (!header) {
+                fputs("pooled cells (calibrated on the rows of the segments below them without a row of their "
+                      "own):\n", fp);
+                header = 1;
+            }
+            char who[64];
+            segment_label(who, sizeof who, q, g);
+            size_t m = members[g];
+            if (g == 0 && global_all(q, ti))
+                fprintf(fp, "  %s at %s%%: all %zu rows; %zu row%s left over from %zu segment%s, too few for a "
+                            "pooled cell: no guarantee for %s\n",
+                        who, p, pooled_n(q, 0, ti), q->segs[0].pool_n[ti], q->segs[0].pool_n[ti] == 1 ? "" : "s", m,
+                        m == 1 ? "" : "s", m == 1 ? "it" : "them");
+            else
+                fprintf(fp, "  %s at %s%%: %zu row%s from %zu segment%s\n", who, p, pooled_n(q, g, ti),
+                        pooled_n(q, g, ti) == 1 ? "" : "s", m,
+                        m == 1 ? "" : "s");
+        }
+    }
+    free(members);
+    return 0;
+}
+
 /* Returns 0, or -1 when out of memory (the summary is then incomplete). */
 static int print_summary(FILE *fp, const char *path, const char *pred, const etacal_table *t,
                          const etacal_quotes *q, size_t min_rows)
@@ -158,10 +224,57 @@ static int print_summary(FILE *fp, const char *path, const char *pred, const eta
                 c++;
             }
         }
+        /* the row an order of this segment gets, and what it is */
+        size_t rn = pooled_n(q, s, 0);
+        int same_n = 1, empty = 0;
+        for (size_t ti = 0; ti < nt; ti++) {
+            same_n &= pooled_n(q, s, ti) == rn;
+            empty |= g->status[ti] == ETACAL_FALLBACK_EMPTY;
+        }
         if (s == 0) {
-            snprintf(buf[c], sizeof buf[c], "global");
-        } else if (!few && !rankmsg[0]) {
+            int all = global_all(q, 0);
+            for (size_t ti = 1; ti < nt; ti++)
+                same_n &= global_all(q, ti) == all;
+            if (nk == 0)
+                snprintf(buf[c], sizeof buf[c], "global");
+            else if (!same_n)
+                snprintf(buf[c], sizeof buf[c], "global (rows by target below)");
+            else if (all)
+                snprintf(buf[c], sizeof buf[c], "global: all %zu rows", rn);
+            else
+                snprintf(buf[c], sizeof buf[c], "global: pooled, %zu row%s", rn, rn == 1 ? "" : "s");
+        } else if (!few && !rankmsg[0] && !empty && g->level == nk) {
             snprintf(buf[c], sizeof buf[c], "own");
+        } else if (g->level < nk) {
+            /* a coarser segment: its pooled cell per target, said once when
+             * every target says the same */
+            size_t w = 0;
+            buf[c][0] = '\0';
+            for (size_t ti = 0; ti < nt && w < sizeof buf[c]; ti++) {
+                char what[80], p[ETACAL_NUM_BUFSZ];
+                int sti = g->status[ti];
+                size_t up = s;
+                while (up != 0 && q->segs[up].status[ti] != ETACAL_OWN_ROW)
+                    up = q->segs[up].parent;
+                char who[40];
+                segment_label(who, sizeof who, q, up);
+                if (sti == ETACAL_OWN_ROW)
+                    snprintf(what, sizeof what, "pooled, %zu row%s", pooled_n(q, s, ti), pooled_n(q, s, ti) == 1 ? "" : "s");
+                else if (sti == ETACAL_FALLBACK_EMPTY)
+                    snprintf(what, sizeof what, "empty (unseen values: %s)", who);
+                else
+                    snprintf(what, sizeof what, "%zu row%s, pooled in %s", g->pool_n[ti], g->pool_n[ti] == 1 ? "" : "s",
+                             who);
+                int alike = 1;
+                for (size_t t2 = 0; t2 < nt; t2++)
+                    alike &= q->segs[s].status[t2] == sti && pooled_n(q, s, t2) == pooled_n(q, s, ti);
+                if (alike) {
+                    snprintf(buf[c], sizeof buf[c], "%s", what);
+                    break;
+                }
+                etacal_percent_label(q->targets[ti], p);
+                w += (size_t)snprintf(buf[c] + w, sizeof buf[c] - w, "%s%s%%: %s", ti ? "; " : "", p, what);
+            }
         } else {
             /* the nearest level above with a row, per target */
             size_t first = SIZE_MAX;
@@ -179,11 +292,11 @@ static int print_summary(FILE *fp, const char *path, const char *pred, const eta
             char who[64];
             segment_label(who, sizeof who, q, first);
             if (few)
-                snprintf(buf[c], sizeof buf[c], "uses %s (n < %zu)", who, min_rows);
+                snprintf(buf[c], sizeof buf[c], "pooled in %s (n < %zu)", who, min_rows);
             else if (same)
-                snprintf(buf[c], sizeof buf[c], "uses %s at %s (k > n)", who, rankmsg);
+                snprintf(buf[c], sizeof buf[c], "pooled in %s at %s (k > n)", who, rankmsg);
             else
-                snprintf(buf[c], sizeof buf[c], "uses a coarser level at %s (k > n)", rankmsg);
+                snprintf(buf[c], sizeof buf[c], "pooled in a coarser level at %s (k > n)", rankmsg);
         }
         cells[c] = buf[c];
         c++;
@@ -201,6 +314,8 @@ static int print_summary(FILE *fp, const char *path, const char *pred, const eta
     if (nk)
         fprintf(fp, "\n%zu segment%s: %zu with rows of their own for every target, %zu using a coarser level for some; table rows: %zu\n",
                 q->nsegs - 1, q->nsegs == 2 ? "" : "s", q->nsegs - 1 - fell, fell, q->nrows);
+    if (nk && print_pooled(fp, q) != 0)
+        goto out;
     rc = 0;
 out:
     free(cells);

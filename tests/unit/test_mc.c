@@ -21,6 +21,7 @@
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
+#include <string.h>
 #include <unistd.h>
 
 #include "etacal/etacal.h"
@@ -285,6 +286,210 @@ static void test_gate_table_law(void **state)
     assert_true(power >= 0.90);
 }
 
+/* ---- pooled thin cells (issue 11) -------------------------------------
+ * Per replication r, zones a and b with 2000 rows each and a thin zone c
+ * with 150 rows whose durations run 300 s longer at the same prediction:
+ * duration = prediction + e, e ~ N(0, 100^2) in a and b, N(300, 100^2) in c.
+ * fit --by rep,zone --target 0.9.  An order of a zone with promise
+ * prediction + offset_s is on time iff e <= offset_s, so the exact
+ * conditional coverage of a row is the normal CDF at its offset (no
+ * re-draw).  The pooled cell of zone c (Mondrian conformal on "the thin
+ * zones of this replication", Vovk et al. 2005, ch. 4) has coverage
+ * Beta(k, n+1-k), mean k/(n+1) >= tau; all orders together, the zones'
+ * coverages weighted 2000:2000:150, again at least tau on average.  The old
+ * rule, the (rep, *) row calibrated on all 4150 rows of the replication,
+ * is computed here from the same draws and must fail the same check. */
+#define MC_REPS 200
+#define MC_BIG 2000
+#define MC_THIN 150
+#define MC_SD 100.0
+#define MC_SHIFT 300.0
+
+static const double *mc_find_row(const etacal_quotes *q, const char *rep, const char *zone)
+{
+    /* apply's lookup: (rep, zone), then (rep, *), then (*, *) */
+    const char *want[3][2] = {{rep, zone}, {rep, "*"}, {"*", "*"}};
+    for (int l = 0; l < 3; l++)
+        for (size_t i = 0; i < q->nrows; i++) {
+            const etacal_segment *g = &q->segs[q->rows[i].seg];
+            if (strcmp(g->keys[0], want[l][0]) == 0 && strcmp(g->keys[1], want[l][1]) == 0)
+                return &q->rows[i].offset_s;
+        }
+    return NULL;
+}
+
+static const etacal_quote *mc_row(const etacal_quotes *q, const char *rep, const char *zone)
+{
+    for (size_t i = 0; i < q->nrows; i++) {
+        const etacal_segment *g = &q->segs[q->rows[i].seg];
+        if (strcmp(g->keys[0], rep) == 0 && strcmp(g->keys[1], zone) == 0)
+            return &q->rows[i];
+    }
+    return NULL;
+}
+
+typedef struct mcstat {
+    double sum, sum2;
+    size_t n;
+} mcstat;
+
+static void mc_add(mcstat *m, double v)
+{
+    m->sum += v;
+    m->sum2 += v * v;
+    m->n++;
+}
+
+static double mc_mean(const mcstat *m) { return m->sum / (double)m->n; }
+
+static double mc_se(const mcstat *m)
+{
+    double mean = mc_mean(m), var = (m->sum2 / (double)m->n - mean * mean) * (double)m->n / (double)(m->n - 1);
+    return sqrt(var > 0 ? var : 0) / sqrt((double)m->n);
+}
+
+
+static void test_pooled_thin_cell(void **state)
+{
+    (void)state;
+    const double tau = 0.9;
+    const size_t per = 2 * MC_BIG + MC_THIN;
+    char dir[] = "/tmp/etacal-mc-XXXXXX";
+    assert_non_null(mkdtemp(dir));
+    char path[128];
+    snprintf(path, sizeof path, "%s/cal.csv", dir);
+    FILE *fp = fopen(path, "w");
+    assert_non_null(fp);
+    gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(r, 1105);
+    double *noise = malloc(MC_REPS * per * sizeof *noise); /* by replication: a, b, c */
+    assert_non_null(noise);
+    /* zone: a, b and the thin c (the repro); zone2: the same rows with c
+     * split into c and d, 75 rows each, for part 2 */
+    fprintf(fp, "rep,zone,zone2,pred,actual\n");
+    for (size_t rep = 0; rep < MC_REPS; rep++)
+        for (size_t i = 0; i < per; i++) {
+            int z = i < MC_BIG ? 0 : i < 2 * MC_BIG ? 1 : 2;
+            double e = (z == 2 ? MC_SHIFT : 0) + gsl_ran_gaussian(r, MC_SD);
+            double pred = 600 + 1200 * gsl_rng_uniform(r);
+            double actual = pred + e;
+            /* the score fit sees, actual - pred, in floating point */
+            noise[rep * per + i] = actual - pred;
+            fprintf(fp, "r%03zu,%c,%c,%.17g,%.17g\n", rep, "abc"[z], z == 2 && i % 2 ? 'd' : "abc"[z], pred, actual);
+        }
+    gsl_rng_free(r);
+    assert_int_equal(fclose(fp), 0);
+    etacal_colspec cols[] = {{"actual", ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING, NULL},
+                             {"pred", ETACAL_COL_NUM, ETACAL_NUM_SKIP_MISSING, NULL},
+                             {"rep", ETACAL_COL_KEY, 0, NULL},
+                             {"zone", ETACAL_COL_KEY, 0, NULL},
+                             {"zone2", ETACAL_COL_KEY, 0, NULL}};
+    etacal_error err;
+    etacal_table *t = NULL;
+    assert_int_equal(etacal_table_read_csv(path, cols, 5, NULL, &t, &err), ETACAL_OK);
+    size_t keys[] = {2, 3};
+    double targets[] = {tau};
+    double *buf = malloc(per * sizeof *buf);
+    assert_non_null(buf);
+
+    /* 1. The repro, fit --by rep,zone --target 0.9 (--min-rows 200): 150
+     *    rows are too few for zone c and for its pooled cell (rep, *), so
+     *    every replication's thin zone goes up to the global cell, which
+     *    holds exactly the 200 x 150 thin rows: one draw of Beta(k, N+1-k),
+     *    N = 30000, sd sqrt(.9 x .1 / 30001) ~ .0017. */
+    etacal_fit_opts fo = {ETACAL_METHOD_ADD, targets, 1, 0, NULL, 0, 0, 0, 0, NULL, NULL};
+    etacal_quotes *q = NULL;
+    assert_int_equal(etacal_quotes_fit(t, 0, 1, keys, 2, &fo, &q, &err), ETACAL_OK);
+    const etacal_quote *gl = mc_row(q, "*", "*");
+    assert_non_null(gl);
+    const size_t N = (size_t)MC_REPS * MC_THIN;
+    assert_int_equal(gl->cell, ETACAL_CELL_REST);
+    assert_int_equal(gl->n, N);
+    double cg = gsl_cdf_gaussian_P(gl->offset_s - MC_SHIFT, MC_SD);
+    double sd_g = sqrt(tau * (1 - tau) / (double)(N + 1));
+    mcstat ab = {0}, thin_old = {0}, all_old = {0};
+    size_t kall = etacal_conformal_rank(per, tau);
+    for (size_t rep = 0; rep < MC_REPS; rep++) {
+        char rk[8];
+        snprintf(rk, sizeof rk, "r%03zu", rep);
+        assert_null(mc_row(q, rk, "c"));
+        assert_null(mc_row(q, rk, "*")); /* its cell went up */
+        double oa = *mc_find_row(q, rk, "a"), ob = *mc_find_row(q, rk, "b");
+        assert_true(*mc_find_row(q, rk, "c") == gl->offset_s);
+        double ca = gsl_cdf_gaussian_P(oa, MC_SD), cb = gsl_cdf_gaussian_P(ob, MC_SD);
+        mc_add(&ab, MC_BIG * (ca + cb) / (double)per);
+        /* the old rule: (r, *) calibrated on all rows of the replication */
+        memcpy(buf, noise + rep * per, per * sizeof *buf);
+        double qold = etacal_select(buf, per, kall);
+        double cold = gsl_cdf_gaussian_P(qold - MC_SHIFT, MC_SD);
+        mc_add(&thin_old, cold);
+        mc_add(&all_old, (MC_BIG * (ca + cb) + MC_THIN * cold) / (double)per);
+    }
+    /* all orders: the a and b part averages over independent replications
+     * (its standard error from the sample), the thin part is the one global
+     * draw (weight 150/4150, sd above); the two add in variance */
+    double all_mean = mc_mean(&ab) + MC_THIN * cg / (double)per;
+    double all_se = sqrt(mc_se(&ab) * mc_se(&ab) + pow(MC_THIN * sd_g / (double)per, 2));
+    printf("   repro, pooled global cell (%zu rows): thin zone %.5f (sd %.5f), all orders %.5f (se %.5f); "
+           "old rule: thin %.5f, all orders %.5f (se %.5f)\n",
+           N, cg, sd_g, all_mean, all_se, mc_mean(&thin_old), mc_mean(&all_old), mc_se(&all_old));
+    /* four standard errors below tau (a false alarm about 3e-5 by the
+     * normal approximation); above, the largest k/(n+1) - tau of a cell
+     * (1/2001 for a and b, 1/(N+1) here) plus four */
+    assert_true(cg >= tau - 4 * sd_g);
+    assert_true(cg <= tau + 1.0 / (double)(N + 1) + 4 * sd_g);
+    assert_true(all_mean >= tau - 4 * all_se);
+    assert_true(all_mean <= tau + 1.0 / (MC_BIG + 1) + 4 * all_se);
+    /* the old rule fails the same test, by far */
+    assert_true(mc_mean(&thin_old) < tau - 4 * mc_se(&thin_old) - 0.5);
+    assert_true(mc_mean(&all_old) < tau - 4 * mc_se(&all_old));
+    etacal_quotes_destroy(q);
+
+    /* 2. Per replication: --by rep,zone2 --min-rows 100.  Zones c and d
+     *    (75 rows each, the same law) are thin, their pooled cell (rep, *)
+     *    holds their 150 rows and qualifies (k = 136 <= 150), so each
+     *    replication's thin zones get a bound of their own replication:
+     *    independent, Beta(136, 15) each, mean 136/151. */
+    keys[1] = 4;
+    fo.min_rows = 100;
+    assert_int_equal(etacal_quotes_fit(t, 0, 1, keys, 2, &fo, &q, &err), ETACAL_OK);
+    mcstat thin = {0}, all = {0};
+    size_t kthin = etacal_conformal_rank(MC_THIN, tau);
+    for (size_t rep = 0; rep < MC_REPS; rep++) {
+        char rk[8];
+        snprintf(rk, sizeof rk, "r%03zu", rep);
+        assert_null(mc_row(q, rk, "c"));
+        assert_null(mc_row(q, rk, "d"));
+        const etacal_quote *pooled = mc_row(q, rk, "*");
+        assert_non_null(pooled);
+        assert_int_equal(pooled->cell, ETACAL_CELL_REST);
+        assert_int_equal(pooled->n, MC_THIN);
+        assert_int_equal(pooled->k, kthin);
+        /* its bound is the k-th smallest of the thin zones' scores */
+        memcpy(buf, noise + rep * per + 2 * MC_BIG, MC_THIN * sizeof *buf);
+        double sk = etacal_select(buf, MC_THIN, kthin);
+        assert_true(pooled->offset_s >= sk && pooled->offset_s < sk + 0.001 + 1e-9);
+        double oa = *mc_find_row(q, rk, "a"), ob = *mc_find_row(q, rk, "b");
+        assert_true(*mc_find_row(q, rk, "c") == pooled->offset_s && *mc_find_row(q, rk, "d") == pooled->offset_s);
+        double ca = gsl_cdf_gaussian_P(oa, MC_SD), cb = gsl_cdf_gaussian_P(ob, MC_SD);
+        double cc = gsl_cdf_gaussian_P(pooled->offset_s - MC_SHIFT, MC_SD);
+        mc_add(&thin, cc);
+        mc_add(&all, (MC_BIG * (ca + cb) + MC_THIN * cc) / (double)per);
+    }
+    printf("   pooled (rep, *) cells: thin zones %.5f (se %.5f, k/(n+1) = %.5f), all orders %.5f (se %.5f)\n",
+           mc_mean(&thin), mc_se(&thin), (double)kthin / (MC_THIN + 1), mc_mean(&all), mc_se(&all));
+    assert_true(mc_mean(&thin) >= tau - 4 * mc_se(&thin));
+    assert_true(mc_mean(&thin) <= (double)kthin / (MC_THIN + 1) + 4 * mc_se(&thin));
+    assert_true(mc_mean(&all) >= tau - 4 * mc_se(&all));
+    assert_true(mc_mean(&all) <= tau + 1.0 / (MC_THIN + 1) + 4 * mc_se(&all));
+    etacal_quotes_destroy(q);
+    free(buf);
+    free(noise);
+    etacal_table_destroy(t);
+    unlink(path);
+    rmdir(dir);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -294,6 +499,7 @@ int main(void)
         cmocka_unit_test(test_confidence_rank),
         cmocka_unit_test(test_confidence_mc),
         cmocka_unit_test(test_gate_table_law),
+        cmocka_unit_test(test_pooled_thin_cell),
     };
     return cmocka_run_group_tests_name("mc", tests, NULL, NULL);
 }

@@ -107,12 +107,14 @@ static const char *calib_csv = "order_id,zone,pred_s,actual_s\n"
                                "16,south,760,837.4375\n"
                                "17,north,840,859.9\n";
 
-static const char *calib_quotes_csv = "zone,target,method,n,k,offset_s,slope\n"
-                                      "*,0.8,add,17,15,90.5,1\n"
-                                      "*,0.9,add,17,17,120.5,1\n"
-                                      "north,0.8,add,9,8,86.2,1\n"
-                                      "north,0.9,add,9,9,101.376,1\n"
-                                      "south,0.8,add,6,6,120.5,1\n";
+/* The global row takes all 17 rows: the rows left over (east's 2 at .8,
+ * east's and south's 8 at .9) give no finite bound (k = 3 > 2, 9 > 8). */
+static const char *calib_quotes_csv = "zone,target,method,n,k,offset_s,slope,cell\n"
+                                      "*,0.8,add,17,15,90.5,1,all\n"
+                                      "*,0.9,add,17,17,120.5,1,all\n"
+                                      "north,0.8,add,9,8,86.2,1,own\n"
+                                      "north,0.9,add,9,9,101.376,1,own\n"
+                                      "south,0.8,add,6,6,120.5,1,own\n";
 
 static void check_row(const etacal_quotes *q, size_t r, const char *key, size_t target, size_t n,
                       size_t k, double offset, double slope)
@@ -359,9 +361,13 @@ static void test_fit_random_against_brute_force(void **state)
     fixture *f = *state;
     static const char *zones[] = {"west", "north", "east"};
     static const char *veh[] = {"car", "bike"};
-    /* segment sizes chosen to cover own rows, few rows (9 < min_rows 10)
-     * and rank > n (18 rows at .95: ceil(19 * .95) = 19) */
-    static const size_t sizes[3][2] = {{400, 35}, {150, 9}, {60, 18}};
+    /* segment sizes chosen to cover own rows, few rows (9 < min_rows 10),
+     * rank > n (18 rows at .95: ceil(19 * .95) = 19), a zone whose two thin
+     * vehicles (7 + 8 rows) pool into a cell of its own at .8 and .9
+     * (k = 13, 15 of 15) but not at .95 (16 > 15), and a target (.99) at
+     * which the rows left over for the global cell (42) give no finite
+     * bound (ceil(43 * .99) = 43), so that the global row takes all rows */
+    static const size_t sizes[3][2] = {{400, 18}, {150, 9}, {7, 8}};
     tu_rng r = {UINT64_C(2385)};
     size_t total = 0;
     for (int z = 0; z < 3; z++)
@@ -402,9 +408,9 @@ static void test_fit_random_against_brute_force(void **state)
     }
     load(f, text, 2);
     free(text);
-    const double targets[] = {0.95, 0.8, 0.9};
-    const uint64_t tnum[] = {8, 9, 95}, tden[] = {10, 10, 100}; /* sorted: .8 .9 .95 */
-    assert_int_equal(fit(f, 2, ETACAL_METHOD_ADD, targets, 3, 10), ETACAL_OK);
+    const double targets[] = {0.95, 0.8, 0.9, 0.99};
+    const uint64_t tnum[] = {8, 9, 95, 99}, tden[] = {10, 10, 100, 100}; /* sorted: .8 .9 .95 .99 */
+    assert_int_equal(fit(f, 2, ETACAL_METHOD_ADD, targets, 4, 10), ETACAL_OK);
     const etacal_quotes *q = f->q;
     /* the levels of --by zone,vehicle: 6 (zone, vehicle) segments, 3
      * (zone, *) segments and the global one */
@@ -417,56 +423,117 @@ static void test_fit_random_against_brute_force(void **state)
     static const int zorder[3] = {2, 1, 0};
     assert_string_equal(q->segs[0].keys[0], "*");
     assert_string_equal(q->segs[0].keys[1], "*");
+    /* The pooled cells by brute force, per target: a (zone, vehicle)
+     * qualifies with n >= 10 and k <= n; a zone's cell holds its vehicles
+     * that did not qualify, and qualifies the same way; the global cell
+     * holds the zones' cells that did not qualify and needs k <= n only;
+     * without it the global row takes all rows. */
     size_t expect_rows = 0;
-    for (size_t s = 0; s < 10; s++) {
-        const etacal_segment *g = &q->segs[s];
-        double *v;
-        size_t m;
-        int level;
-        if (s == 0) {
-            v = all;
-            m = total;
-            level = 0;
-        } else {
-            int z = zorder[(s - 1) / 3], slot = (int)((s - 1) % 3);
-            assert_string_equal(g->keys[0], zones[z]);
-            if (slot == 0) { /* (zone, *): both vehicles' scores */
-                assert_string_equal(g->keys[1], "*");
-                m = sizes[z][0] + sizes[z][1];
-                v = malloc(m * sizeof *v);
-                memcpy(v, sc[z][0], sizes[z][0] * sizeof *v);
-                memcpy(v + sizes[z][0], sc[z][1], sizes[z][1] * sizeof *v);
-                level = 1;
-                assert_int_equal(g->parent, 0);
-            } else {
-                int ve = slot == 1 ? 1 : 0; /* bike, then car */
-                assert_string_equal(g->keys[1], veh[ve]);
-                v = sc[z][ve];
-                m = sizes[z][ve];
-                level = 2;
-                assert_int_equal(g->parent, s - (size_t)slot); /* its (zone, *) */
+    double *pool = malloc(total * sizeof *pool);
+    double *zpool[3];
+    size_t zn[3];
+    assert_non_null(pool);
+    for (int z = 0; z < 3; z++) {
+        zpool[z] = malloc(total * sizeof(double));
+        assert_non_null(zpool[z]);
+    }
+    int global_rest[4] = {0};
+    for (size_t ti = 0; ti < 4; ti++) {
+#define KRANK(m) (((uint64_t)(m) + 1) * tnum[ti] + tden[ti] - 1) / tden[ti]
+        size_t gn = 0;
+        for (int z = 0; z < 3; z++) {
+            zn[z] = 0;
+            for (int v = 0; v < 2; v++) {
+                size_t m = sizes[z][v];
+                if (m >= 10 && KRANK(m) <= m)
+                    continue;
+                memcpy(zpool[z] + zn[z], sc[z][v], m * sizeof(double));
+                zn[z] += m;
+            }
+            int zq = zn[z] >= 10 && KRANK(zn[z]) <= zn[z];
+            if (!zq) {
+                memcpy(pool + gn, zpool[z], zn[z] * sizeof(double));
+                gn += zn[z];
             }
         }
-        assert_int_equal(g->level, (size_t)level);
-        assert_int_equal(g->n, m);
-        qsort(v, m, sizeof *v, cmp_double);
-        for (size_t ti = 0; ti < 3; ti++) {
-            uint64_t k = ((m + 1) * tnum[ti] + tden[ti] - 1) / tden[ti];
+        global_rest[ti] = gn > 0 && KRANK(gn) <= gn;
+        for (size_t s = 0; s < 10; s++) {
+            const etacal_segment *g = &q->segs[s];
+            double *v;
+            size_t m, cn;
+            int level;
+            if (s == 0) {
+                level = 0;
+                m = total;
+                v = global_rest[ti] ? pool : all;
+                cn = global_rest[ti] ? gn : total;
+                assert_int_equal(g->pool_n[ti], gn);
+            } else {
+                int z = zorder[(s - 1) / 3], slot = (int)((s - 1) % 3);
+                assert_string_equal(g->keys[0], zones[z]);
+                if (slot == 0) { /* (zone, *): its pooled cell */
+                    assert_string_equal(g->keys[1], "*");
+                    m = sizes[z][0] + sizes[z][1];
+                    v = zpool[z];
+                    cn = zn[z];
+                    level = 1;
+                    assert_int_equal(g->parent, 0);
+                } else {
+                    int ve = slot == 1 ? 1 : 0; /* bike, then car */
+                    assert_string_equal(g->keys[1], veh[ve]);
+                    v = sc[z][ve];
+                    m = cn = sizes[z][ve];
+                    level = 2;
+                    assert_int_equal(g->parent, s - (size_t)slot); /* its (zone, *) */
+                }
+                assert_int_equal(g->pool_n[ti], cn);
+            }
+            assert_int_equal(g->level, (size_t)level);
+            assert_int_equal(g->n, m);
+            double *sorted = malloc((cn ? cn : 1) * sizeof *sorted);
+            assert_non_null(sorted);
+            memcpy(sorted, v, cn * sizeof *sorted);
+            qsort(sorted, cn, sizeof *sorted, cmp_double);
+            uint64_t k = KRANK(cn);
             assert_int_equal(g->k[ti], k);
-            int want_status = s == 0       ? ETACAL_OWN_ROW
-                              : m < 10     ? ETACAL_FALLBACK_FEW_ROWS
-                              : k > m      ? ETACAL_FALLBACK_RANK
-                                           : ETACAL_OWN_ROW;
+            int want_status = s == 0                 ? ETACAL_OWN_ROW
+                              : cn == 0              ? ETACAL_FALLBACK_EMPTY
+                              : cn < 10              ? ETACAL_FALLBACK_FEW_ROWS
+                              : k > cn               ? ETACAL_FALLBACK_RANK
+                                                     : ETACAL_OWN_ROW;
             assert_int_equal(g->status[ti], want_status);
-            if (k <= m)
-                assert_same_double(g->score_q[ti], v[k - 1]);
+            if (cn == 0)
+                assert_true(isnan(g->score_q[ti]));
+            else if (k <= cn)
+                assert_same_double(g->score_q[ti], sorted[k - 1]);
             else
                 assert_true(isinf(g->score_q[ti]));
+            free(sorted);
+            if (want_status == ETACAL_OWN_ROW) {
+                /* its row: the cell's n and what the cell is */
+                const etacal_quote *row = NULL;
+                for (size_t i = 0; i < q->nrows; i++)
+                    if (q->rows[i].seg == s && q->rows[i].target == ti)
+                        row = &q->rows[i];
+                assert_non_null(row);
+                assert_int_equal(row->n, cn);
+                assert_int_equal(row->cell, level == 2             ? ETACAL_CELL_OWN
+                                            : level == 1 || global_rest[ti] ? ETACAL_CELL_REST
+                                                                            : ETACAL_CELL_ALL);
+            }
             expect_rows += want_status == ETACAL_OWN_ROW;
         }
-        if (level == 1)
-            free(v);
+#undef KRANK
     }
+    /* the cases the sizes were chosen for */
+    assert_int_equal(global_rest[0] + global_rest[1] + global_rest[2], 3);
+    assert_int_equal(global_rest[3], 0);
+    assert_int_equal(q->segs[1].status[0], ETACAL_OWN_ROW);           /* (east, *) pooled at .8 */
+    assert_int_equal(q->segs[1].status[2], ETACAL_FALLBACK_RANK);     /* but not at .95 */
+    assert_int_equal(q->segs[7].status[1], ETACAL_FALLBACK_EMPTY);    /* (west, *) at .9: both own */
+    free(pool);
+    for (int z = 0; z < 3; z++)
+        free(zpool[z]);
     assert_int_equal(q->nrows, expect_rows);
     for (size_t i = 0; i < q->nrows; i++) {
         const etacal_quote *row = &q->rows[i];
@@ -484,6 +551,102 @@ static void test_fit_random_against_brute_force(void **state)
         for (int v = 0; v < 2; v++)
             free(sc[z][v]);
     free(all);
+}
+
+/* Pooled thin cells by hand (--by zone,vehicle --min-rows 3).  Scores
+ * actual - pred:
+ *   (x, p) 10 20 30 40   (x, q) 100   (x, r) 200 300
+ *   (y, p) 7             (z, p) 1 2 3
+ * At .5: (x, p) own, k = ceil(5 x .5) = 3 -> 30; (x, q) and (x, r) are
+ * thin, their cell (x, *) = {100, 200, 300}, n = 3, k = 2 -> 200; (y, p)
+ * is thin and so is its cell {7}, which goes up: the global cell is {7},
+ * k = 1 -> 7; (z, p) own, k = 2 -> 2, so (z, *) is empty.
+ * At .9: (x, p) k = 5 > 4, (x, *) = all 7 of x, k = 8 > 7; (z, p) k = 4 > 3
+ * and (z, *) = its 3, k = 4 > 3: everything reaches the global cell, all
+ * 11 rows, k = ceil(12 x .9) = 11 -> 300. */
+static const char *pooled_csv = "zone,vehicle,pred_s,actual_s\n"
+                                "x,p,611.5,621.5\n"
+                                "z,p,905.25,906.25\n"
+                                "x,r,700,900\n"
+                                "y,p,1210.125,1217.125\n"
+                                "x,p,533,553\n"
+                                "x,q,812.75,912.75\n"
+                                "z,p,640,642\n"
+                                "x,p,777.5,807.5\n"
+                                "x,r,1020,1320\n"
+                                "z,p,1500.5,1503.5\n"
+                                "x,p,450.25,490.25\n";
+
+static void test_fit_pooled_by_hand(void **state)
+{
+    fixture *f = *state;
+    load(f, pooled_csv, 2);
+    const double targets[] = {0.9, 0.5};
+    assert_int_equal(fit(f, 2, ETACAL_METHOD_ADD, targets, 2, 3), ETACAL_OK);
+    char *buf = NULL;
+    size_t len = 0;
+    FILE *fp = open_memstream(&buf, &len);
+    assert_non_null(fp);
+    assert_int_equal(etacal_quotes_write_csv(f->q, fp, &f->err), ETACAL_OK);
+    fclose(fp);
+    assert_string_equal(buf, "zone,vehicle,target,method,n,k,offset_s,slope,cell\n"
+                             "*,*,0.5,add,1,1,7,1,rest\n"
+                             "*,*,0.9,add,11,11,300,1,rest\n"
+                             "x,*,0.5,add,3,2,200,1,rest\n"
+                             "x,p,0.5,add,4,3,30,1,own\n"
+                             "z,p,0.5,add,3,2,2,1,own\n");
+    free(buf);
+    /* segments: * | x,* x,p x,q x,r | y,* y,p | z,* z,p */
+    const etacal_quotes *q = f->q;
+    assert_int_equal(q->nsegs, 9);
+    static const size_t pool5[] = {1, 3, 4, 1, 2, 1, 1, 0, 3}, pool9[] = {11, 7, 4, 1, 2, 1, 1, 3, 3};
+    static const int st5[] = {ETACAL_OWN_ROW,           ETACAL_OWN_ROW,           ETACAL_OWN_ROW,
+                              ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_FEW_ROWS,
+                              ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_EMPTY,    ETACAL_OWN_ROW};
+    static const int st9[] = {ETACAL_OWN_ROW,           ETACAL_FALLBACK_RANK,     ETACAL_FALLBACK_RANK,
+                              ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_FEW_ROWS,
+                              ETACAL_FALLBACK_FEW_ROWS, ETACAL_FALLBACK_RANK,     ETACAL_FALLBACK_RANK};
+    for (size_t g = 0; g < 9; g++) {
+        assert_int_equal(q->segs[g].pool_n[0], pool5[g]);
+        assert_int_equal(q->segs[g].pool_n[1], pool9[g]);
+        assert_int_equal(q->segs[g].status[0], st5[g]);
+        assert_int_equal(q->segs[g].status[1], st9[g]);
+    }
+    assert_true(isnan(q->segs[7].score_q[0])); /* (z, *) at .5: no rows */
+
+    /* Method ratio follows the same cells: pred 1000 + the scores would give
+     * factors 1 + s/1000; here the factors of the rows' own scores, y/p. */
+    assert_int_equal(fit(f, 2, ETACAL_METHOD_RATIO, targets, 2, 3), ETACAL_OK);
+    assert_int_equal(f->q->nrows, 5);
+    for (size_t r = 0; r < f->q->nrows; r++) {
+        const etacal_quote *row = &f->q->rows[r];
+        assert_int_equal(row->n, f->q->segs[row->seg].pool_n[row->target]);
+    }
+    /* the global row at .9: the largest factor of all 11 rows,
+     * 1320/1020 = 1.294118 (rounded up to 1e-6) */
+    assert_same_double(f->q->rows[1].slope, 1.294118);
+    /* (x, *) at .5: factors 912.75/812.75, 900/700, 1320/1020, the second
+     * smallest: 900/700 = 1.2857143 -> 1.285715 */
+    assert_same_double(f->q->rows[2].slope, 1.285715);
+    /* the global row at .5: (y, p) alone, 1217.125/1210.125 -> 1.005785 */
+    assert_same_double(f->q->rows[0].slope, 1.005785);
+
+    /* Recency weights all 1 give the unweighted cells (the mass tau (1 + n)
+     * is the rank ceil((n+1) tau)). */
+    double w[11];
+    for (size_t i = 0; i < 11; i++)
+        w[i] = 1;
+    static const size_t keys[] = {2, 3};
+    etacal_fit_opts o = {ETACAL_METHOD_ADD, targets, 2, 3, NULL, 0, 0, 0, 0, NULL, w};
+    etacal_quotes *qw = NULL;
+    assert_int_equal(etacal_quotes_fit(f->t, 0, 1, keys, 2, &o, &qw, &f->err), ETACAL_OK);
+    assert_int_equal(qw->nrows, 5);
+    static const double offs[] = {7, 300, 200, 30, 2};
+    for (size_t r = 0; r < 5; r++) {
+        assert_same_double(qw->rows[r].offset_s, offs[r]);
+        assert_int_equal(qw->rows[r].cell, r < 3 ? ETACAL_CELL_REST : ETACAL_CELL_OWN);
+    }
+    etacal_quotes_destroy(qw);
 }
 
 static void test_write_and_read_back(void **state)
@@ -551,9 +714,9 @@ static void test_write_quotes_key_fields(void **state)
     load(f, text, 2);
     const double targets[] = {0.9};
     assert_int_equal(fit(f, 2, ETACAL_METHOD_ADD, targets, 1, 5), ETACAL_OK);
-    /* global, and per zone the (zone, *) level and the (zone, vehicle)
-     * segment (here the same rows: one vehicle per zone) */
-    assert_int_equal(f->q->nrows, 5);
+    /* global, and per zone the (zone, vehicle) segment; the (zone, *)
+     * cells are empty (their one vehicle has a row of its own) */
+    assert_int_equal(f->q->nrows, 3);
     char *buf = NULL;
     size_t len = 0;
     FILE *fp = open_memstream(&buf, &len);
@@ -565,20 +728,20 @@ static void test_write_quotes_key_fields(void **state)
      * 39.75 - 16 i.  Each segment has n = 10, k = ceil(11 * .9) = 10: its
      * largest score, 45.75 and 39.75.  Global: k = ceil(21 * .9) = 19 of
      * 20, the second largest of all: 41.75 ("Old Town", i = 8). */
-    assert_string_equal(buf, "zone,vehicle,target,method,n,k,offset_s,slope\n"
-                             "*,*,0.9,add,20,19,41.75,1\n"
-                             "\" padded \",*,0.9,add,10,10,39.75,1\n"
-                             "\" padded \",car,0.9,add,10,10,39.75,1\n"
-                             "\"Old Town, \"\"North\"\"\",*,0.9,add,10,10,45.75,1\n"
-                             "\"Old Town, \"\"North\"\"\",e-bike,0.9,add,10,10,45.75,1\n");
+    assert_string_equal(buf, "zone,vehicle,target,method,n,k,offset_s,slope,cell\n"
+                             "*,*,0.9,add,20,19,41.75,1,all\n"
+                             "\" padded \",car,0.9,add,10,10,39.75,1,own\n"
+                             "\"Old Town, \"\"North\"\"\",e-bike,0.9,add,10,10,45.75,1,own\n");
     tu_write_text(&f->dir, "q.csv", buf, f->path, sizeof f->path);
     free(buf);
     assert_int_equal(etacal_quotes_read_csv(f->path, 0, &f->q2, &f->err), ETACAL_OK);
-    assert_int_equal(f->q2->nsegs, 5);
+    assert_int_equal(f->q2->nsegs, 3);
     assert_string_equal(f->q2->segs[1].keys[0], " padded ");
-    assert_string_equal(f->q2->segs[1].keys[1], "*");
-    assert_string_equal(f->q2->segs[4].keys[0], "Old Town, \"North\"");
-    assert_string_equal(f->q2->segs[4].keys[1], "e-bike");
+    assert_string_equal(f->q2->segs[1].keys[1], "car");
+    assert_int_equal(f->q2->rows[0].cell, ETACAL_CELL_ALL);
+    assert_string_equal(f->q2->segs[2].keys[0], "Old Town, \"North\"");
+    assert_string_equal(f->q2->segs[2].keys[1], "e-bike");
+    assert_int_equal(f->q2->rows[2].cell, ETACAL_CELL_OWN);
 }
 
 /* ---- the reader ------------------------------------------------------- */
@@ -672,6 +835,28 @@ static void test_read_keeps_file_order(void **state)
 static void test_read_errors(void **state)
 {
     fixture *f = *state;
+    /* the cell column: one of own, rest, all; own on a full key combination,
+     * all on the global row */
+#define CHDR "zone,band,target,method,n,k,offset_s,slope,cell\n"
+    expect_read_error(f, CHDR "*,*,0.9,add,5000,4501,312.125,1,pooled\n", ETACAL_EPARSE, 2,
+                      "'cell' must be own, rest or all, got 'pooled'");
+    expect_read_error(f, CHDR "*,*,0.9,add,5000,4501,312.125,1,all\nnorth,*,0.9,add,900,811,250.25,1,own\n",
+                      ETACAL_EPARSE, 3, "cell 'own' needs a value in every key (a row with '*' keys is 'rest')");
+    expect_read_error(f, CHDR "*,*,0.9,add,5000,4501,312.125,1,all\nnorth,*,0.9,add,900,811,250.25,1,all\n",
+                      ETACAL_EPARSE, 3, "cell 'all' belongs to the global row (every key '*')");
+    assert_int_equal(read_q(f,
+                            CHDR "*,*,0.9,add,150,136,312.125,1,rest\nnorth,*,0.9,add,900,811,250.25,1,rest\n"
+                                 "north,lunch,0.9,add,700,631,201.5,1,own\n",
+                            0),
+                     ETACAL_OK);
+    assert_int_equal(f->q2->rows[0].cell, ETACAL_CELL_REST);
+    assert_int_equal(f->q2->rows[1].cell, ETACAL_CELL_REST);
+    assert_int_equal(f->q2->rows[2].cell, ETACAL_CELL_OWN);
+    /* a key column may be called cell: the column comes before 'target' */
+    assert_int_equal(read_q(f, "cell,target,method,n,k,offset_s,slope\n*,0.9,add,50,46,3.5,1\n", 0), ETACAL_OK);
+    assert_int_equal(f->q2->nkeys, 1);
+    assert_int_equal(f->q2->rows[0].cell, ETACAL_CELL_UNKNOWN);
+#undef CHDR
     expect_read_error(f, "zone,target,method,n,k,offset_s\n*,0.9,add,50,46,3.5\n", ETACAL_EPARSE, 1,
                       "not a quote table: no column 'slope' in the header");
     expect_read_error(f, "zone,target,n,k,offset_s,slope\n*,0.9,50,46,3.5,1\n", ETACAL_EPARSE, 1,
@@ -793,6 +978,7 @@ int main(void)
         T(test_fit_ratio_needs_positive_predictions),
         T(test_fit_errors),
         T(test_fit_random_against_brute_force),
+        T(test_fit_pooled_by_hand),
         T(test_write_and_read_back),
         T(test_write_quotes_key_fields),
         T(test_read_hand_written_table),

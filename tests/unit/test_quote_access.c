@@ -54,6 +54,7 @@ static void test_accessors(void **state)
     assert_int_equal(row.k, 226);
     assert_same_double(row.offset_s, 230.75);
     assert_same_double(row.slope, 0.96875);
+    assert_int_equal(row.cell, ETACAL_CELL_UNKNOWN); /* no 'cell' column */
     assert_same_double(etacal_quotes_row_coef(q, 2, 0), 29.75);
     double lo = 0, hi = 0;
     assert_int_equal(etacal_quotes_row_range(q, 2, 0, &lo, &hi), 1);
