@@ -386,7 +386,7 @@ static int same_table(const etacal_quotes *a, const etacal_quotes *b)
         return 0;
     for (size_t r = 0; r < a->nrows; r++) {
         const etacal_quote *x = &a->rows[r], *y = &b->rows[r];
-        if (x->offset_s != y->offset_s || x->slope != y->slope || x->n != y->n || x->k != y->k || x->cell != y->cell ||
+        if (x->offset_s != y->offset_s || x->slope != y->slope || x->n != y->n || x->k != y->k || (a->nkeys && x->cell != y->cell) ||
             a->targets[x->target] != b->targets[y->target])
             return 0;
         if (!isfinite(x->offset_s) || !isfinite(x->slope))
