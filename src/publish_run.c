@@ -11,6 +11,7 @@
  * practice, no source).  The clock is the caller's (spec->now). */
 #define _GNU_SOURCE
 #include "internal.h"
+#include "textout.h"
 
 #include "etacal/binom.h"
 #include "etacal/io.h"
@@ -532,40 +533,6 @@ static int write_new(work *w, etacal_error *err)
 }
 
 /* ---- the provenance record --------------------------------------------------- */
-
-/* A JSON string, or NULL: *oom set when for want of memory.  A text that
- * is not UTF-8 gives NULL without *oom (its member is left out). */
-static json_t *jstr(const char *s, int *oom)
-{
-    json_t *v = json_string(s);
-    if (!v && utf8_valid(s, strlen(s)))
-        *oom = 1;
-    return v;
-}
-
-/* Sets o[k] = v; a failure for want of memory sets *oom. */
-static void jset(json_t *o, const char *k, json_t *v, int *oom)
-{
-    if (!v)
-        return; /* jstr said why */
-    if (json_object_set_new(o, k, v) != 0)
-        *oom = 1;
-}
-
-static void jpush(json_t *a, json_t *v, int *oom)
-{
-    if (!v)
-        return;
-    if (json_array_append_new(a, v) != 0)
-        *oom = 1;
-}
-
-static json_t *jnew(json_t *v, int *oom)
-{
-    if (!v)
-        *oom = 1;
-    return v;
-}
 
 static json_t *record_input(const etacal_publishspec *s, const etacal_publish_result *r, int *oom)
 {
