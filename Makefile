@@ -53,7 +53,7 @@ BIN      := $(BUILD)/etacal
 CITYGEN  := $(BUILD)/citygen
 
 .PHONY: all deps demo check test unit e2e ref fault asan install uninstall clean golden bench bench-qr format report-check browser \
-        fuzz memcheck failmalloc exports headers
+        fuzz memcheck failmalloc exports headers install-check
 
 all: $(BIN) $(LIB) $(SHLIB)
 
@@ -112,9 +112,14 @@ check:
 	@$(MAKE) --no-print-directory test
 
 test:
-	@$(MAKE) --no-print-directory unit e2e ref fault report-check browser exports headers
+	@$(MAKE) --no-print-directory unit e2e ref fault report-check browser exports headers install-check
 	@$(MAKE) --no-print-directory asan
 	@$(MAKE) --no-print-directory memcheck failmalloc
+
+# make install into a temporary DESTDIR, and examples/embed.c built against
+# it with pkg-config (tests/tools/install.sh).
+install-check: $(BIN) $(LIB) $(SHLIB)
+	@sh tests/tools/install.sh
 
 # libetacal.so exports etacal_* only and has its SONAME.
 exports: $(SHLIB)
