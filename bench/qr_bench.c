@@ -34,7 +34,7 @@ int main(int argc, char **argv)
     size_t n = (size_t)strtoull(argv[1], NULL, 10), p = (size_t)strtoul(argv[2], NULL, 10);
     double tau = strtod(argv[3], NULL);
     const char *csv = NULL;
-    int reps = 1, threads = 0;
+    int reps = 1, threads = ETACAL_THREADS_AUTO;
     unsigned long seed = 0;
     for (int i = 4; i + 1 < argc; i += 2) {
         if (strcmp(argv[i], "--csv") == 0)

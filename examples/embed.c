@@ -16,7 +16,6 @@
  * not a deadline for the courier. */
 #include <etacal/etacal.h>
 
-#include <gsl/gsl_errno.h>
 #include <math.h>
 #include <stdint.h>
 #include <stdio.h>
@@ -37,8 +36,6 @@ static double unif(uint64_t *s) { return (double)(next(s) >> 11) * 0x1.0p-53; }
 
 int main(int argc, char **argv)
 {
-    /* GSL's default error handler aborts; the library reports errors itself. */
-    gsl_set_error_handler_off();
     printf("libetacal %s\n", etacal_version());
 
     static double actual[NROWS], pred[NROWS];

@@ -96,7 +96,7 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
                     w[i] = fitm[i] ? w[i] : 0;
             }
             etacal_fit_opts fo = {o->method, &lv, 1, o->min_rows, o->x_cols, o->nx, o->split, o->seed,
-                                  o->confidence, fitm, w};
+                                  o->confidence, fitm, w, 0};
             etacal_quotes *q = NULL;
             etacal_error e2;
             /* With no calibration row the rank ceil((0+1) level) = 1 > 0:

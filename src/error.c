@@ -1,7 +1,18 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
-/* error.c: filling the caller-owned etacal_error record. */
+/* error.c: filling the caller-owned etacal_error record; and GSL's error
+ * handler, turned off when the library is loaded.
+ *
+ * GSL's default handler aborts the process on an error (a matrix that is
+ * not positive definite, an allocation that fails), while the library
+ * checks every GSL status and reports it as an etacal_error.  So that no
+ * program embedding the library has to remember a call first, the library
+ * turns the handler off itself when it is loaded (a constructor: before
+ * main, for the static library and the shared one alike; this file is
+ * linked into every program that reports an error).  A program that wants
+ * GSL's handler for its own GSL calls sets one after that. */
 #include "internal.h"
 
+#include <gsl/gsl_errno.h>
 #include <stdarg.h>
 #include <stdio.h>
 #include <string.h>
@@ -40,3 +51,9 @@ const char *etacal_strerror(int code)
     default: return "unknown error";
     }
 }
+
+#if defined(__GNUC__)
+__attribute__((constructor)) static void gsl_quiet(void) { gsl_set_error_handler_off(); }
+#else
+#error "a compiler with constructors (GCC, Clang) is needed to turn GSL's aborting handler off at load time"
+#endif

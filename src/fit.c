@@ -114,6 +114,8 @@ int etacal_fitspec_check(const etacal_fitspec *s, etacal_error *err)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "--holdout takes a share in (0,1), such as 0.2");
     if (s->confidence != 0 && !(s->confidence > 0 && s->confidence < 1))
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "--confidence takes a probability in (0,1), such as 0.95");
+    if (s->threads < 0 && s->threads != ETACAL_THREADS_AUTO)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "threads must be 0 or more, or ETACAL_THREADS_AUTO");
     if (!(s->half_life >= 0))
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "--half-life takes a positive duration");
     if (s->time && !s->time[0])
@@ -224,6 +226,7 @@ int etacal_fit_table(const etacal_fitspec *s, const etacal_table *t, etacal_fit_
     fo.split = s->split;
     fo.seed = s->seed;
     fo.confidence = s->confidence;
+    fo.threads = s->threads;
     size_t n = etacal_table_rows(t);
     if (s->holdout > 0) {
         r->has_holdout = 1;

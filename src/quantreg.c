@@ -253,9 +253,9 @@ int etacal_qr_fit(const double *y, const double *const *x, size_t k, const doubl
     if (n <= k + 1)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "%zu rows for %zu coefficients: more rows are needed", n,
                                 k + 1);
-    if (opts->threads < 0)
-        return etacal_error_set(err, ETACAL_EINVAL, NULL, "threads must be 0 (all CPUs) or more, got %d",
-                                opts->threads);
+    if (opts->threads < 0 && opts->threads != ETACAL_THREADS_AUTO)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL,
+                                "threads must be ETACAL_THREADS_AUTO (all CPUs), 0 or more, got %d", opts->threads);
     int pre = opts->preprocess == 1 || (opts->preprocess == 0 && n > 20000);
     design d;
     int rc = ETACAL_OK;
@@ -275,8 +275,8 @@ int etacal_qr_fit(const double *y, const double *const *x, size_t k, const doubl
     }
     double eps = opts->eps > 0 ? opts->eps : 1e-6;
     int maxit = opts->maxit > 0 ? opts->maxit : 500;
-    int nth = opts->threads;
-    if (nth == 0) {
+    int nth = opts->threads == 0 ? 1 : opts->threads;
+    if (nth == ETACAL_THREADS_AUTO) {
         long c = sysconf(_SC_NPROCESSORS_ONLN);
         nth = c > 0 ? (c < QR_MAX_THREADS ? (int)c : QR_MAX_THREADS) : 1;
     }

@@ -378,6 +378,7 @@ static int fit_qr(etacal_quotes *q, const etacal_table *t, const seghier *hs, si
                 etacal_error e2;
                 etacal_qr_opts qo = {0};
                 qo.seed = o->seed;
+                qo.threads = o->threads;
                 int frc = na > p ? etacal_qr_fit(fy, fcols, nx + 1, fw, na, tau, names, &qo, &res, &e2)
                                  : ETACAL_EINVAL;
                 if (frc == ETACAL_ENOMEM) { /* not a reason to fall back: an error */
@@ -725,7 +726,7 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
      *    the range of the scores (two halves at once for large tables; the
      *    compensated sums are merged in row order). */
     int ratio = q->method == ETACAL_METHOD_RATIO;
-    int two = n >= 200000;
+    int two = n >= 200000 && (opts->threads == ETACAL_THREADS_AUTO || opts->threads >= 2);
     size_t mid = two ? n / 2 : n;
     passa pa[2] = {{y, p, mask, 0, mid, ratio, {0, 0}, {0, 0}, {0, 0}, 0, 0, 0, 0, 0},
                    {y, p, mask, mid, n, ratio, {0, 0}, {0, 0}, {0, 0}, 0, 0, 0, 0, 0}};

@@ -23,6 +23,12 @@ enum {
     ETACAL_ENUM = 5    /* a numerical problem (too few rows, no finite result) */
 };
 
+/* A thread count meaning "one thread per online CPU" (where a count of
+ * threads is asked: etacal_read_opts, etacal_fitspec, etacal_qr_opts).  0
+ * and 1 mean the calling thread alone: the library starts no thread unless
+ * the caller asks for more. */
+#define ETACAL_THREADS_AUTO (-1)
+
 /* `where` holds "FILE:LINE" (or "FILE") when the problem has a place in the
  * input, else the empty string; `msg` says what is wrong, without a
  * trailing newline or program name. */

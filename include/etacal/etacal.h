@@ -1,8 +1,11 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* etacal.h: the whole public API of libetacal.
  *
- * Embedders must call gsl_set_error_handler_off() once before using the
- * library: GSL's default handler aborts the process. */
+ * No call is needed before using it: the library turns GSL's aborting
+ * error handler off when it is loaded and reports every GSL failure as an
+ * etacal_error record (a program that wants a GSL handler of its own for its own
+ * GSL calls sets it afterwards).  It starts no threads unless a call's
+ * options ask for them, and keeps no state between calls. */
 #ifndef ETACAL_H
 #define ETACAL_H
 

@@ -54,6 +54,9 @@ typedef struct etacal_fitspec {
     double holdout;            /* 0, or the share of rows held out and scored */
     const char *time;          /* time column (holdout by time, recency); may be NULL */
     double half_life;          /* 0, or the recency half-life in seconds (needs time) */
+    int threads;               /* 0 or 1: the calling thread alone; n, or
+                                  ETACAL_THREADS_AUTO: up to n threads, or one
+                                  per CPU, for the fit (same result) */
 } etacal_fitspec;
 
 /* A specification with the defaults (method add, no keys, no holdout). */

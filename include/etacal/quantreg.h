@@ -29,13 +29,15 @@ typedef struct etacal_qr_opts {
     int maxit;           /* Newton iterations per solve; 0 means 500 */
     int preprocess;      /* 0: auto (on for n > 20000), 1: on, 2: off */
     unsigned long seed;  /* of the preprocessing subsamples */
-    /* Threads for the passes over the rows: 0 (default) one per online CPU
-     * (at most 8), 1 the calling thread only, n at most n.  Fits of fewer
+    /* Threads for the passes over the rows: 0 (default) or 1 the calling
+     * thread only, ETACAL_THREADS_AUTO one per online CPU (at most 8), n at
+     * most n.  Fits of fewer
      * than 16,384 rows always run on the calling thread, and a fit whose
      * helper threads are held up (the CPUs busy with other work) goes on
      * with the calling thread alone.  The rows are cut into chunks of a
      * fixed size and the chunks' sums added in a fixed order, so the answer
-     * is the same bit for bit whatever the number.  Negative: an error. */
+     * is the same bit for bit whatever the number.  Other negative values:
+     * an error. */
     int threads;
 } etacal_qr_opts;
 

@@ -167,6 +167,11 @@ typedef struct etacal_fit_opts {
      * sum_{s_j <= s} w_j >= tau (1 + sum w).  NULL: unweighted.  Methods
      * add and ratio; not with a confidence. */
     const double *weights;
+    /* 0 or 1: the calling thread alone; 2 or more, or ETACAL_THREADS_AUTO:
+     * large fits pass over the rows in two halves at once and the quantile
+     * regressions of method qr use that many threads (same bits either
+     * way). */
+    int threads;
 } etacal_fit_opts;
 
 /* On-time rates of a quote table on held-out rows, overall (segs[0]) and

@@ -55,10 +55,11 @@ typedef struct etacal_read_opts {
      * unknown, as for a pipe).  May be NULL. */
     void (*progress)(void *ud, uint64_t done, uint64_t total);
     void *progress_ud;
-    /* 1: read with one thread.  0 (default): a regular file of 16 MiB or
-     * more is read in two halves at once when there are two or more CPUs
-     * (same result, same messages).  The progress callback is only ever
-     * called from the calling thread. */
+    /* 0 (default) or 1: read with the calling thread alone.  2 or more, or
+     * ETACAL_THREADS_AUTO: a regular file of 16 MiB or more is read in two
+     * halves at once when there are two or more CPUs (same result, same
+     * messages).  The progress callback is only ever called from the
+     * calling thread. */
     int threads;
 } etacal_read_opts;
 

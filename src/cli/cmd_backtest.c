@@ -74,7 +74,8 @@ int cmd_backtest(int argc, char **argv)
     char *keys[MAX_KEYS], *xs[ETACAL_QR_MAX_COVARIATES];
     size_t nkeys = 0, nx = 0, seed = 1;
     etacal_backtest_opts bo = {ETACAL_METHOD_ADD, 0.9, 28 * 86400.0, 86400.0, 200, 0, 0, 0, NULL, 0, 0.5, 1};
-    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
+    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01,
+                          .threads = ETACAL_THREADS_AUTO};
     int c;
     optind = 1;
     opterr = 0;

@@ -514,7 +514,8 @@ int cmd_check(int argc, char **argv)
     co.confidence = 0.95;
     co.ci = ETACAL_CI_WILSON;
     co.min_rows = 30;
-    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
+    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01,
+                          .threads = ETACAL_THREADS_AUTO};
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {

@@ -198,7 +198,8 @@ int cmd_qr(int argc, char **argv)
     memset(&f, 0, sizeof f);
     int sem = ETACAL_SE_POWELL, c;
     double eps = 0;
-    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
+    etacal_read_opts ro = {.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01,
+                          .threads = ETACAL_THREADS_AUTO};
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, ":o:h", longopts, NULL)) != -1) {
@@ -301,6 +302,7 @@ int cmd_qr(int argc, char **argv)
     etacal_qr_opts qo = {0};
     qo.eps = eps;
     qo.seed = (unsigned long)seed;
+    qo.threads = ro.threads; /* --threads: the reading's and the fit's */
     for (size_t ti = 0; ti < f.ntau; ti++) {
         if (n == 0) {
             rc = etacal_error_set(&err, ETACAL_ENUM, path, "no data rows");

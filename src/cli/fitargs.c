@@ -407,7 +407,8 @@ void fit_args_init(fit_args *a)
     a->seed = 1;
     a->split = 0.5;
     a->method = ETACAL_METHOD_ADD;
-    a->ro = (etacal_read_opts){.delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01};
+    a->ro = (etacal_read_opts){
+        .delim = ',', .bad_rows = ETACAL_BAD_ROWS_ERROR, .max_bad_share = 0.01, .threads = ETACAL_THREADS_AUTO};
 }
 
 int fit_option(int c, const char *cmd, fit_args *a)
@@ -485,6 +486,7 @@ void fit_spec(const fit_args *a, etacal_fitspec *s)
     s->holdout = a->holdout;
     s->time = a->timecol;
     s->half_life = a->halflife;
+    s->threads = a->ro.threads;
 }
 
 int fit_args_check(fit_args *a, const char *cmd)

@@ -301,7 +301,7 @@ int read_option(int c, const char *cmd, etacal_read_opts *ro)
         return 0;
     case OPT_THREADS:
         if (strcmp(optarg, "auto") == 0)
-            ro->threads = 0;
+            ro->threads = ETACAL_THREADS_AUTO;
         else if (strcmp(optarg, "1") == 0)
             ro->threads = 1;
         else

@@ -35,7 +35,7 @@ static int fuzz_csv_one(const uint8_t *data, size_t size)
     ro.delim = delims[opt & 3];
     ro.bad_rows = (opt & 8) ? ETACAL_BAD_ROWS_SKIP : ETACAL_BAD_ROWS_ERROR;
     ro.max_bad_share = 0.5;
-    ro.threads = (opt & 16) ? 1 : 0;
+    ro.threads = (opt & 16) ? 1 : ETACAL_THREADS_AUTO;
     etacal_table *t = NULL;
     etacal_error err;
     etacal_error_clear(&err);
@@ -46,7 +46,7 @@ static int fuzz_csv_one(const uint8_t *data, size_t size)
     }
     /* one thread or two: the same rows */
     etacal_read_opts r1 = ro;
-    r1.threads = 1 - ro.threads;
+    r1.threads = ro.threads == 1 ? ETACAL_THREADS_AUTO : 1;
     etacal_table *t1 = NULL;
     etacal_error e1;
     etacal_error_clear(&e1);

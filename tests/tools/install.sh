@@ -47,7 +47,7 @@ fi
 ok "pkg-config: $flags"
 # shellcheck disable=SC2046
 if cc -std=c11 -Wall -Wextra -Werror $(pkg-config --cflags etacal) -o "$dest/embed_shared" examples/embed.c \
-    $(pkg-config --libs etacal) -lgsl -lgslcblas -lm; then
+    $(pkg-config --libs etacal) -lm; then
     ok "examples/embed.c builds with the shared library"
 else
     bad "examples/embed.c with the shared library"

@@ -109,7 +109,7 @@ static void test_same_rows(void **state)
     etacal_table *a = NULL, *b = NULL;
     etacal_error err;
     assert_int_equal(read_with(1, 0, &a, &err), ETACAL_OK);
-    assert_int_equal(read_with(0, 0, &b, &err), ETACAL_OK);
+    assert_int_equal(read_with(ETACAL_THREADS_AUTO, 0, &b, &err), ETACAL_OK);
     assert_int_equal(etacal_table_rows(a), rows);
     assert_int_equal(etacal_table_rows(b), rows);
     assert_memory_equal(etacal_table_num(a, 0), etacal_table_num(b, 0), rows * sizeof(double));
@@ -146,7 +146,7 @@ static void test_error_line_second_half(void **state)
     etacal_error err;
     assert_int_equal(read_with(1, 0, &t, &err), ETACAL_EPARSE);
     assert_string_equal(err.where, want);
-    assert_int_equal(read_with(0, 0, &t, &err), ETACAL_EPARSE);
+    assert_int_equal(read_with(ETACAL_THREADS_AUTO, 0, &t, &err), ETACAL_EPARSE);
     assert_string_equal(err.where, want);
     assert_non_null(strstr(err.msg, "not numeric"));
     assert_null(t);
@@ -160,12 +160,12 @@ static void test_first_error_wins(void **state)
     snprintf(want, sizeof want, "%s:%zu", path, line);
     etacal_table *t = NULL;
     etacal_error err;
-    assert_int_equal(read_with(0, 0, &t, &err), ETACAL_EPARSE);
+    assert_int_equal(read_with(ETACAL_THREADS_AUTO, 0, &t, &err), ETACAL_EPARSE);
     assert_string_equal(err.where, want);
     /* skipped and counted the same way by both reads */
     etacal_table *a = NULL, *b = NULL;
     assert_int_equal(read_with(1, 1, &a, &err), ETACAL_OK);
-    assert_int_equal(read_with(0, 1, &b, &err), ETACAL_OK);
+    assert_int_equal(read_with(ETACAL_THREADS_AUTO, 1, &b, &err), ETACAL_OK);
     assert_int_equal(etacal_table_stats(a)->bad, 2);
     assert_int_equal(etacal_table_stats(b)->bad, 2);
     assert_int_equal(etacal_table_stats(a)->first_bad_line, line);
@@ -188,7 +188,7 @@ static void test_wide_keys(void **state)
     etacal_table *a = NULL, *b = NULL;
     etacal_error err;
     assert_int_equal(read_with(1, 0, &a, &err), ETACAL_OK);
-    assert_int_equal(read_with(0, 0, &b, &err), ETACAL_OK);
+    assert_int_equal(read_with(ETACAL_THREADS_AUTO, 0, &b, &err), ETACAL_OK);
     assert_int_equal(etacal_table_key_count(a, 2), 80000);
     assert_int_equal(etacal_table_key_count(b, 2), 80000);
     int wa = 0, wb = 0;
@@ -232,14 +232,14 @@ static void test_split_inside_quotes(void **state)
     etacal_error ea, eb;
     /* the bad last row: both reads name the same physical line */
     assert_int_equal(read_with(1, 0, &a, &ea), ETACAL_EPARSE);
-    assert_int_equal(read_with(0, 0, &b, &eb), ETACAL_EPARSE);
+    assert_int_equal(read_with(ETACAL_THREADS_AUTO, 0, &b, &eb), ETACAL_EPARSE);
     assert_string_equal(ea.where, eb.where);
     char want[160];
     snprintf(want, sizeof want, "%s:%zu", path, (size_t)(1 + 300000 + 400001 + 50000 + 1));
     assert_string_equal(eb.where, want);
     /* skipping it, the same rows either way */
     assert_int_equal(read_with(1, 1, &a, &ea), ETACAL_OK);
-    assert_int_equal(read_with(0, 1, &b, &eb), ETACAL_OK);
+    assert_int_equal(read_with(ETACAL_THREADS_AUTO, 1, &b, &eb), ETACAL_OK);
     assert_int_equal(etacal_table_rows(a), rows);
     assert_int_equal(etacal_table_rows(b), rows);
     assert_memory_equal(etacal_table_num(a, 0), etacal_table_num(b, 0), rows * sizeof(double));

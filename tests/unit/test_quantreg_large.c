@@ -177,7 +177,7 @@ static void test_bad_values_large(void **state)
     assert_non_null(strstr(err.msg, "collinear"));
     d.x[2] = keep;
     free(flat);
-    o.threads = -1;
+    o.threads = -2;
     assert_int_equal(etacal_qr_fit(d.y, (const double *const *)d.x, K, d.w, d.n, 0.9, names, &o, &r, &err),
                      ETACAL_EINVAL);
     assert_non_null(strstr(err.msg, "threads"));
