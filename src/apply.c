@@ -4,7 +4,8 @@
  * Records are copied through byte for byte (csvstream's raw mode), so the
  * output differs from the input only by the appended promise columns.  Only
  * one record is held at a time: memory is flat in the number of orders. */
-#include "internal.h"
+#include "base.h"
+#include "csvio.h"
 
 #include <math.h>
 #include <stdlib.h>

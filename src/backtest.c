@@ -9,7 +9,7 @@
  * late; either way the level keeps moving, so that (their Lemma 4.1) it
  * stays in [-gamma, 1 + gamma] and the long-run miss rate obeys their
  * Prop. 4.1. */
-#include "internal.h"
+#include "base.h"
 
 #include <math.h>
 #include <stdlib.h>

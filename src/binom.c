@@ -3,7 +3,7 @@
  * that Newcombe (1998, Statistics in Medicine 17:857-872) recommends and
  * compares (his methods 3 and 5); the lower tails of the binomial and
  * Beta-binomial laws, for the gate of check. */
-#include "internal.h"
+#include "base.h"
 
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_sf_gamma.h>

@@ -6,7 +6,8 @@
  * tests of each figure, binomial at the nominal level or, with the quote
  * table that made the promises, Beta-binomial under the law of each served
  * row's bound (Vovk 2012), and Holm's (1979) correction across them. */
-#include "internal.h"
+#include "base.h"
+#include "segment.h"
 
 #include <math.h>
 #include <stdlib.h>

@@ -5,7 +5,7 @@
  * The conformal bound is the ceil((n+1) tau)-th smallest score (Vovk et al.
  * 2005; Lei et al. 2018), which is Hyndman & Fan's (1996) type 1 quantile at
  * level tau of the scores together with one score at +infinity. */
-#include "internal.h"
+#include "base.h"
 
 #include <gsl/gsl_cdf.h>
 #include <math.h>

@@ -2,7 +2,7 @@
 /* csv_out.c: writing records copied through from the input, and numbers
  * of seconds to the millisecond, for the streaming commands (apply, qr
  * --predict). */
-#include "internal.h"
+#include "base.h"
 
 #include <math.h>
 #include <string.h>

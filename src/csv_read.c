@@ -8,7 +8,8 @@
  * acceptable is the staged row appended, so a bad or skipped row leaves no
  * trace in the columns. */
 #define _DEFAULT_SOURCE
-#include "internal.h"
+#include "base.h"
+#include "csvio.h"
 #include "table_impl.h"
 
 #include <math.h>

@@ -8,7 +8,8 @@
  * reported at its CR and followed by an empty row at the LF, and a blank
  * line is an empty row.  Counting the LFs of empty rows and of record ends,
  * plus the LFs inside quoted fields, gives the physical line of each record. */
-#include "internal.h"
+#include "base.h"
+#include "csvio.h"
 
 #include <csv.h>
 #include <errno.h>

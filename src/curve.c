@@ -2,7 +2,7 @@
 /* curve.c: the cost curve of on-time targets from a quote table fitted at
  * a grid of targets and its held-out counts (holdout.c).  The on-time rates
  * carry Wilson (1927) intervals (binom.c). */
-#include "internal.h"
+#include "base.h"
 
 #include <math.h>
 #include <stdlib.h>

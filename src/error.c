@@ -10,7 +10,7 @@
  * main, for the static library and the shared one alike; this file is
  * linked into every program that reports an error).  A program that wants
  * GSL's handler for its own GSL calls sets one after that. */
-#include "internal.h"
+#include "base.h"
 
 #include <gsl/gsl_errno.h>
 #include <stdarg.h>

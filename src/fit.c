@@ -1,7 +1,8 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* fit.c: the fit specification, its checks, and one fit run (read, hold
  * out, weigh, fit, score) shared by every command and binding (fit.h). */
-#include "internal.h"
+#include "base.h"
+#include "quote_internal.h"
 
 #include <stdlib.h>
 #include <string.h>

@@ -3,7 +3,7 @@
  * held-out row gets the promise that etacal apply would give it (the most
  * specific matching row), and the rows on time are counted overall and per
  * segment. */
-#include "internal.h"
+#include "base.h"
 
 #include <gsl/gsl_rng.h>
 #include <math.h>

@@ -2,7 +2,7 @@
 /* io.c: output files that appear whole or not at all (temporary file in the
  * same directory, fsync, rename, fsync of the directory). */
 #define _GNU_SOURCE
-#include "internal.h"
+#include "base.h"
 
 #include <errno.h>
 #include <fcntl.h>

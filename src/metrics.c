@@ -1,6 +1,6 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* metrics.c: pinball loss and interval score (formulas in metrics.h). */
-#include "internal.h"
+#include "base.h"
 
 double etacal_pinball(double y, double q, double tau)
 {

@@ -8,7 +8,7 @@
  * "How to read floating point numbers accurately", PLDI 1990).  Anything
  * longer goes to strtod_l in the C locale, which glibc rounds correctly. */
 #define _GNU_SOURCE
-#include "internal.h"
+#include "base.h"
 
 #include <locale.h>
 #include <math.h>

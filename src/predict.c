@@ -7,7 +7,8 @@
  * it; common practice, no source), and predictions can be floored (a
  * duration is never below 0: raising a quantile to a lower bound of the
  * response's support never increases its pinball loss). */
-#include "internal.h"
+#include "base.h"
+#include "csvio.h"
 
 #include <math.h>
 #include <string.h>

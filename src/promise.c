@@ -13,7 +13,7 @@
  * (quote.c), and the calibration scores are computed with the same clamping,
  * so the split-conformal guarantee is that of the clamped formula exactly.
  * A promise is a duration: whatever the formula gives, never below 0. */
-#include "internal.h"
+#include "base.h"
 
 #include <math.h>
 

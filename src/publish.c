@@ -2,7 +2,7 @@
 /* publish.c: SHA-256, the reference order, the comparison of two quote
  * tables, the publisher's lock and the copy of the previous table. */
 #define _GNU_SOURCE
-#include "internal.h"
+#include "base.h"
 
 #include "etacal/conformal.h"
 #include "etacal/io.h"

@@ -10,7 +10,7 @@
  * change guard compares promises at one reference order (medians: common
  * practice, no source).  The clock is the caller's (spec->now). */
 #define _GNU_SOURCE
-#include "internal.h"
+#include "base.h"
 #include "textout.h"
 
 #include "etacal/binom.h"

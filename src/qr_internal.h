@@ -9,7 +9,7 @@
 #ifndef ETACAL_QR_INTERNAL_H
 #define ETACAL_QR_INTERNAL_H
 
-#include "internal.h"
+#include "base.h"
 
 #include <stdatomic.h>
 #include <stdint.h>

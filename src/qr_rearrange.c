@@ -1,7 +1,7 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* qr_rearrange.c: the monotone rearrangement of predicted quantiles
  * (Chernozhukov, Fernandez-Val & Galichon 2010), so that they never cross. */
-#include "internal.h"
+#include "base.h"
 
 #include <math.h>
 #include <string.h>

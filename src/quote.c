@@ -8,7 +8,9 @@
  * holds within each segment; Lei et al. 2018).  Scores are laid out by
  * segment with one counting sort, so each bound is a selection inside one
  * contiguous slice: O(n) per segment and target, no full sort. */
-#include "internal.h"
+#include "base.h"
+#include "segment.h"
+#include "quote_internal.h"
 
 #include <gsl/gsl_rng.h>
 #include <math.h>

@@ -2,7 +2,7 @@
 /* quote_access.c: read access to a quote table for programs outside the
  * library (quote.h's accessors), so that the table's layout in memory can
  * change without breaking them.  Indices out of range give 0, NaN or NULL. */
-#include "internal.h"
+#include "base.h"
 
 #include <math.h>
 

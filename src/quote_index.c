@@ -7,7 +7,7 @@
  * packed into a few bytes and looked up in one more dictionary.  A lookup
  * hashes each key text once and then walks the levels up without building
  * any text, and without allocating. */
-#include "internal.h"
+#include "base.h"
 
 #include <stdlib.h>
 #include <string.h>

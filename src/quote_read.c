@@ -9,7 +9,9 @@
  * global row), no
  * duplicate rows and a global row for every target.  Every defect is
  * reported with the line of the row (or header) that has it. */
-#include "internal.h"
+#include "base.h"
+#include "csvio.h"
+#include "quote_internal.h"
 
 #include <math.h>
 #include <stdlib.h>

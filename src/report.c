@@ -5,7 +5,7 @@
  * intervals (curve.c), the binomial bands of the calibration chart
  * (etacal_binom_range), the rolling-origin backtest (backtest.c).  The only
  * counting done here is the residual histogram, a summary for the eye. */
-#include "internal.h"
+#include "base.h"
 
 #include <math.h>
 #include <stdlib.h>

@@ -4,7 +4,7 @@
  * held-out counts, the cost curve and the backtest, handed to
  * etacal_report_write_html and written to a file that appears whole.  The
  * page itself is report.c's; this file only gathers what it draws. */
-#include "internal.h"
+#include "base.h"
 
 #include <math.h>
 #include <stdarg.h>

@@ -15,7 +15,7 @@
  * through the mixing function with Stafford's "variant 13" constants
  * 0xbf58476d1ce4e5b9 and 0x94d049bb133111eb and shifts 30, 27, 31, as in
  * Vigna's reference splitmix64.c and Java's java.util.SplittableRandom. */
-#include "internal.h"
+#include "base.h"
 
 uint64_t etacal_seed_stream(uint64_t seed, unsigned stream)
 {

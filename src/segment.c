@@ -4,7 +4,8 @@
  * the global segment ("*" in every key).  A row's segment is found again
  * from its key ids through a map from their mixed-radix code, so no
  * per-row array is kept. */
-#include "internal.h"
+#include "base.h"
+#include "segment.h"
 
 #include <stdlib.h>
 #include <string.h>

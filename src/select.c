@@ -6,7 +6,7 @@
  * to whole seconds, shrink the range as fast as distinct data.  After too
  * many rounds without progress it sorts what is left, which bounds the
  * worst case at O(n log n) (the idea of introselect, Musser 1997). */
-#include "internal.h"
+#include "base.h"
 
 #include <stdlib.h>
 

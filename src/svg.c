@@ -4,7 +4,7 @@
  * rounded up to 7); tick steps are 1, 2 or 5 times a power of ten (common
  * practice, no source); the palette is Okabe & Ito's (2008, "Color
  * universal design"), each colour with its own dash pattern and marker. */
-#include "internal.h"
+#include "base.h"
 
 #include <math.h>
 #include <stdint.h>

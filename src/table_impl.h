@@ -5,7 +5,7 @@
 #ifndef ETACAL_TABLE_IMPL_H
 #define ETACAL_TABLE_IMPL_H
 
-#include "internal.h"
+#include "base.h"
 
 #include <stdlib.h>
 

@@ -7,7 +7,7 @@
  * reserved key values, the same policy for missing values; only the place
  * in a message is a row index instead of a file line.  Every value is
  * checked before anything is kept, so a bad row leaves no table behind. */
-#include "internal.h"
+#include "base.h"
 #include "table_impl.h"
 
 #include <math.h>

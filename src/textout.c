@@ -1,7 +1,7 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* textout.c: the aligned text table and the checked JSON building that the
  * library's result writers share (textout.h). */
-#include "internal.h"
+#include "base.h"
 #include "textout.h"
 
 #include <math.h>

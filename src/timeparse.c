@@ -4,7 +4,7 @@
  * ("chrono-compatible low-level date algorithms", public domain), exact for
  * the proleptic Gregorian calendar; no libc time functions, so the process
  * time zone and locale never matter. */
-#include "internal.h"
+#include "base.h"
 
 #include <math.h>
 #include <stdio.h>

@@ -1,7 +1,7 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* util.c: growing arrays, the string dictionary behind key columns, and
  * exact rank arithmetic on decimal levels. */
-#include "internal.h"
+#include "base.h"
 
 #include <float.h>
 #include <math.h>

@@ -4,7 +4,7 @@
  * through an output file that appears whole or not at all.  A path is taken
  * as it is ("-" names a file called "-"; standard output is the caller's
  * business). */
-#include "internal.h"
+#include "base.h"
 
 #include <string.h>
 

@@ -42,5 +42,20 @@ for h in include/etacal/*.h; do
         skip=$((skip + 1))
     fi
 done
+# The library's private headers (src/*.h), split by layer: each compiles on
+# its own too, so that a module can include just the layers it uses.
+deps=$(pkg-config --cflags gsl jansson 2>/dev/null)
+for h in src/*.h; do
+    name=$(basename "$h")
+    printf '#include "%s"\nint etacal_private_header_test;\n' "$name" >"$work/one.c"
+    # shellcheck disable=SC2086
+    if "$cc" -std=c11 -D_POSIX_C_SOURCE=200809L -Wall -Wextra $werror -Iinclude -Isrc $deps -c "$work/one.c" \
+        -o "$work/one.o" 2>"$work/err"; then
+        pass=$((pass + 1))
+    else
+        echo "FAIL: $h does not compile on its own as C11:"; sed 's/^/  /' "$work/err"
+        fail=$((fail + 1))
+    fi
+done
 echo "headers: $pass passed, $fail failed, $skip skipped"
 [ "$fail" = 0 ]
