@@ -43,7 +43,7 @@ static void test_hand_example(void **state)
         heldmask[i] = h[i] != 0;
     }
     double targets[2] = {0.5, 0.8};
-    etacal_fit_opts fo = {ETACAL_METHOD_ADD, targets, 2, 1, NULL, 0, 0, 0, 0, fitmask, NULL};
+    etacal_fit_opts fo = {ETACAL_METHOD_ADD, targets, 2, 1, NULL, 0, 0, 0, 0, fitmask, NULL, 0};
     etacal_quotes *q = NULL;
     assert_int_equal(etacal_quotes_fit(t, 0, 1, NULL, 0, &fo, &q, &err), ETACAL_OK);
     etacal_holdout ho;

@@ -122,7 +122,7 @@ static void test_guarantee_through_fit(void **state)
     assert_int_equal(etacal_table_read_csv(path, cols, 3, NULL, &t, &err), ETACAL_OK);
     size_t keys[] = {2};
     double targets[] = {tau};
-    etacal_fit_opts fo = {ETACAL_METHOD_ADD, targets, 1, per, NULL, 0, 0, 0, 0, NULL, NULL};
+    etacal_fit_opts fo = {ETACAL_METHOD_ADD, targets, 1, per, NULL, 0, 0, 0, 0, NULL, NULL, 0};
     etacal_quotes *q = NULL;
     assert_int_equal(etacal_quotes_fit(t, 0, 1, keys, 1, &fo, &q, &err), ETACAL_OK);
     assert_int_equal(q->nsegs, nseg + 1);
@@ -397,7 +397,7 @@ static void test_pooled_thin_cell(void **state)
      *    every replication's thin zone goes up to the global cell, which
      *    holds exactly the 200 x 150 thin rows: one draw of Beta(k, N+1-k),
      *    N = 30000, sd sqrt(.9 x .1 / 30001) ~ .0017. */
-    etacal_fit_opts fo = {ETACAL_METHOD_ADD, targets, 1, 0, NULL, 0, 0, 0, 0, NULL, NULL};
+    etacal_fit_opts fo = {ETACAL_METHOD_ADD, targets, 1, 0, NULL, 0, 0, 0, 0, NULL, NULL, 0};
     etacal_quotes *q = NULL;
     assert_int_equal(etacal_quotes_fit(t, 0, 1, keys, 2, &fo, &q, &err), ETACAL_OK);
     const etacal_quote *gl = mc_row(q, "*", "*");

@@ -74,7 +74,7 @@ static int fit(fixture *f, size_t nkeys, int method, const double *targets, size
                size_t min_rows)
 {
     static const size_t keys[] = {2, 3};
-    etacal_fit_opts o = {method, targets, ntargets, min_rows, NULL, 0, 0, 0, 0, NULL, NULL};
+    etacal_fit_opts o = {method, targets, ntargets, min_rows, NULL, 0, 0, 0, 0, NULL, NULL, 0};
     etacal_quotes_destroy(f->q);
     f->q = NULL;
     etacal_error_clear(&f->err);
@@ -339,7 +339,7 @@ static void test_fit_errors(void **state)
 
     /* Columns of the wrong type. */
     load(f, calib_csv, 1);
-    etacal_fit_opts o = {ETACAL_METHOD_ADD, t8, 1, 5, NULL, 0, 0, 0, 0, NULL, NULL};
+    etacal_fit_opts o = {ETACAL_METHOD_ADD, t8, 1, 5, NULL, 0, 0, 0, 0, NULL, NULL, 0};
     const size_t notkey[] = {1};
     assert_int_equal(etacal_quotes_fit(f->t, 0, 1, notkey, 1, &o, &f->q, &f->err), ETACAL_EINVAL);
     assert_error(&f->err, ETACAL_EINVAL, "", "'pred_s' is not a key column");
@@ -637,7 +637,7 @@ static void test_fit_pooled_by_hand(void **state)
     for (size_t i = 0; i < 11; i++)
         w[i] = 1;
     static const size_t keys[] = {2, 3};
-    etacal_fit_opts o = {ETACAL_METHOD_ADD, targets, 2, 3, NULL, 0, 0, 0, 0, NULL, w};
+    etacal_fit_opts o = {ETACAL_METHOD_ADD, targets, 2, 3, NULL, 0, 0, 0, 0, NULL, w, 0};
     etacal_quotes *qw = NULL;
     assert_int_equal(etacal_quotes_fit(f->t, 0, 1, keys, 2, &o, &qw, &f->err), ETACAL_OK);
     assert_int_equal(qw->nrows, 5);

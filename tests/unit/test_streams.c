@@ -103,7 +103,7 @@ static void test_holdout_and_split_independent(void **state)
          * one number per row of the table, held out or not, so the fit
          * without a mask shows where the held-out rows would have gone) */
         double tau = 0.9;
-        etacal_fit_opts o = {ETACAL_METHOD_QR, &tau, 1, 0, NULL, 0, 0.5, seed, 0, mask, NULL};
+        etacal_fit_opts o = {ETACAL_METHOD_QR, &tau, 1, 0, NULL, 0, 0.5, seed, 0, mask, NULL, 0};
         etacal_quotes *q = NULL, *q0 = NULL;
         assert_int_equal(etacal_quotes_fit(t, 0, 1, NULL, 0, &o, &q, &err), ETACAL_OK);
         o.mask = NULL;

@@ -40,7 +40,7 @@ static etacal_quotes *fit_scores(const double *s, size_t n, const double *w, con
     etacal_error err;
     assert_int_equal(etacal_table_read_csv(path, cols, 2, NULL, &t, &err), ETACAL_OK);
     unlink(path);
-    etacal_fit_opts o = {ETACAL_METHOD_ADD, targets, nt, 1, NULL, 0, 0, 0, 0, NULL, w};
+    etacal_fit_opts o = {ETACAL_METHOD_ADD, targets, nt, 1, NULL, 0, 0, 0, 0, NULL, w, 0};
     etacal_quotes *q = NULL;
     int rc = etacal_quotes_fit(t, 0, 1, NULL, 0, &o, &q, &err);
     etacal_table_destroy(t);
