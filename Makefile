@@ -45,6 +45,9 @@ HDRS    := $(wildcard include/etacal/*.h) $(wildcard src/*.h) $(wildcard src/cli
 UNIT_SRC := $(wildcard tests/unit/test_*.c)
 UNIT_BIN := $(UNIT_SRC:tests/unit/%.c=$(BUILD)/tests/%)
 LIB      := $(BUILD)/libetacal.a
+# The same objects as a plain archive, internal symbols included, for the
+# unit tests, the reference calculator and the fuzz targets only.
+TLIB     := $(BUILD)/libetacal-internal.a
 SOVER    := 0
 SONAME   := libetacal.so.$(SOVER)
 SOFILE   := libetacal.so.$(SOVER).1.0
@@ -68,7 +71,16 @@ $(BUILD)/obj/%.o: src/%.c $(HDRS)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(LIB_CFLAGS) -c $< -o $@
 
+# libetacal.a holds one object, linked from all of the library's, whose
+# hidden symbols (every name that is not etacal_*) are made local: a
+# program linking it statically cannot clash with grow_array or strdict_*.
 $(LIB): $(LIB_OBJ)
+	@rm -f $@
+	$(CC) -nostdlib -r -o $(BUILD)/libetacal-one.o $(LIB_OBJ)
+	objcopy --localize-hidden $(BUILD)/libetacal-one.o
+	ar rcs $@ $(BUILD)/libetacal-one.o
+
+$(TLIB): $(LIB_OBJ)
 	@rm -f $@
 	ar rcs $@ $^
 
@@ -86,9 +98,9 @@ $(CITYGEN): examples/citygen.c
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) -o $@ $< $(LDFLAGS) -lm
 
-$(BUILD)/tests/%: tests/unit/%.c $(wildcard tests/unit/*.h) $(LIB)
+$(BUILD)/tests/%: tests/unit/%.c $(wildcard tests/unit/*.h) $(TLIB)
 	@mkdir -p $(dir $@)
-	$(CC) $(ALL_CFLAGS) $(CMOCKA_CFLAGS) -Itests/unit -o $@ $< $(LIB) $(CMOCKA_LIBS) $(LDLIBS_ALL)
+	$(CC) $(ALL_CFLAGS) $(CMOCKA_CFLAGS) -Itests/unit -o $@ $< $(TLIB) $(CMOCKA_LIBS) $(LDLIBS_ALL)
 
 # the replay of the fuzz corpora includes the targets' sources
 $(BUILD)/tests/test_fuzz_replay: $(wildcard tests/fuzz/*.c tests/fuzz/*.h)
@@ -97,9 +109,9 @@ $(BUILD)/quantgen: tests/tools/quantgen.c
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) -o $@ $< $(LDFLAGS) -lm
 
-$(BUILD)/tests/refcalc: tests/ref/refcalc.c $(LIB)
+$(BUILD)/tests/refcalc: tests/ref/refcalc.c $(TLIB)
 	@mkdir -p $(dir $@)
-	$(CC) $(ALL_CFLAGS) -o $@ $< $(LIB) $(LDLIBS_ALL)
+	$(CC) $(ALL_CFLAGS) -o $@ $< $(TLIB) $(LDLIBS_ALL)
 
 # ---- tests ---------------------------------------------------------------
 # The whole suite, then the same under ASan + UBSan, a subset under valgrind
@@ -122,7 +134,7 @@ install-check: $(BIN) $(LIB) $(SHLIB)
 	@sh tests/tools/install.sh
 
 # libetacal.so exports etacal_* only and has its SONAME.
-exports: $(SHLIB)
+exports: $(SHLIB) $(LIB)
 	@sh tests/tools/exports.sh $(BUILD) $(SONAME)
 
 # Every public header compiles on its own, as C11 and (with a C++ compiler) C++11.
@@ -229,10 +241,10 @@ FUZZ_SAN     := -fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit
 fuzz:
 	@command -v $(FUZZ_CC) >/dev/null 2>&1 || { echo "SKIP fuzz: $(FUZZ_CC) is not installed (scripts/deps.sh --oracles installs clang)"; exit 0; }; \
 	$(MAKE) --no-print-directory BUILD=$(FUZZ_BUILD) CC=$(FUZZ_CC) \
-	  SAN="$(FUZZ_SAN) -fsanitize=fuzzer-no-link -DETACAL_PARALLEL_MIN=64" $(FUZZ_BUILD)/libetacal.a && \
+	  SAN="$(FUZZ_SAN) -fsanitize=fuzzer-no-link -DETACAL_PARALLEL_MIN=64" $(FUZZ_BUILD)/libetacal-internal.a && \
 	for t in $(FUZZ_TARGETS); do \
 	  $(FUZZ_CC) $(ALL_CFLAGS) $(FUZZ_SAN) -fsanitize=fuzzer -o $(FUZZ_BUILD)/fuzz_$$t tests/fuzz/fuzz_$$t.c \
-	    $(FUZZ_BUILD)/libetacal.a $(LDLIBS_ALL) || exit 1; \
+	    $(FUZZ_BUILD)/libetacal-internal.a $(LDLIBS_ALL) || exit 1; \
 	done; \
 	for t in $(FUZZ_TARGETS); do \
 	  mkdir -p $(FUZZ_BUILD)/corpus/$$t; \

@@ -1,6 +1,7 @@
 #!/bin/sh
 # SPDX-License-Identifier: GPL-3.0-or-later
-# exports.sh BUILD SONAME: the shared library exports the public API only.
+# exports.sh BUILD SONAME: the shared and the static library export the
+# public API only.
 # Every defined dynamic symbol of BUILD/libetacal.so.0* must be etacal_*
 # (the library's objects are built with -fvisibility=hidden and the public
 # headers mark their declarations visible), at least one must be (a library
@@ -29,6 +30,22 @@ else
     echo "FAIL: $lib exports $n etacal_* symbols and these others:"
     printf '%s\n' "$bad" | sed 's/^/  /'
     fail=$((fail + 1))
+fi
+# the static library's global symbols (defined, of any kind) are etacal_*
+# too: the Makefile links its objects into one and makes the hidden ones
+# local, so a program linking libetacal.a cannot clash with its helpers
+if [ -f "$build/libetacal.a" ]; then
+    sglob=$(nm -g --defined-only "$build/libetacal.a" 2>/dev/null | awk 'NF == 3 {print $3}')
+    sbad=$(printf '%s\n' "$sglob" | grep -v '^etacal_' | grep -v '^$' || true)
+    sn=$(printf '%s\n' "$sglob" | grep -c '^etacal_')
+    if [ -z "$sbad" ] && [ "$sn" -gt 0 ]; then
+        echo "ok: $build/libetacal.a defines $sn global symbols, all etacal_*"
+        pass=$((pass + 1))
+    else
+        echo "FAIL: $build/libetacal.a defines these global symbols besides etacal_*:"
+        printf '%s\n' "$sbad" | sed 's/^/  /'
+        fail=$((fail + 1))
+    fi
 fi
 # every function the public headers declare is among them
 want=$(cat include/etacal/*.h | tr '\n' ' ' | grep -o 'etacal_[a-z0-9_]* *(' | sed 's/ *($//' | sort -u)
