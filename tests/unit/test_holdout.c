@@ -64,7 +64,9 @@ static etacal_table *time_table(const double *tm, size_t n)
  * share .25: ceil(7.5) = 8th = 789.75 -> 2
  * share .15: ceil(8.5) = 9th = 999.875 -> 1 (1234.5)
  * share .45: ceil(5.5) = 6th = 789.75 -> 2: the tie keeps all three in
- * share .55: ceil(4.5) = 5th = 600 -> 5 (the three 789.75, 999.875, 1234.5) */
+ * share .55: ceil(4.5) = 5th = 600 -> 5 (the three 789.75, 999.875, 1234.5)
+ * share .2: 10 x .8 = 8 exactly, the 8th = 789.75 -> 2 (not the 9th: 1)
+ * share .5: 10 x .5 = 5 exactly, the 5th = 600 -> 5 (not the 6th: 2) */
 static void test_time_mask_by_hand(void **state)
 {
     (void)state;
@@ -79,7 +81,8 @@ static void test_time_mask_by_hand(void **state)
     } cases[] = {
         {0.3, 2, {1, 1, 1, 1, 1, 1, 1, 0, 1, 0}},  {0.25, 2, {1, 1, 1, 1, 1, 1, 1, 0, 1, 0}},
         {0.15, 1, {1, 1, 1, 1, 1, 1, 1, 0, 1, 1}}, {0.45, 2, {1, 1, 1, 1, 1, 1, 1, 0, 1, 0}},
-        {0.55, 5, {1, 1, 1, 0, 1, 0, 0, 0, 1, 0}},
+        {0.55, 5, {1, 1, 1, 0, 1, 0, 0, 0, 1, 0}}, {0.2, 2, {1, 1, 1, 1, 1, 1, 1, 0, 1, 0}},
+        {0.5, 5, {1, 1, 1, 0, 1, 0, 0, 0, 1, 0}},
     };
     for (size_t c = 0; c < sizeof cases / sizeof *cases; c++) {
         unsigned char mask[10];
@@ -332,6 +335,8 @@ static etacal_table *make_data(data *d, uint64_t seed, const trow *rows, size_t 
         d->act[i] = nearbyint((d->pred[i] + (tu_unif(&g) - 0.45) * 700) * 1000) / 1000;
         if (d->act[i] < 0)
             d->act[i] = 0.125;
+        if (i % 31 == 7)
+            d->act[i] = d->pred[i]; /* on the bare prediction exactly */
         if (i % 23 == 0) {
             /* on the promise exactly: "on time" is actual <= promise */
             const trow *w = serving_row(rows, nrows, d->zone[i], d->band[i], 0.9);
@@ -399,7 +404,7 @@ static void check_holdout(const trow *rows, size_t nrows, int qr, uint64_t seed,
     size_t *n = calloc(ns, sizeof *n), *bare = calloc(ns, sizeof *bare), *hits = calloc(2 * ns, sizeof *hits);
     double *psum = calloc(2 * ns, sizeof *psum), *dsum = calloc(ns, sizeof *dsum);
     assert_true(n && bare && hits && psum && dsum);
-    size_t floored = 0, clamped = 0, on_edge = 0, fell_back = 0;
+    size_t floored = 0, clamped = 0, on_edge = 0, fell_back = 0, on_pred = 0;
     for (size_t i = 0; i < NDATA; i++) {
         if (use_mask && !mask[i])
             continue;
@@ -411,6 +416,7 @@ static void check_holdout(const trow *rows, size_t nrows, int qr, uint64_t seed,
         size_t gs[2] = {0, own > 0 ? (size_t)own : 0};
         size_t ng = own > 0 ? 2 : 1;
         int hb = d.act[i] <= d.pred[i];
+        on_pred += d.act[i] == d.pred[i];
         for (size_t k = 0; k < ng; k++) {
             n[gs[k]]++;
             bare[gs[k]] += (size_t)hb;
@@ -433,7 +439,7 @@ static void check_holdout(const trow *rows, size_t nrows, int qr, uint64_t seed,
         }
     }
     /* the data reach every case the rules have */
-    assert_true(floored > 0 && on_edge > 0 && fell_back > 0);
+    assert_true(floored > 0 && on_edge > 0 && fell_back > 0 && on_pred > 0);
     if (qr)
         assert_true(clamped > 0);
     for (size_t s = 0; s < ns; s++) {
