@@ -65,6 +65,7 @@ static int run(tu_dir *d, const char *text, size_t len, const double *coef, cons
  * - d = 20, clamped to 12: 600, 420, 560; q_50: .4 (y - 420)(1/180 + 1/140)
  *   = .4, y - 420 = 78.75: 420, 498.75, 600.
  * - d = -5, clamped to -4: -40, 260, 480; q_10 floored: 0, 260, 480.
+ * - d = -3.01: -0.4, 269.9, 484.95; q_10 just below the floor: 0.
  * - d empty, then NA: empty predictions. */
 static void test_by_hand(void **state)
 {
@@ -79,7 +80,7 @@ static void test_by_hand(void **state)
     etacal_qr_predict_stats st;
     etacal_error err;
     char path[600], *out;
-    const char *in = "id,dist_km\na,2\nb,10\nc,20\nd,-5\ne,\nf,NA\n";
+    const char *in = "id,dist_km\na,2\nb,10\nc,20\nd,-5\ne,\nf,NA\ng,-3.01\n";
     assert_int_equal(run(&d, in, strlen(in), coef, taus, 3, 1, xn, &o, &st, path, sizeof path, &out, &err),
                      ETACAL_OK);
     assert_string_equal(out, "id,dist_km,q_10,q_50,q_90\n"
@@ -88,13 +89,14 @@ static void test_by_hand(void **state)
                              "c,20,420,498.75,600\n"
                              "d,-5,0,260,480\n"
                              "e,,,,\n"
-                             "f,NA,,,\n");
+                             "f,NA,,,\n"
+                             "g,-3.01,0,269.9,484.95\n");
     free(out);
-    assert_int_equal(st.rows, 6);
+    assert_int_equal(st.rows, 7);
     assert_int_equal(st.missing, 2);
     assert_int_equal(st.bad, 0);
     assert_int_equal(st.clamped, 2);
-    assert_int_equal(st.floored, 1);
+    assert_int_equal(st.floored, 2);
     /* The crossing row against etacal_rearrange, and not the sort. */
     double q[3] = {520, 400, 550};
     assert_int_equal(etacal_rearrange(taus, q, 3, &err), ETACAL_OK);
