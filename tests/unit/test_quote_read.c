@@ -130,7 +130,7 @@ static double any_double(tu_rng *g)
 static const char skeleton[] =
     "zone,band,target,method,n,k,offset_s,slope,coef_dist km,coef_items,min_dist km,max_dist km,min_items,"
     "max_items,confidence,coverage_mean,coverage_low\n"
-    "*,*,0.5,qr,1000,501,1,1,1,1,0,1,0,1,0.9,0.5,0.4\n"
+    "*,*,0.5,qr,1000,501,-12.5,0.8125,21.25,3.375,0.4,11.5,1,8,0.9,0.5,0.4\n"
     "*,*,0.8,qr,1000,801,1,1,1,1,0,1,0,1,0.9,0.8,0.7\n"
     "*,*,0.95,qr,1000,951,1,1,1,1,0,1,0,1,0.9,0.95,0.9\n"
     "north,*,0.8,qr,400,321,1,1,1,1,0,1,0,1,0.9,0.8,0.7\n"
@@ -187,7 +187,21 @@ static void test_round_trip_bits(void **state)
     assert_non_null(q->ranges);
     assert_same_double(q->confidence, 0.9);
     assert_int_equal(q->rows[5].k, 0); /* the empty k: unknown */
+    /* the first row's fields, each in its own place */
+    const etacal_quote *r0 = &q->rows[0];
+    assert_string_equal(q->coef_names[0], "dist km");
+    assert_string_equal(q->coef_names[1], "items");
+    const double want0[] = {-12.5, 0.8125, 21.25, 3.375, 0.4, 11.5, 1, 8};
+    const double got0[] = {r0->offset_s, r0->slope, r0->coef[0], r0->coef[1],
+                           r0->x_min[0], r0->x_max[0], r0->x_min[1], r0->x_max[1]};
+    for (size_t i = 0; i < 8; i++)
+        assert_same_double(got0[i], want0[i]);
+    assert_int_equal(r0->n, 1000);
+    assert_int_equal(r0->k, 501);
     tu_rng g = {UINT64_C(0x0b17b175)};
+    /* the values set, kept apart from the table (whose arrays could alias) */
+    double set[8][8];
+    size_t setn[8], setk[8];
     for (int round = 0; round < 200; round++) {
         /* targets: ascending, in (0,1), as many digits as a double has */
         double t0 = tu_unif(&g) * 0.3 + 0x1p-60, t1 = 0.3 + tu_unif(&g) * 0.3, t2 = 0.6 + tu_unif(&g) * 0.4;
@@ -199,20 +213,32 @@ static void test_round_trip_bits(void **state)
         q->confidence = round == 0 ? 0x1p-1074 : round == 1 ? 1 - 0x1p-53 : tu_unif(&g) * 0.98 + 0.01;
         for (size_t r = 0; r < q->nrows; r++) {
             etacal_quote *x = &q->rows[r];
-            x->n = 1 + (size_t)tu_below(&g, 1000000);
-            x->k = r == 5 ? 0 : 1 + (size_t)tu_below(&g, x->n);
-            x->offset_s = any_double(&g);
-            x->slope = any_double(&g);
+            x->n = setn[r] = 1 + (size_t)tu_below(&g, 1000000);
+            x->k = setk[r] = r == 5 ? 0 : 1 + (size_t)tu_below(&g, x->n);
+            x->offset_s = set[r][0] = any_double(&g);
+            x->slope = set[r][1] = any_double(&g);
             for (size_t j = 0; j < 2; j++) {
-                x->coef[j] = any_double(&g);
+                x->coef[j] = set[r][2 + j] = any_double(&g);
                 double a = any_double(&g), b = any_double(&g);
-                x->x_min[j] = a < b ? a : b;
-                x->x_max[j] = a < b ? b : a;
+                x->x_min[j] = set[r][4 + 2 * j] = a < b ? a : b;
+                x->x_max[j] = set[r][5 + 2 * j] = a < b ? b : a;
             }
         }
         char *text = write_mem(q);
         assert_int_equal(read_bytes(f, text, strlen(text), 0, &f->q2), ETACAL_OK);
         assert_same_table(q, f->q2);
+        for (size_t r = 0; r < q->nrows; r++) {
+            const etacal_quote *y = &f->q2->rows[r];
+            const double got[] = {y->offset_s, y->slope,     y->coef[0],  y->coef[1],
+                                  y->x_min[0], y->x_max[0], y->x_min[1], y->x_max[1]};
+            for (size_t i = 0; i < 8; i++)
+                if (!tu_same_bits(got[i], set[r][i]))
+                    fail_msg("round %d row %zu field %zu: %a, set %a", round, r, i, got[i], set[r][i]);
+            assert_int_equal(y->n, setn[r]);
+            assert_int_equal(y->k, setk[r]);
+        }
+        assert_same_double(f->q2->targets[0], t0);
+        assert_same_double(f->q2->targets[2], t2);
         /* the read table writes the same bytes */
         char *again = write_mem(f->q2);
         assert_string_equal(again, text);
