@@ -71,7 +71,7 @@ static void test_time_mask_by_hand(void **state)
 {
     (void)state;
     const double base = 1700000000;
-    const double tm[10] = {base + 123.5, base + 456.25, base + 456.25, base + 789.75, base + 12.125,
+    const double tm[10] = {base + 123.5,  base + 456.25, base + 456.25, base + 789.75, base + 12.125,
                            base + 789.75, base + 789.75, base + 1234.5, base + 600.0,  base + 999.875};
     etacal_table *t = time_table(tm, 10);
     struct {
@@ -244,11 +244,11 @@ typedef struct trow {
 /* Method add.  Two targets; (north, lunch) and (east, *) lack .8 rows, and
  * (south, night) has a negative offset so that small predictions floor. */
 static const trow add_rows[] = {
-    {"*", "*", 0.8, 187.375, 1, {0}, {0}, {0}},         {"*", "*", 0.9, 301.625, 1, {0}, {0}, {0}},
-    {"north", "*", 0.8, 143.25, 1, {0}, {0}, {0}},      {"north", "*", 0.9, 262.875, 1, {0}, {0}, {0}},
-    {"north", "lunch", 0.9, 244.125, 1, {0}, {0}, {0}}, {"south", "dinner", 0.8, 119.5625, 1, {0}, {0}, {0}},
+    {"*", "*", 0.8, 187.375, 1, {0}, {0}, {0}},           {"*", "*", 0.9, 301.625, 1, {0}, {0}, {0}},
+    {"north", "*", 0.8, 143.25, 1, {0}, {0}, {0}},        {"north", "*", 0.9, 262.875, 1, {0}, {0}, {0}},
+    {"north", "lunch", 0.9, 244.125, 1, {0}, {0}, {0}},   {"south", "dinner", 0.8, 119.5625, 1, {0}, {0}, {0}},
     {"south", "dinner", 0.9, 288.3125, 1, {0}, {0}, {0}}, {"south", "night", 0.8, -512.375, 1, {0}, {0}, {0}},
-    {"south", "night", 0.9, -97.0625, 1, {0}, {0}, {0}}, {"east", "*", 0.9, 333.75, 1, {0}, {0}, {0}},
+    {"south", "night", 0.9, -97.0625, 1, {0}, {0}, {0}},  {"east", "*", 0.9, 333.75, 1, {0}, {0}, {0}},
 };
 
 /* Method qr with covariates items and dist_km, their ranges. */
@@ -270,11 +270,11 @@ static void write_table(const char *path, const trow *rows, size_t nrows, int qr
             qr ? ",coef_items,coef_dist_km,min_items,max_items,min_dist_km,max_dist_km" : "");
     for (size_t r = 0; r < nrows; r++) {
         const trow *w = &rows[r];
-        fprintf(fp, "%s,%s,%.17g,%s,500,480,%.17g,%.17g", w->zone, w->band, w->target, qr ? "qr" : "add",
-                w->offset, w->slope);
+        fprintf(fp, "%s,%s,%.17g,%s,500,480,%.17g,%.17g", w->zone, w->band, w->target, qr ? "qr" : "add", w->offset,
+                w->slope);
         if (qr)
-            fprintf(fp, ",%.17g,%.17g,%.17g,%.17g,%.17g,%.17g", w->coef[0], w->coef[1], w->lo[0], w->hi[0],
-                    w->lo[1], w->hi[1]);
+            fprintf(fp, ",%.17g,%.17g,%.17g,%.17g,%.17g,%.17g", w->coef[0], w->coef[1], w->lo[0], w->hi[0], w->lo[1],
+                    w->hi[1]);
         fprintf(fp, ",row %zu\n", r);
     }
     assert_int_equal(fclose(fp), 0);
@@ -394,8 +394,7 @@ static void check_holdout(const trow *rows, size_t nrows, int qr, uint64_t seed,
         xc[j] = strcmp(q->coef_names[j], "items") == 0 ? C_ITEMS : C_DIST;
     etacal_holdout h;
     memset(&h, 0xa5, sizeof h);
-    assert_int_equal(etacal_quotes_holdout(q, t, C_ACT, C_PRED, keys, xc, use_mask ? mask : NULL, &h, &err),
-                     ETACAL_OK);
+    assert_int_equal(etacal_quotes_holdout(q, t, C_ACT, C_PRED, keys, xc, use_mask ? mask : NULL, &h, &err), ETACAL_OK);
     assert_int_equal(h.nsegs, q->nsegs);
     assert_int_equal(h.ntargets, 2);
     const double tg[2] = {0.8, 0.9};
@@ -496,8 +495,7 @@ static void test_holdout_no_keys(void **state)
     tu_dir dir;
     tu_dir_make(&dir);
     char path[600];
-    tu_write_text(&dir, "q.csv", "target,method,n,k,offset_s,slope\n0.85,ratio,700,596,0,1.1875\n", path,
-                  sizeof path);
+    tu_write_text(&dir, "q.csv", "target,method,n,k,offset_s,slope\n0.85,ratio,700,596,0,1.1875\n", path, sizeof path);
     etacal_quotes *q = NULL;
     etacal_error err;
     assert_int_equal(etacal_quotes_read_csv(path, 0, &q, &err), ETACAL_OK);

@@ -36,9 +36,9 @@
 #include "testutil.h"
 
 /* Runs the prediction on text; the output in *outp (free it). */
-static int run(tu_dir *d, const char *text, size_t len, const double *coef, const double *taus, size_t ntau,
-               size_t k, const char *const *xnames, const etacal_qr_predict_opts *o, etacal_qr_predict_stats *st,
-               char *path, size_t pathsize, char **outp, etacal_error *err)
+static int run(tu_dir *d, const char *text, size_t len, const double *coef, const double *taus, size_t ntau, size_t k,
+               const char *const *xnames, const etacal_qr_predict_opts *o, etacal_qr_predict_stats *st, char *path,
+               size_t pathsize, char **outp, etacal_error *err)
 {
     tu_write_bytes(d, "in.csv", text, len, path, pathsize);
     size_t outlen = 0;
@@ -81,8 +81,7 @@ static void test_by_hand(void **state)
     etacal_error err;
     char path[600], *out;
     const char *in = "id,dist_km\na,2\nb,10\nc,20\nd,-5\ne,\nf,NA\ng,-3.01\n";
-    assert_int_equal(run(&d, in, strlen(in), coef, taus, 3, 1, xn, &o, &st, path, sizeof path, &out, &err),
-                     ETACAL_OK);
+    assert_int_equal(run(&d, in, strlen(in), coef, taus, 3, 1, xn, &o, &st, path, sizeof path, &out, &err), ETACAL_OK);
     assert_string_equal(out, "id,dist_km,q_10,q_50,q_90\n"
                              "a,2,200,320,510\n"
                              "b,10,400,466.667,550\n"
@@ -107,8 +106,7 @@ static void test_by_hand(void **state)
      * 580.769...; d = -5: -80, 250, 475, ascending, kept negative. */
     etacal_qr_predict_opts o2 = {0, ETACAL_BAD_ROWS_ERROR, NULL, NULL, -INFINITY};
     in = "id,dist_km\nc,20\nd,-5\n";
-    assert_int_equal(run(&d, in, strlen(in), coef, taus, 3, 1, xn, &o2, &st, path, sizeof path, &out, &err),
-                     ETACAL_OK);
+    assert_int_equal(run(&d, in, strlen(in), coef, taus, 3, 1, xn, &o2, &st, path, sizeof path, &out, &err), ETACAL_OK);
     assert_string_equal(out, "id,dist_km,q_10,q_50,q_90\nc,20,500,580.769,920\nd,-5,-80,250,475\n");
     free(out);
     assert_int_equal(st.clamped, 0);
@@ -116,9 +114,9 @@ static void test_by_hand(void **state)
     /* A byte-order mark is no part of the first record (internal.h:
      * csvstream drops it): the header's column is found, and the copy of
      * the header starts at its first name. */
-    in = "\xEF\xBB\xBF" "dist_km,id\r\n2,a\r\n";
-    assert_int_equal(run(&d, in, strlen(in), coef, taus, 3, 1, xn, &o2, &st, path, sizeof path, &out, &err),
-                     ETACAL_OK);
+    in = "\xEF\xBB\xBF"
+         "dist_km,id\r\n2,a\r\n";
+    assert_int_equal(run(&d, in, strlen(in), coef, taus, 3, 1, xn, &o2, &st, path, sizeof path, &out, &err), ETACAL_OK);
     assert_string_equal(out, "dist_km,id,q_10,q_50,q_90\r\n2,a,200,320,510\r\n");
     free(out);
     tu_dir_remove(&d);
@@ -164,15 +162,15 @@ static void random_case(uint64_t seed, char delim, int crlf, int skip)
     size_t cap = 1 << 16, n = 0, ecap = 1 << 17, en = 0;
     char *in = malloc(cap), *want = malloc(ecap);
     assert_true(in && want);
-#define PUT(buf, len, capv, ...)                                                                                   \
-    do {                                                                                                           \
-        int w_ = snprintf(buf + len, capv - len, __VA_ARGS__);                                                     \
-        assert_true(w_ >= 0 && (size_t)w_ < capv - len);                                                           \
-        len += (size_t)w_;                                                                                         \
+#define PUT(buf, len, capv, ...)                                                                                       \
+    do {                                                                                                               \
+        int w_ = snprintf(buf + len, capv - len, __VA_ARGS__);                                                         \
+        assert_true(w_ >= 0 && (size_t)w_ < capv - len);                                                               \
+        len += (size_t)w_;                                                                                             \
     } while (0)
     PUT(in, n, cap, "order_id%citems%cnote%cdist_km%s", dl, dl, dl, eol);
-    PUT(want, en, ecap, "order_id%citems%cnote%cdist_km%cq_5%cq_25%cq_50%cq_90%cq_97.5%s", dl, dl, dl, dl, dl, dl,
-        dl, dl, eol);
+    PUT(want, en, ecap, "order_id%citems%cnote%cdist_km%cq_5%cq_25%cq_50%cq_90%cq_97.5%s", dl, dl, dl, dl, dl, dl, dl,
+        dl, eol);
     etacal_qr_predict_stats exp = {0};
     size_t crossed = 0;
     for (size_t i = 0; i < N; i++) {
@@ -303,9 +301,8 @@ static void test_random_rows(void **state)
     random_case(0xfeed, ';', 1, 0);
 }
 
-static void expect_error(tu_dir *d, const char *text, const double *coef, const double *taus, size_t ntau,
-                         size_t k, const char *const *xn, const etacal_qr_predict_opts *o, int code, size_t line,
-                         const char *msg)
+static void expect_error(tu_dir *d, const char *text, const double *coef, const double *taus, size_t ntau, size_t k,
+                         const char *const *xn, const etacal_qr_predict_opts *o, int code, size_t line, const char *msg)
 {
     etacal_qr_predict_stats st;
     memset(&st, 0xa5, sizeof st);
@@ -343,8 +340,7 @@ static void test_errors(void **state)
     expect_error(&d, "id,dist_km\n\"a\nb\",2.5\nb,1,2\n", coef, taus, 3, 1, xn, &o, ETACAL_EPARSE, 4,
                  "3 fields, but the header has 2");
     expect_error(&d, "id,dist_km\nb\n", coef, taus, 3, 1, xn, &o, ETACAL_EPARSE, 2, "1 fields, but the header has 2");
-    expect_error(&d, "id,dist_km\n\"b,2.5\n", coef, taus, 3, 1, xn, &o, ETACAL_EPARSE, 2,
-                 "unterminated quoted field");
+    expect_error(&d, "id,dist_km\n\"b,2.5\n", coef, taus, 3, 1, xn, &o, ETACAL_EPARSE, 2, "unterminated quoted field");
     /* header */
     expect_error(&d, "id,dist\na,2.5\n", coef, taus, 3, 1, xn, &o, ETACAL_EINVAL, 1,
                  "no column 'dist_km' in the header (a covariate of the fit)");

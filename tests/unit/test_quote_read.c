@@ -192,7 +192,7 @@ static void test_round_trip_bits(void **state)
     assert_string_equal(q->coef_names[0], "dist km");
     assert_string_equal(q->coef_names[1], "items");
     const double want0[] = {-12.5, 0.8125, 21.25, 3.375, 0.4, 11.5, 1, 8};
-    const double got0[] = {r0->offset_s, r0->slope, r0->coef[0], r0->coef[1],
+    const double got0[] = {r0->offset_s, r0->slope,    r0->coef[0],  r0->coef[1],
                            r0->x_min[0], r0->x_max[0], r0->x_min[1], r0->x_max[1]};
     for (size_t i = 0; i < 8; i++)
         assert_same_double(got0[i], want0[i]);
@@ -229,7 +229,7 @@ static void test_round_trip_bits(void **state)
         assert_same_table(q, f->q2);
         for (size_t r = 0; r < q->nrows; r++) {
             const etacal_quote *y = &f->q2->rows[r];
-            const double got[] = {y->offset_s, y->slope,     y->coef[0],  y->coef[1],
+            const double got[] = {y->offset_s, y->slope,    y->coef[0],  y->coef[1],
                                   y->x_min[0], y->x_max[0], y->x_min[1], y->x_max[1]};
             for (size_t i = 0; i < 8; i++)
                 if (!tu_same_bits(got[i], set[r][i]))
@@ -304,8 +304,8 @@ static void test_header_rules(void **state)
                  "column 'coef_' names no covariate");
     expect_error(f, "zone,target,method,n,offset_s,slope,coef_a,coef_a\n*,0.9,qr,50,3.5,1,2,3\n", 0, 1,
                  "column 'coef_a' appears twice in the header");
-    expect_error(f, "zone,target,method,n,offset_s,slope,coef_a,min_a,max_a,max_a\n*,0.9,qr,50,3.5,1,2,0,1,1\n",
-                 0, 1, "column 'max_a' appears twice in the header");
+    expect_error(f, "zone,target,method,n,offset_s,slope,coef_a,min_a,max_a,max_a\n*,0.9,qr,50,3.5,1,2,0,1,1\n", 0, 1,
+                 "column 'max_a' appears twice in the header");
 }
 
 /* ETACAL_MAX_KEYS key columns are read; one more is refused.  The same
@@ -386,9 +386,8 @@ static void test_rows_sorted(void **state)
         double offset;
         size_t n, k;
     } want[] = {
-        {0, 0, 100.5, 900, 721},   {0, 1, 200.375, 900, 811},   {0, 2, 655.5, 900, 879},
-        {1, 0, 110.75, 400, 321},  {1, 1, 210.25, 400, 361},    {1, 2, 401.0625, 400, 391},
-        {2, 0, 95.125, 300, 241},
+        {0, 0, 100.5, 900, 721},  {0, 1, 200.375, 900, 811},  {0, 2, 655.5, 900, 879},  {1, 0, 110.75, 400, 321},
+        {1, 1, 210.25, 400, 361}, {1, 2, 401.0625, 400, 391}, {2, 0, 95.125, 300, 241},
     };
     assert_int_equal(q->nrows, 7);
     for (size_t r = 0; r < 7; r++) {
@@ -413,8 +412,9 @@ static void test_confidence_one_value(void **state)
     const char *hdr = "zone,target,method,n,k,offset_s,slope,confidence\n";
     char text[1024];
     /* the same value in other spellings is the same confidence */
-    snprintf(text, sizeof text, "%s*,0.9,add,5000,4540,312.125,1,0.95\nnorth,0.9,add,900,830,250.25,1,0.950\n"
-                                "south,0.9,add,900,830,250.25,1,9.5e-1\n",
+    snprintf(text, sizeof text,
+             "%s*,0.9,add,5000,4540,312.125,1,0.95\nnorth,0.9,add,900,830,250.25,1,0.950\n"
+             "south,0.9,add,900,830,250.25,1,9.5e-1\n",
              hdr);
     assert_int_equal(read_text(f, text, 0), ETACAL_OK);
     assert_same_double(f->q2->confidence, 0.95);
@@ -422,8 +422,9 @@ static void test_confidence_one_value(void **state)
     assert_int_equal(read_text(f, "zone,target,method,n,offset_s,slope\n*,0.9,add,50,3.5,1\n", 0), ETACAL_OK);
     assert_same_double(f->q2->confidence, 0);
     /* a different value: an error at the row that differs */
-    snprintf(text, sizeof text, "%s*,0.9,add,5000,4540,312.125,1,0.95\n\nnorth,0.9,add,900,830,250.25,1,0.95\n"
-                                "south,0.9,add,900,830,250.25,1,0.9\n",
+    snprintf(text, sizeof text,
+             "%s*,0.9,add,5000,4540,312.125,1,0.95\n\nnorth,0.9,add,900,830,250.25,1,0.95\n"
+             "south,0.9,add,900,830,250.25,1,0.9\n",
              hdr);
     expect_error(f, text, 0, 5, "the rows have different confidences (0.94999999999999996, 0.90000000000000002)");
     snprintf(text, sizeof text, "%s*,0.9,add,5000,4540,312.125,1,0.95\nnorth,0.9,add,900,830,250.25,1,\n", hdr);
@@ -467,28 +468,29 @@ static void test_csv_shapes(void **state)
         "\"old town; north\tside\"%c0.9%c900%c811%c250.0625%c1%cadd%s",
     };
     const char delims[] = {',', ';', '\t', '|'};
-    for (size_t b = 0; b < 2; b++)          /* with a byte-order mark or not */
-        for (size_t c = 0; c < 2; c++)      /* LF or CRLF */
+    for (size_t b = 0; b < 2; b++)     /* with a byte-order mark or not */
+        for (size_t c = 0; c < 2; c++) /* LF or CRLF */
             for (size_t d = 0; d < 4; d++) {
                 char dl = delims[d];
                 const char *eol = c ? "\r\n" : "\n";
                 char text[512];
                 int n = snprintf(text, sizeof text, "%s", b ? "\xEF\xBB\xBF" : "");
-                snprintf(text + n, sizeof text - (size_t)n, bodies[0], dl, dl, dl, dl, dl, dl, eol, dl, dl, dl, dl,
-                         dl, dl, eol, dl, dl, dl, dl, dl, dl, eol);
+                snprintf(text + n, sizeof text - (size_t)n, bodies[0], dl, dl, dl, dl, dl, dl, eol, dl, dl, dl, dl, dl,
+                         dl, eol, dl, dl, dl, dl, dl, dl, eol);
                 int rc = read_text(f, text, d == 0 && b == 0 ? 0 : dl);
                 if (rc != ETACAL_OK)
                     fail_msg("bom %zu crlf %zu delim '%c': %s: %s", b, c, dl, f->err.where, f->err.msg);
                 check_small(f->q2);
             }
     /* CRLF: the error lines are the records' lines */
-    expect_error(f, "zone,target,method,n,k,offset_s,slope\r\n*,0.9,add,5000,4501,312.125,1\r\n\r\n"
-                    "north,0.9,add,900,901,250.25,1\r\n",
+    expect_error(f,
+                 "zone,target,method,n,k,offset_s,slope\r\n*,0.9,add,5000,4501,312.125,1\r\n\r\n"
+                 "north,0.9,add,900,901,250.25,1\r\n",
                  0, 4, "k must be a rank from 1 to n = 900, got 901");
     /* a ';' file read with its delimiter named: a ',' inside a field is text */
-    assert_int_equal(read_text(f, "zone;target;method;n;offset_s;slope\n*;0.9;add;50;3.5;1\n\"a,b\";0.9;add;9;1.25;1\n",
-                               ';'),
-                     ETACAL_OK);
+    assert_int_equal(
+        read_text(f, "zone;target;method;n;offset_s;slope\n*;0.9;add;50;3.5;1\n\"a,b\";0.9;add;9;1.25;1\n", ';'),
+        ETACAL_OK);
     assert_string_equal(f->q2->segs[1].keys[0], "a,b");
     /* the byte-order mark is no part of the first key's name: a key
      * column named with one would be a different column */
@@ -500,7 +502,7 @@ int main(void)
 {
 #define T(name) cmocka_unit_test_setup_teardown(name, setup, teardown)
     const struct CMUnitTest tests[] = {
-        T(test_round_trip_bits), T(test_header_rules),          T(test_limits),
+        T(test_round_trip_bits), T(test_header_rules),         T(test_limits),
         T(test_rows_sorted),     T(test_confidence_one_value), T(test_csv_shapes),
     };
 #undef T
