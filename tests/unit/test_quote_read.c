@@ -14,7 +14,7 @@
  *   the read table must give the same bytes;
  * - the header rules of quote.h: the columns before 'target' are the keys,
  *   the known columns may come in any order after it, unknown ones
- *   (a note, 'cell', 'Target' in another case) are ignored;
+ *   (a note, 'remark', 'Target' in another case) are ignored;
  * - quote.h's struct comment: rows by segment, then target, whatever the
  *   file's order; segments in the file's order with the global one first;
  * - the 'confidence' column: one value on every row (compared as numbers),
@@ -253,9 +253,9 @@ static void test_header_rules(void **state)
 {
     fixture *f = *state;
     /* The known columns in another order, unknown ones between them
-     * (Target in another case, cell, a note with delimiters), none of them
+     * (Target in another case, remark, a note with delimiters), none of them
      * read. */
-    const char *text = "region,zone,target,note,slope,cell,Target,n,offset_s,method,k,confidence\n"
+    const char *text = "region,zone,target,note,slope,remark,Target,n,offset_s,method,k,confidence\n"
                        "*,*,0.9,\"a, b\",1,17,0.5,5000,312.125,add,4501,0.95\n"
                        "eu,*,0.9,,1,x,zz,900,250.0625,add,811,0.95\n"
                        "eu,berlin,0.9,n,1,,,400,180.375,add,361,0.95\n";
