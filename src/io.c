@@ -182,3 +182,8 @@ int sink_fclose(FILE *fp, int rc, etacal_error *err)
         return etacal_error_set(err, ETACAL_EIO, NULL, "the output sink refused the data");
     return ETACAL_OK;
 }
+
+int etacal_sink_file(void *fp, const char *buf, size_t len)
+{
+    return fwrite(buf, 1, len, fp) == len ? 0 : -1;
+}

@@ -9,6 +9,7 @@
 #include <stddef.h>
 
 #include "etacal/error.h"
+#include "etacal/io.h"
 #include "etacal/quote.h"
 #include "etacal/table.h"
 
@@ -89,6 +90,36 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
                         const size_t *key_cols, size_t nkeys, const etacal_backtest_opts *opts,
                         etacal_backtest_result *out, etacal_error *err);
 void etacal_backtest_free(etacal_backtest_result *r);
+
+/* Writes a backtest's result to out in format ETACAL_FORMAT_TEXT, _CSV or
+ * _JSON (io.h), as etacal backtest prints it.  opts are the options of the
+ * run (target, method, window, period, recency weights, adaptive level:
+ * the heading); source names the data file (NULL: empty).  Each on-time
+ * rate h/n gets a 95% Wilson score interval (etacal_binom_wilson); times
+ * are ISO 8601 in UTC (etacal_time_format).
+ *
+ * Text: the heading and the calibration rule, one line per period (start,
+ * calibration rows, orders, on-time rate with hits/n, interval, mean
+ * buffer in minutes or "unbounded"/"none", working level), then the
+ * overall rate and the count of periods and orders by promise.
+ *
+ * CSV: period_start, period_end, calib, n, hits, on_time, ci_low, ci_high,
+ * mean_buffer_s, level, promise ("finite", "unbounded", "none"; empty for
+ * a period without orders); reals to 10 significant digits, empty for
+ * none.
+ *
+ * JSON: {"etacal": version, "file", "target", "window_s", "every_s",
+ * "calibration": the rule in words, "periods": [{"start", "end", "calib",
+ * "n", "hits", "on_time", "ci": [lo, hi], "mean_buffer_s", "level",
+ * "promise"}], "overall": {"n", "hits", "on_time", "ci", "mean_buffer_s"},
+ * "promises": {"finite" | "unbounded" | "none": {"periods", "n"}}}; reals
+ * to 10 significant digits, null for none (a period without orders).
+ *
+ * Errors: ETACAL_EINVAL (no result or options, an unknown format, a sink
+ * without a write function), ETACAL_ENOMEM, ETACAL_EIO when the sink
+ * refuses bytes (it may then have received part of the output). */
+int etacal_backtest_write(const etacal_backtest_result *r, const etacal_backtest_opts *opts, const char *source,
+                          int format, const etacal_sink *out, etacal_error *err);
 
 #if defined(__GNUC__)
 #pragma GCC visibility pop

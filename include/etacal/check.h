@@ -9,6 +9,7 @@
 
 #include "etacal/binom.h"
 #include "etacal/error.h"
+#include "etacal/io.h"
 #include "etacal/quote.h"
 #include "etacal/table.h"
 
@@ -150,6 +151,54 @@ typedef struct etacal_check_result {
 int etacal_check_run(const etacal_table *t, const etacal_check_opts *opts, etacal_check_result **out,
                      etacal_error *err);
 void etacal_check_destroy(etacal_check_result *r);
+
+/* What etacal_check_write needs beside the result. */
+typedef struct etacal_check_write_opts {
+    const char *source;        /* the data file's name, as shown ("etacal check: FILE"; "file") */
+    const etacal_table *table; /* the rows checked (required): column names, read counts */
+    const char *quote_source;  /* with a table's law: the quote table's file name */
+    int gate;                  /* the gate was asked for: its tests and verdict are written */
+} etacal_check_write_opts;
+
+/* Writes a check's result to out in format ETACAL_FORMAT_TEXT, _CSV or
+ * _JSON (io.h), as etacal check prints it; it computes nothing.  The gate's
+ * tests (p, p_holm, verdict "ok", "under", "thin" or none) are written
+ * when opts->gate is set or the result has a table's law; the verdict line
+ * only with opts->gate.
+ *
+ * Text: a heading (file, rows read, used, left out, malformed; the
+ * intervals), a table with one line per segment and measure (coverage to
+ * 4 decimals, pinball to 2, seconds to 1, "-" for none), the calibration
+ * table and crossing count of a quantile forecast (two levels or more), the
+ * gate's tests, the verdict line.
+ *
+ * CSV: one record per segment and measure: the key columns, then measure,
+ * column, column2, nominal, n, hits, coverage, ci_low, ci_high, status,
+ * thin, pinball, interval_score, mean_width_s, mean_slack_s,
+ * mean_lateness_s, late, crossing_rows; then p, p_holm, verdict with the
+ * gate; then table_n, table_k with a table's law (empty on the overall
+ * record).  Numbers to 10 significant digits, empty for none.
+ *
+ * JSON: {"etacal": version, "file", "rows": {"read", "used", "missing",
+ * "malformed"}, "confidence", "ci": "wilson"|"exact", "min_rows", "keys":
+ * [names], "segments": [{"keys": {name: value}, "overall", "n", "thin",
+ * "table_row": {"n", "k"} or null (with a table's law only),
+ * "crossing_rows" (null below two quantile levels), "measures":
+ * [{"measure": "upper"|"interval"|"quantile", "column", "lower_column"
+ * (intervals), "nominal", "n", "hits", "coverage", "ci": [lo, hi],
+ * "status", "pinball", "interval_score", "mean_width_s", "mean_slack_s",
+ * "mean_lateness_s", "late" (null but for a promise), and with the gate
+ * "p", "p_holm", "verdict"}]}], "gate": null or {"failed", "law":
+ * "binomial"|"beta-binomial", "level", "tests", "rejected",
+ * "calibration_noise_accounted", and with a table's law "table",
+ * "target"}}.  Reals to 10 significant digits; NaN as null.
+ *
+ * Errors: ETACAL_EINVAL (no result or table, an unknown format, a sink
+ * without a write function, more than 64 key columns), ETACAL_ENOMEM,
+ * ETACAL_EIO when the sink refuses bytes.  On an error the sink may have
+ * received part of the output. */
+int etacal_check_write(const etacal_check_result *r, const etacal_check_write_opts *opts, int format,
+                       const etacal_sink *out, etacal_error *err);
 
 /* Holm's (1979) step-down adjusted p-values of n p-values: with p sorted
  * ascending, adj_(i) = max over j <= i of min(1, (n - j + 1) p_(j)), so

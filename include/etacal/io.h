@@ -47,6 +47,19 @@ typedef struct etacal_sink {
     void *ud;
 } etacal_sink;
 
+/* A write function for a sink over an open stream: {etacal_sink_file, fp}
+ * sends a writer's bytes to fp (say an etacal_outfile's).  Nonzero when
+ * fwrite writes short. */
+int etacal_sink_file(void *fp, const char *buf, size_t len);
+
+/* The formats of the result writers (etacal_check_write,
+ * etacal_backtest_write, etacal_qr_write): aligned text for people; CSV
+ * for machines and SQL joins (a header line, then one record per figure,
+ * comma-delimited, an empty field for none); JSON (one object, indented
+ * by 2, members in a fixed order, NaN and infinities as null) whose shape
+ * each writer documents.  Any other value is an error (ETACAL_EINVAL). */
+enum { ETACAL_FORMAT_TEXT = 0, ETACAL_FORMAT_CSV = 1, ETACAL_FORMAT_JSON = 2 };
+
 /* Writes one CSV field (RFC 4180): quoted, with inner quotes doubled, only
  * when it holds the delimiter, a quote, a line break or edge spaces. */
 void etacal_csv_put_field(FILE *fp, const char *s, size_t len, char delim);

@@ -14,6 +14,8 @@
 #include <stdio.h> /* FILE, for etacal_qr_predict_csv */
 
 #include "etacal/error.h"
+#include "etacal/io.h"
+#include "etacal/table.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -136,6 +138,79 @@ typedef struct etacal_qr_predict_stats {
 int etacal_qr_predict_csv(const double *coef, const double *taus, size_t ntau, size_t k,
                           const char *const *xnames, const char *in_path, FILE *out,
                           const etacal_qr_predict_opts *opts, etacal_qr_predict_stats *stats, etacal_error *err);
+
+/* Fits at several levels as one run, as etacal qr does. */
+typedef struct etacal_qr_fits {
+    size_t ntau;                          /* levels, ascending */
+    size_t k;                             /* covariates */
+    double taus[ETACAL_QR_MAX_LEVELS];
+    etacal_qr_result res[ETACAL_QR_MAX_LEVELS];
+    /* standard errors of res[t].coef[0..k] (NaN with ETACAL_SE_NONE) and
+     * the Powell kernel bandwidth (NaN for the other methods) */
+    double se[ETACAL_QR_MAX_LEVELS][ETACAL_QR_MAX_COVARIATES + 1];
+    double bandwidth[ETACAL_QR_MAX_LEVELS];
+    int se_method;                        /* ETACAL_SE_* */
+    size_t reps;                          /* bootstrap replications */
+    double x_min[ETACAL_QR_MAX_COVARIATES]; /* each covariate's range in the data */
+    double x_max[ETACAL_QR_MAX_COVARIATES];
+    int y_nonneg;                         /* the response is never negative in the data */
+} etacal_qr_fits;
+
+/* Fits y on the k covariates (1 <= k <= ETACAL_QR_MAX_COVARIATES) at each
+ * of the ntau strictly ascending levels taus (at most
+ * ETACAL_QR_MAX_LEVELS) with etacal_qr_fit (unweighted), and each fit's
+ * standard errors by se_method with etacal_qr_se (reps replications and
+ * opts->seed for the bootstrap); records the covariates' range and the
+ * response's sign.  opts may be NULL (defaults).  *out is filled whole
+ * (nothing to free).  Errors: those of etacal_qr_fit and etacal_qr_se,
+ * ETACAL_ENUM for n = 0, ETACAL_EINVAL for levels or k out of bounds or an
+ * unknown se_method. */
+int etacal_qr_fit_levels(const double *y, const double *const *x, size_t k, size_t n, const double *taus,
+                         size_t ntau, const char *const *names, int se_method, size_t reps,
+                         const etacal_qr_opts *opts, etacal_qr_fits *out, etacal_error *err);
+
+/* etacal_qr_predict_csv with every level of f: each covariate clamped into
+ * its range in the data of the fit, and predictions floored at 0 when the
+ * response was never negative there (f->y_nonneg).  xnames name the k
+ * covariate columns of in_path.  Errors: as etacal_qr_predict_csv;
+ * ETACAL_EINVAL for an empty f. */
+int etacal_qr_fits_predict_csv(const etacal_qr_fits *f, const char *const *xnames, const char *in_path, FILE *out,
+                               char delim, int bad_rows, etacal_qr_predict_stats *stats, etacal_error *err);
+
+/* What etacal_qr_write needs beside the fits. */
+typedef struct etacal_qr_write_opts {
+    const char *source;            /* the data file's name ("etacal qr: FILE"; "file") */
+    const char *y_name;            /* the response's column */
+    const char *const *x_names;    /* the k covariates' columns */
+    const etacal_read_stats *rows; /* rows read, used, left out, malformed (NULL: all 0) */
+} etacal_qr_write_opts;
+
+/* Writes the fits to out in format ETACAL_FORMAT_TEXT, _CSV or _JSON
+ * (io.h), as etacal qr prints them.  Each coefficient gets its t statistic
+ * (estimate / standard error) and two-sided p-value with n - p degrees of
+ * freedom (etacal_t_pvalue); none without a standard error.
+ *
+ * Text: file, rows, model ("y ~ 1 + x"), the standard errors' method; per
+ * level its n, objective, iterations, duality gap (and Powell bandwidth)
+ * and a table of term, estimate (8 digits), std.error (6), t (3 decimals),
+ * p-value (3 digits, "< 1e-16" below that); "-" for none.
+ *
+ * CSV: tau, term, estimate, std_error, t, p_value, n, objective,
+ * iterations, gap: one record per level and term; estimate and objective
+ * to 12 significant digits, std_error and t to 10, p_value to 6, gap to 3.
+ *
+ * JSON: {"etacal": version, "file", "rows": {"read", "used", "missing",
+ * "malformed"}, "y", "x": [names], "se": "powell"|"boot"|"none", "reps"
+ * (null but for the bootstrap), "fits": [{"tau", "n", "objective",
+ * "iterations", "gap" (3 significant digits), "bandwidth", "terms":
+ * [{"term", "estimate", "std_error", "t", "p_value"}]}]}; reals to 12
+ * significant digits, null for none.
+ *
+ * Errors: ETACAL_EINVAL (no fits or names, an unknown format, a sink
+ * without a write function), ETACAL_ENOMEM, ETACAL_EIO when the sink
+ * refuses bytes (it may then have received part of the output). */
+int etacal_qr_write(const etacal_qr_fits *f, const etacal_qr_write_opts *opts, int format, const etacal_sink *out,
+                    etacal_error *err);
 
 #if defined(__GNUC__)
 #pragma GCC visibility pop
