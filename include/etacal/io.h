@@ -47,6 +47,9 @@ typedef struct etacal_sink {
     void *ud;
 } etacal_sink;
 
+/* Output formats of the result writers. */
+enum { ETACAL_FORMAT_TEXT = 0, ETACAL_FORMAT_CSV = 1, ETACAL_FORMAT_JSON = 2 };
+
 /* Writes one CSV field (RFC 4180): quoted, with inner quotes doubled, only
  * when it holds the delimiter, a quote, a line break or edge spaces. */
 void etacal_csv_put_field(FILE *fp, const char *s, size_t len, char delim);

@@ -1,0 +1,24 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* outsink.h: a library sink (etacal_sink, io.h) over a stdio stream, for the
+ * commands that hand their open output (etacal_outfile, a memory stream,
+ * stderr) to the library's result writers. */
+#ifndef ETACAL_CLI_OUTSINK_H
+#define ETACAL_CLI_OUTSINK_H
+
+#include <stdio.h>
+
+#include "etacal/io.h"
+
+static inline int outsink_write(void *ud, const char *buf, size_t len)
+{
+    return fwrite(buf, 1, len, (FILE *)ud) == len ? 0 : -1;
+}
+
+/* The sink writing to fp (which stays the caller's). */
+static inline etacal_sink outsink(FILE *fp)
+{
+    etacal_sink s = {outsink_write, fp};
+    return s;
+}
+
+#endif
