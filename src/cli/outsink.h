@@ -11,10 +11,14 @@
 
 static inline int outsink_write(void *ud, const char *buf, size_t len)
 {
-    return fwrite(buf, 1, len, (FILE *)ud) == len ? 0 : -1;
+    (void)fwrite(buf, 1, len, (FILE *)ud);
+    return 0;
 }
 
-/* The sink writing to fp (which stays the caller's). */
+/* The sink writing to fp (which stays the caller's).  A failed write is
+ * left in the stream's error flag, which the caller checks when it closes
+ * or commits the stream (etacal_outfile_commit: "FILE: write failed: ..."),
+ * as it did when it printed to the stream itself. */
 static inline etacal_sink outsink(FILE *fp)
 {
     etacal_sink s = {outsink_write, fp};
