@@ -52,29 +52,6 @@ static const char help[] =
     "Rows with a missing actual or prediction (empty, NA, NaN, null) are left out and\n"
     "counted.  CAL.csv may be - for standard input.\n";
 
-/* The library's summary of the run (etacal_fit_write_summary) in a new
- * buffer *buf of *len bytes: 0, else the error. */
-static int summary_in_memory(const etacal_fit_run *run, const etacal_fitspec *spec, const char *path, char **buf,
-                             size_t *len, etacal_error *err)
-{
-    FILE *ms = open_memstream(buf, len);
-    if (!ms)
-        return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-    etacal_sink sink = outsink(ms);
-    int rc = etacal_fit_write_summary(run, spec, path, &sink, err);
-    /* A memory stream fails when it cannot grow.  glibc's fclose of one
-     * reports no failure of its last realloc, but then leaves the buffer as
-     * the last fflush set it: so that fflush is checked. */
-    int bad = fflush(ms) != 0 || ferror(ms);
-    if (fclose(ms) != 0)
-        bad = 1;
-    if (rc)
-        return rc;
-    if (bad || !*buf)
-        return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-    return ETACAL_OK;
-}
-
 int cmd_fit(int argc, char **argv)
 {
     static const struct option longopts[] = {FIT_OPTIONS,
@@ -119,8 +96,7 @@ int cmd_fit(int argc, char **argv)
     fit_spec(&a, &spec);
     etacal_fit_run *run = NULL;
     etacal_outfile of = {0};
-    char *sbuf = NULL;
-    size_t slen = 0;
+    outbuf sum = {0};
     progress pg = {path, 0, -1};
     etacal_read_opts ro = a.ro;
     ro.progress = progress_cb;
@@ -131,8 +107,14 @@ int cmd_fit(int argc, char **argv)
         goto fail;
     /* The summary is made in memory first: when memory runs out there,
      * no table is written either. */
-    if (!quiet && (rc = summary_in_memory(run, &spec, path, &sbuf, &slen, &err)) != 0)
-        goto fail;
+    if (!quiet) {
+        etacal_sink sink = outbuf_sink(&sum);
+        if ((rc = etacal_fit_write_summary(run, &spec, path, &sink, &err)) != 0) {
+            if (sum.oom)
+                rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+            goto fail;
+        }
+    }
     rc = etacal_outfile_open(&of, output ? output : "-", &err);
     if (rc)
         goto fail;
@@ -144,12 +126,12 @@ int cmd_fit(int argc, char **argv)
         goto fail;
     }
     if (!quiet)
-        fwrite(sbuf, 1, slen, output ? stdout : stderr);
-    free(sbuf);
+        fwrite(sum.data, 1, sum.len, output ? stdout : stderr);
+    free(sum.data);
     etacal_fit_run_destroy(run);
     return 0;
 fail:
-    free(sbuf);
+    free(sum.data);
     etacal_fit_run_destroy(run);
     return report_error(&err);
 }
