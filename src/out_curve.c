@@ -148,7 +148,8 @@ static json_t *json_segment(const curve_view *v, size_t s, int *oom)
         return NULL;
     }
     for (size_t j = 0; j < q->nkeys; j++)
-        jset(kv, q->key_names[j], jstr(q->segs[g].keys[j], oom), oom);
+        if (utf8_valid(q->key_names[j], strlen(q->key_names[j]))) /* jansson takes no other member name */
+            jset(kv, q->key_names[j], jstr(q->segs[g].keys[j], oom), oom);
     for (size_t ti = 0; ti < v->nt && !*oom; ti++)
         jpush(pts, json_point(&v->cv->pts[s * v->nt + ti], q->targets[ti], hn, oom), oom);
     jset(seg, "keys", kv, oom);

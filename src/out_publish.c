@@ -52,7 +52,8 @@ static json_t *keys_json(const etacal_quotes *q, const char *const *keys, int *o
 {
     json_t *o = jnew(json_object(), oom);
     for (size_t j = 0; o && j < q->nkeys; j++)
-        jset(o, q->key_names[j], jstr(keys[j], oom), oom);
+        if (utf8_valid(q->key_names[j], strlen(q->key_names[j]))) /* jansson takes no other member name */
+            jset(o, q->key_names[j], jstr(keys[j], oom), oom);
     return o;
 }
 
@@ -86,7 +87,8 @@ static json_t *json_heading(const report_view *v, int *oom)
     if (ref) {
         jset_real(ref, "pred_s", v->ref_pred, oom);
         for (size_t j = 0; j < v->s->fit.nx; j++)
-            jset_real(ref, v->s->fit.xs[j], v->ref_x[j], oom);
+            if (utf8_valid(v->s->fit.xs[j], strlen(v->s->fit.xs[j])))
+                jset_real(ref, v->s->fit.xs[j], v->ref_x[j], oom);
     }
     jset(root, "reference", ref, oom);
     json_t *segs = jnew(json_null(), oom);
