@@ -74,6 +74,18 @@ int etacal_apply(const etacal_quotes *q, const char *in_path, const etacal_sink 
 int etacal_apply_path(const etacal_quotes *q, const char *in_path, const char *out_path,
                       const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err);
 
+/* The summary of an apply run for people, as `etacal apply` prints it, to
+ * out: the orders of the file named orders (the name it shows), promised,
+ * without a prediction and malformed, those that took a less specific row,
+ * the clamped covariates (method qr), the promises floored at 0, the mean
+ * promise and extra time per applied target and, with opts->actual_col,
+ * the on-time rate of each target's promise and of the bare prediction on
+ * the orders with an actual duration.  opts and stats are those of the run
+ * (etacal_apply_csv).  ETACAL_OK; ETACAL_EINVAL (a target index out of
+ * range); ETACAL_ENOMEM; ETACAL_EIO when the sink refuses bytes. */
+int etacal_apply_write_summary(const etacal_quotes *q, const char *orders, const etacal_apply_opts *opts,
+                               const etacal_apply_stats *stats, const etacal_sink *out, etacal_error *err);
+
 /* Rounds a promise up to a multiple of round_s (> 0), or to the next whole
  * millisecond when round_s is 0. */
 double etacal_promise_round(double promise, double round_s);

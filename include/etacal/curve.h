@@ -11,6 +11,8 @@
 #include <stddef.h>
 
 #include "etacal/error.h"
+#include "etacal/fit.h"
+#include "etacal/io.h"
 #include "etacal/quote.h"
 
 #ifdef __cplusplus
@@ -57,6 +59,30 @@ void etacal_curve_free(etacal_curve *c);
  * decimals (rounded to 1e-9, so 0.57 is 0.57 and not
  * 0.5700000000000001), at most max values in out; returns how many. */
 size_t etacal_curve_grid(double from, double to, double step, double *out, size_t max);
+
+/* Writes the curve cv of a fit run (run made with the specification s at
+ * the targets of the grid and a holdout; cv from etacal_curve_compute on
+ * its quote table and holdout) to out, in a format:
+ *   ETACAL_FORMAT_TEXT  a heading naming path, the method and the held-out
+ *                       rows, then per segment an aligned table: target,
+ *                       buffer, mean promise and extra time (minutes), the
+ *                       marginal cost per point, the on-time rate reached
+ *                       and its interval;
+ *   ETACAL_FORMAT_CSV   a header, then one line per segment and target:
+ *                       the key values, target, buffer, mean_promise_s,
+ *                       mean_extra_s, marginal_s_per_point (empty at the
+ *                       first target), held_n, held_hits, on_time, ci_low,
+ *                       ci_high (numbers %.10g);
+ *   ETACAL_FORMAT_JSON  {etacal, file, held_out {rows, of, by}, segments
+ *                       [{keys {name: value}, held_n, points [{target,
+ *                       buffer, mean_promise_s, mean_extra_s,
+ *                       marginal_s_per_point, held_n, held_hits, on_time,
+ *                       ci [lo, hi]}]}]}, null for a number that is not
+ *                       finite.
+ * ETACAL_OK; ETACAL_EINVAL (an unknown format, a run without a holdout);
+ * ETACAL_ENOMEM; ETACAL_EIO when the sink refuses bytes. */
+int etacal_curve_write(const etacal_curve *cv, const etacal_fit_run *run, const etacal_fitspec *s, const char *path,
+                       int format, const etacal_sink *out, etacal_error *err);
 
 #if defined(__GNUC__)
 #pragma GCC visibility pop

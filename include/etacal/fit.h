@@ -18,6 +18,7 @@
 #include <stddef.h>
 
 #include "etacal/error.h"
+#include "etacal/io.h"
 #include "etacal/quantreg.h"
 #include "etacal/quote.h"
 #include "etacal/table.h"
@@ -117,6 +118,19 @@ const size_t *etacal_fit_run_x_cols(const etacal_fit_run *r);
 size_t etacal_fit_run_actual_col(const etacal_fit_run *r);
 size_t etacal_fit_run_pred_col(const etacal_fit_run *r);
 long etacal_fit_run_time_col(const etacal_fit_run *r);
+
+/* The summary of run for people, as `etacal fit` prints it, to out: the
+ * rows read from path (the name it shows), the method, the point accuracy
+ * of s->pred, one aligned row per segment (the bound per target; with a
+ * confidence the mean of the coverage law of the bound and the coverage it
+ * reaches with that confidence, conformal.h; the row an order of the
+ * segment gets, found by the quote index's rule), the pooled cells, and
+ * with a holdout the on-time rates on the held-out rows with Wilson 95%
+ * intervals.  s is the specification the run was made with (its pred,
+ * min_rows, holdout and time are shown).  ETACAL_OK; ETACAL_ENOMEM (the
+ * output is then incomplete); ETACAL_EIO when the sink refuses bytes. */
+int etacal_fit_write_summary(const etacal_fit_run *run, const etacal_fitspec *s, const char *path,
+                             const etacal_sink *out, etacal_error *err);
 
 #if defined(__GNUC__)
 #pragma GCC visibility pop

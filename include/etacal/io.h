@@ -53,7 +53,8 @@ typedef struct etacal_sink {
 int etacal_sink_file(void *fp, const char *buf, size_t len);
 
 /* The formats of the result writers (etacal_check_write,
- * etacal_backtest_write, etacal_qr_write): aligned text for people; CSV
+ * etacal_backtest_write, etacal_qr_write, etacal_curve_write,
+ * etacal_publish_write_report): aligned text for people; CSV
  * for machines and SQL joins (a header line, then one record per figure,
  * comma-delimited, an empty field for none); JSON (one object, indented
  * by 2, members in a fixed order, NaN and infinities as null) whose shape

@@ -21,6 +21,7 @@
 
 #include "etacal/error.h"
 #include "etacal/fit.h"
+#include "etacal/io.h"
 #include "etacal/quote.h"
 #include "etacal/table.h"
 
@@ -260,6 +261,29 @@ const char *etacal_publish_result_history_path(const etacal_publish_result *r);
  * last} (with a time column), table {sha256, method, targets, rows},
  * guards [{guard, result, detail}]. */
 const char *etacal_publish_result_record(const etacal_publish_result *r, size_t *len);
+
+/* The change report of r, the result of a run with the specification s,
+ * to out, in a format:
+ *   ETACAL_FORMAT_TEXT  for people: the rows read, the new table, the
+ *                       current one and the reference order, the segments
+ *                       added, removed, changed and unchanged, the largest
+ *                       moves of the promise at the reference order (at
+ *                       most show of them; 0: none listed), the segments
+ *                       with a row in one table only, the guards (ok,
+ *                       FAILED or -, and the message) and the outcome with
+ *                       the files written;
+ *   ETACAL_FORMAT_JSON  {etacal, table, input, outcome ("published",
+ *                       "refused", "dry run"), rows {read, used, missing,
+ *                       skipped_bad}, reference {pred_s, <covariate>...},
+ *                       segments ({added, removed, changed, unchanged}, or
+ *                       null without a comparison), moves [{keys, target,
+ *                       in_current, in_new, current_s, new_s, move_s}]
+ *                       (every move, null for a missing promise), guards
+ *                       [{guard, result, detail}]}.
+ * ETACAL_OK; ETACAL_EINVAL (another format); ETACAL_ENOMEM (what was
+ * written is then incomplete); ETACAL_EIO when the sink refuses bytes. */
+int etacal_publish_write_report(const etacal_publish_result *r, const etacal_publishspec *s, int format,
+                                size_t show, const etacal_sink *out, etacal_error *err);
 
 #if defined(__GNUC__)
 #pragma GCC visibility pop

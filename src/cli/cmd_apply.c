@@ -1,7 +1,10 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* cmd_apply.c: `etacal apply`: stream new orders through a quote table,
- * appending the promise to each. */
+ * appending the promise to each (etacal_apply_csv), and the library's
+ * summary of the run (etacal_apply_write_summary) on stderr, or on stdout
+ * with -o. */
 #include "cli.h"
+#include "outsink.h"
 
 #include <getopt.h>
 #include <string.h>
@@ -32,14 +35,6 @@ static const char help[] =
     "\n"
     "An order with an empty or NA prediction gets an empty promise and is counted.\n"
     "The summary goes to stderr (to stdout with -o).  ORDERS.csv may be -.\n";
-
-static void pct(FILE *fp, size_t hits, size_t n)
-{
-    if (n)
-        fprintf(fp, "%.2f%% (%zu/%zu)", 100.0 * (double)hits / (double)n, hits, n);
-    else
-        fprintf(fp, "- (0/0)");
-}
 
 int cmd_apply(int argc, char **argv)
 {
@@ -102,6 +97,7 @@ int cmd_apply(int argc, char **argv)
     etacal_quotes *q = NULL;
     etacal_outfile of = {0};
     etacal_apply_stats st;
+    outbuf sum = {0};
     size_t sel[ETACAL_APPLY_MAX_TARGETS];
     int rc = etacal_quotes_read_csv(table, tdelim, &q, &err);
     if (rc)
@@ -124,55 +120,27 @@ int cmd_apply(int argc, char **argv)
     if (rc)
         goto fail;
     rc = etacal_apply_csv(q, orders, of.fp, &ao, &st, &err);
+    /* the summary is made in memory first: the orders' output appears only
+     * with it */
+    if (rc == 0 && !quiet) {
+        etacal_sink sink = outbuf_sink(&sum);
+        rc = etacal_apply_write_summary(q, orders, &ao, &st, &sink, &err);
+        if (rc && sum.oom)
+            rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+    }
     if (rc == 0)
         rc = etacal_outfile_commit(&of, &err);
     if (rc) {
         etacal_outfile_abort(&of);
         goto fail;
     }
-    if (!quiet) {
-        FILE *fp = output ? stdout : stderr;
-        fprintf(fp, "etacal apply: %s: %zu orders, %zu promised, %zu without a prediction, %zu malformed",
-                orders, st.rows, st.promised, st.missing_pred, st.bad);
-        if (q->nkeys)
-            fprintf(fp, "; %zu took a less specific row than their own segment", st.fallback);
-        putc('\n', fp);
-        if (q->ncoef && q->ranges)
-            fprintf(fp, "covariates: %zu order%s outside the range their table row was fitted on, clamped into it\n",
-                    st.clamped, st.clamped == 1 ? "" : "s");
-        else if (q->ncoef)
-            fputs("covariates: the table has no min_/max_ ranges (written before they were stored): not clamped\n",
-                  fp);
-        if (st.floored)
-            fprintf(fp, "%zu order%s promised 0 s: the formula gave less than 0\n", st.floored,
-                    st.floored == 1 ? "" : "s");
-        size_t nsel0 = ntargets ? ntargets : q->ntargets;
-        for (size_t t = 0; t < nsel0 && st.promised; t++) {
-            char p[ETACAL_NUM_BUFSZ];
-            etacal_percent_label(q->targets[ntargets ? sel[t] : t], p);
-            double mp = st.promise_sum[t] / (double)st.promised, mb = st.pred_sum / (double)st.promised;
-            fprintf(fp, "mean promise for target %s%%: %.1f s (%.2f min), %.1f s (%.2f min) above the prediction\n",
-                    p, mp, mp / 60, mp - mb, (mp - mb) / 60);
-        }
-        if (ao.actual_col) {
-            size_t nsel = ntargets ? ntargets : q->ntargets;
-            fprintf(fp, "on time (actual <= promise) on the %zu promised orders with an actual duration:\n",
-                    st.with_actual);
-            for (size_t t = 0; t < nsel; t++) {
-                char p[ETACAL_NUM_BUFSZ];
-                etacal_percent_label(q->targets[ntargets ? sel[t] : t], p);
-                fprintf(fp, "  promise for target %s%%: ", p);
-                pct(fp, st.hits[t], st.with_actual);
-                putc('\n', fp);
-            }
-            fprintf(fp, "  bare prediction:          ");
-            pct(fp, st.bare_hits, st.with_actual);
-            putc('\n', fp);
-        }
-    }
+    if (!quiet)
+        fwrite(sum.data, 1, sum.len, output ? stdout : stderr);
+    free(sum.data);
     etacal_quotes_destroy(q);
     return 0;
 fail:
+    free(sum.data);
     etacal_quotes_destroy(q);
     return report_error(&err);
 }

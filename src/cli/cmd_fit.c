@@ -2,6 +2,7 @@
 /* cmd_fit.c: `etacal fit`: read calibration rows, fit the quote table,
  * write it, and print a summary people can read. */
 #include "fitargs.h"
+#include "outsink.h"
 
 #include <stdlib.h>
 #include <string.h>
@@ -91,34 +92,33 @@ int cmd_fit(int argc, char **argv)
 
     etacal_error err;
     etacal_error_clear(&err);
-    fit_result r = {0};
+    etacal_fitspec spec;
+    fit_spec(&a, &spec);
+    etacal_fit_run *run = NULL;
     etacal_outfile of = {0};
-    char *sbuf = NULL;
-    size_t slen = 0;
-    int rc = fit_run(&a, path, &r, &err);
+    outbuf sum = {0};
+    progress pg = {path, 0, -1};
+    etacal_read_opts ro = a.ro;
+    ro.progress = progress_cb;
+    ro.progress_ud = &pg;
+    int rc = etacal_fit_csv(&spec, path, &ro, &run, &err);
+    progress_end(&pg);
     if (rc)
         goto fail;
     /* The summary is made in memory first: when memory runs out there,
      * no table is written either. */
     if (!quiet) {
-        FILE *ms = open_memstream(&sbuf, &slen);
-        int bad = !ms || fit_print_summary(ms, path, &a, &r) != 0 || fit_print_holdout(ms, &a, &r) != 0;
-        /* A memory stream fails when it cannot grow.  glibc's fclose of one
-         * reports no failure of its last realloc, but then leaves the
-         * buffer as the last fflush set it: so that fflush is checked. */
-        if (ms && (fflush(ms) != 0 || ferror(ms)))
-            bad = 1;
-        if (ms && fclose(ms) != 0)
-            bad = 1;
-        if (bad || !sbuf) {
-            rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
+        etacal_sink sink = outbuf_sink(&sum);
+        if ((rc = etacal_fit_write_summary(run, &spec, path, &sink, &err)) != 0) {
+            if (sum.oom)
+                rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
             goto fail;
         }
     }
     rc = etacal_outfile_open(&of, output ? output : "-", &err);
     if (rc)
         goto fail;
-    rc = etacal_quotes_write_csv(r.q, of.fp, &err);
+    rc = etacal_quotes_write_csv(etacal_fit_run_quotes(run), of.fp, &err);
     if (rc == 0)
         rc = etacal_outfile_commit(&of, &err);
     if (rc) {
@@ -126,12 +126,12 @@ int cmd_fit(int argc, char **argv)
         goto fail;
     }
     if (!quiet)
-        fwrite(sbuf, 1, slen, output ? stdout : stderr);
-    free(sbuf);
-    fit_result_free(&r);
+        fwrite(sum.data, 1, sum.len, output ? stdout : stderr);
+    free(sum.data);
+    etacal_fit_run_destroy(run);
     return 0;
 fail:
-    free(sbuf);
-    fit_result_free(&r);
+    free(sum.data);
+    etacal_fit_run_destroy(run);
     return report_error(&err);
 }

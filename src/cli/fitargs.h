@@ -1,7 +1,7 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* fitargs.h: the options of `etacal fit`, shared with `etacal publish`
- * (which fits the same way), and the fit run itself: read the calibration
- * rows, fit, and score the held-out rows. */
+ * (which fits the same way), `curve` and `report`, and the library's fit
+ * specification (fit.h) they make. */
 #ifndef ETACAL_CLI_FITARGS_H
 #define ETACAL_CLI_FITARGS_H
 
@@ -63,30 +63,8 @@ int fit_option(int c, const char *cmd, fit_args *a);
  * 0, else a usage error. */
 int fit_args_check(fit_args *a, const char *cmd);
 
-/* What a fit run produces: the library's run (etacal_fit_csv) and views
- * into it.  Zero-initialise; fit_result_free releases. */
-typedef struct fit_result {
-    etacal_fit_run *run;
-    const etacal_table *t;
-    const etacal_quotes *q;
-    const size_t *key_cols, *x_cols;
-    long time_col;               /* column of the table, or -1 */
-    const unsigned char *mask;   /* with --holdout: 1 for the held-out rows */
-    size_t held;                 /* held-out rows */
-    const etacal_holdout *ho;    /* with --holdout: on-time rates on them */
-} fit_result;
-
 /* The library's specification of the fit these options ask for (the
  * arrays stay a's). */
 void fit_spec(const fit_args *a, etacal_fitspec *s);
-
-/* Reads path (columns: actual 0, pred 1, keys, covariates, time) and fits. */
-int fit_run(const fit_args *a, const char *path, fit_result *r, etacal_error *err);
-void fit_result_free(fit_result *r);
-
-/* The summary `etacal fit` prints, and its held-out table: 0, or -1 when
- * out of memory (then what was printed is incomplete). */
-int fit_print_summary(FILE *fp, const char *path, const fit_args *a, const fit_result *r);
-int fit_print_holdout(FILE *fp, const fit_args *a, const fit_result *r);
 
 #endif
