@@ -22,7 +22,6 @@ int cmd_publish(int argc, char **argv);
 int cmd_report(int argc, char **argv);
 
 /* One CSV field with a comma delimiter. */
-void csv_field(FILE *fp, const char *s);
 
 /* "etacal: CMD: msg" and a hint to --help on stderr; returns EXIT_USAGE. */
 int usage_error(const char *cmd, const char *fmt, ...)
@@ -75,27 +74,5 @@ void progress_cb(void *ud, uint64_t done, uint64_t total);
 void progress_end(progress *p);
 
 /* An aligned text table. */
-typedef struct text_table {
-    size_t ncols, nrows, cap;
-    char **cells; /* row-major, owned */
-    int *right;   /* per column: right-align */
-    int oom;      /* a row could not be added: the table is incomplete */
-} text_table;
-int tt_init(text_table *t, size_t ncols);
-/* Adds a row; -1 when out of memory (then the table remembers it). */
-int tt_add(text_table *t, const char *const *cells);
-/* Prints the table; -1, printing nothing, when it is incomplete (a failed
- * tt_init or tt_add) or memory runs out, so that a caller reports that
- * instead of a table with rows missing. */
-int tt_print(const text_table *t, FILE *fp);
-
-/* JSON output (jansson).  json_watch_alloc (main) makes jansson's
- * allocations watched; json_out writes root and a newline to fp, or fills
- * err: out of memory when root is NULL or any JSON allocation has failed
- * since, else a write error.  root stays the caller's. */
-typedef struct json_t json_t;
-void json_watch_alloc(void);
-int json_out(json_t *root, FILE *fp, size_t flags, const char *where, etacal_error *err);
-void tt_free(text_table *t);
 
 #endif

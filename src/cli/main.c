@@ -2,7 +2,6 @@
 /* main.c: the etacal command: dispatches to one function per command. */
 #include "cli.h"
 
-#include <gsl/gsl_errno.h>
 #include <string.h>
 
 static const char usage[] =
@@ -30,9 +29,6 @@ static const char usage[] =
 
 int main(int argc, char **argv)
 {
-    /* GSL's default error handler aborts; the library reports errors itself. */
-    gsl_set_error_handler_off();
-    json_watch_alloc();
     if (argc < 2)
         return usage_error(NULL, "no command given");
     const char *cmd = argv[1];

@@ -3,7 +3,6 @@
  * progress reporting, and the aligned text table used by text output. */
 #include "cli.h"
 
-#include <jansson.h>
 
 #include <math.h>
 #include <stdarg.h>
@@ -139,129 +138,6 @@ void progress_end(progress *p)
         fputs("\r\033[K", stderr);
     p->active = 0;
 }
-
-int tt_init(text_table *t, size_t ncols)
-{
-    memset(t, 0, sizeof *t);
-    t->ncols = ncols;
-    t->right = calloc(ncols, sizeof *t->right);
-    t->oom = !t->right;
-    return t->right ? 0 : -1;
-}
-
-int tt_add(text_table *t, const char *const *cells)
-{
-    if (t->oom || !t->right)
-        return -1;
-    if (t->nrows == t->cap) {
-        size_t ncap = t->cap ? t->cap * 2 : 16;
-        char **c = realloc(t->cells, ncap * t->ncols * sizeof *c);
-        if (!c) {
-            t->oom = 1;
-            return -1;
-        }
-        t->cells = c;
-        t->cap = ncap;
-    }
-    for (size_t j = 0; j < t->ncols; j++) {
-        const char *s = cells[j] ? cells[j] : "";
-        size_t len = strlen(s);
-        char *d = malloc(len + 1);
-        if (!d) {
-            /* the row's cells so far are not counted by nrows: free them */
-            while (j-- > 0)
-                free(t->cells[t->nrows * t->ncols + j]);
-            t->oom = 1;
-            return -1;
-        }
-        memcpy(d, s, len + 1);
-        t->cells[t->nrows * t->ncols + j] = d;
-    }
-    t->nrows++;
-    return 0;
-}
-
-/* Display width of UTF-8 text: code points, not bytes. */
-static size_t width(const char *s)
-{
-    size_t w = 0;
-    for (; *s; s++)
-        w += ((unsigned char)*s & 0xC0) != 0x80;
-    return w;
-}
-
-int tt_print(const text_table *t, FILE *fp)
-{
-    if (t->oom || !t->right)
-        return -1;
-    size_t *w = calloc(t->ncols ? t->ncols : 1, sizeof *w);
-    if (!w)
-        return -1;
-    for (size_t i = 0; i < t->nrows; i++)
-        for (size_t j = 0; j < t->ncols; j++) {
-            size_t l = width(t->cells[i * t->ncols + j]);
-            if (l > w[j])
-                w[j] = l;
-        }
-    for (size_t i = 0; i < t->nrows; i++) {
-        /* no trailing blanks: stop after the last non-empty cell */
-        size_t end = t->ncols;
-        while (end > 1 && !t->cells[i * t->ncols + end - 1][0])
-            end--;
-        for (size_t j = 0; j < end; j++) {
-            const char *c = t->cells[i * t->ncols + j];
-            size_t pad = w[j] - width(c);
-            int last = j + 1 == end;
-            if (t->right[j])
-                fprintf(fp, "%*s%s", (int)pad, "", c);
-            else
-                fprintf(fp, "%s%*s", c, last ? 0 : (int)pad, "");
-            if (!last)
-                fputs("  ", fp);
-        }
-        putc('\n', fp);
-    }
-    free(w);
-    return 0;
-}
-
-void tt_free(text_table *t)
-{
-    for (size_t i = 0; i < t->nrows * t->ncols; i++)
-        free(t->cells[i]);
-    free(t->cells);
-    free(t->right);
-    memset(t, 0, sizeof *t);
-}
-
-/* jansson's allocations, watched: a json_real or json_pack that runs out
- * of memory returns NULL, and the setters drop a NULL value without a
- * word, so a document could come out with members missing. */
-static int json_oom_seen;
-
-static void *json_malloc_watched(size_t n)
-{
-    void *p = malloc(n);
-    if (!p)
-        json_oom_seen = 1;
-    return p;
-}
-
-void json_watch_alloc(void) { json_set_alloc_funcs(json_malloc_watched, free); }
-
-int json_out(json_t *root, FILE *fp, size_t flags, const char *where, etacal_error *err)
-{
-    int dumped = root && !json_oom_seen && json_dumpf(root, fp, flags) == 0;
-    if (dumped && !json_oom_seen) {
-        putc('\n', fp);
-        return ETACAL_OK;
-    }
-    if (root && !json_oom_seen && ferror(fp))
-        return etacal_error_set(err, ETACAL_EIO, where, "cannot write JSON: write failed");
-    return etacal_error_set(err, ETACAL_ENOMEM, where, "out of memory");
-}
-
-void csv_field(FILE *fp, const char *s) { etacal_csv_put_field(fp, s, strlen(s), ','); }
 
 int parse_duration(const char *s, double *out)
 {
