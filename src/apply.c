@@ -5,6 +5,7 @@
  * output differs from the input only by the appended promise columns.  Only
  * one record is held at a time: memory is flat in the number of orders. */
 #include "base.h"
+#include "quote_internal.h"
 #include "csvio.h"
 
 #include <math.h>

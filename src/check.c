@@ -7,6 +7,7 @@
  * table that made the promises, Beta-binomial under the law of each served
  * row's bound (Vovk 2012), and Holm's (1979) correction across them. */
 #include "base.h"
+#include "quote_internal.h"
 #include "segment.h"
 
 #include <math.h>

@@ -3,6 +3,7 @@
  * a grid of targets and its held-out counts (holdout.c).  The on-time rates
  * carry Wilson (1927) intervals (binom.c). */
 #include "base.h"
+#include "quote_internal.h"
 
 #include <math.h>
 #include <stdlib.h>

@@ -4,6 +4,7 @@
  * specific matching row), and the rows on time are counted overall and per
  * segment. */
 #include "base.h"
+#include "quote_internal.h"
 
 #include <gsl/gsl_rng.h>
 #include <math.h>

@@ -4,6 +4,7 @@
  * the clamped covariates, the mean promise per target and, with actual
  * durations, the on-time rates the promises reach. */
 #include "base.h"
+#include "quote_internal.h"
 
 #include <stdio.h>
 

@@ -3,6 +3,7 @@
  * aligned text with one table per segment, CSV with one line per segment
  * and target, and JSON (the shape is in the man page, docs/etacal.1). */
 #include "base.h"
+#include "quote_internal.h"
 #include "textout.h"
 
 #include <math.h>

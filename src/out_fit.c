@@ -7,6 +7,7 @@
  * the held-out rows with Wilson intervals.  The row that serves a segment
  * is found through the quote index, as apply finds it. */
 #include "base.h"
+#include "quote_internal.h"
 #include "textout.h"
 
 #include <math.h>

@@ -5,6 +5,7 @@
  * reference order, the segments in one table only), the guards and the
  * outcome; as aligned text for people or as JSON. */
 #include "base.h"
+#include "quote_internal.h"
 #include "textout.h"
 
 #include <math.h>

@@ -14,10 +14,11 @@
  * so the split-conformal guarantee is that of the clamped formula exactly.
  * A promise is a duration: whatever the formula gives, never below 0. */
 #include "base.h"
+#include "quote_internal.h"
 
 #include <math.h>
 
-double etacal_quote_promise(const etacal_quotes *q, const etacal_quote *row, double pred, const double *x,
+double quote_row_promise(const etacal_quotes *q, const etacal_quote *row, double pred, const double *x,
                             int *clamped, int *floored)
 {
     double v = row->offset_s + row->slope * pred;
@@ -41,4 +42,12 @@ double etacal_quote_promise(const etacal_quotes *q, const etacal_quote *row, dou
     if (floored)
         *floored = low;
     return v;
+}
+
+double etacal_quotes_promise(const etacal_quotes *q, size_t r, double pred, const double *x, int *clamped,
+                             int *floored)
+{
+    if (!q || r >= q->nrows)
+        return NAN;
+    return quote_row_promise(q, &q->rows[r], pred, x, clamped, floored);
 }

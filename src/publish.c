@@ -3,6 +3,7 @@
  * tables, the publisher's lock and the copy of the previous table. */
 #define _GNU_SOURCE
 #include "base.h"
+#include "quote_internal.h"
 
 #include "etacal/conformal.h"
 #include "etacal/io.h"

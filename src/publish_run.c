@@ -11,6 +11,7 @@
  * practice, no source).  The clock is the caller's (spec->now). */
 #define _GNU_SOURCE
 #include "base.h"
+#include "quote_internal.h"
 #include "textout.h"
 
 #include "etacal/binom.h"

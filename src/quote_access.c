@@ -3,6 +3,7 @@
  * library (quote.h's accessors), so that the table's layout in memory can
  * change without breaking them.  Indices out of range give 0, NaN or NULL. */
 #include "base.h"
+#include "quote_internal.h"
 
 #include <math.h>
 

@@ -8,6 +8,7 @@
  * hashes each key text once and then walks the levels up without building
  * any text, and without allocating. */
 #include "base.h"
+#include "quote_internal.h"
 
 #include <stdlib.h>
 #include <string.h>
@@ -168,7 +169,7 @@ long etacal_quote_index_segment(const etacal_quote_index *ix, const char *const 
 double etacal_quote_index_promise(const etacal_quote_index *ix, long r, double pred, const double *x, int *clamped,
                                   int *floored)
 {
-    return etacal_quote_promise(ix->q, &ix->q->rows[r], pred, x, clamped, floored);
+    return quote_row_promise(ix->q, &ix->q->rows[r], pred, x, clamped, floored);
 }
 
 const etacal_quotes *etacal_quote_index_quotes(const etacal_quote_index *ix) { return ix->q; }

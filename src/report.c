@@ -6,6 +6,7 @@
  * (etacal_binom_range), the rolling-origin backtest (backtest.c).  The only
  * counting done here is the residual histogram, a summary for the eye. */
 #include "base.h"
+#include "quote_internal.h"
 
 #include <math.h>
 #include <stdlib.h>

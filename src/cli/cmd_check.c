@@ -252,23 +252,24 @@ static int quote_table(check_args *a, etacal_quotes **qt)
         char list[256];
         size_t w = 0;
         list[0] = '\0';
-        for (size_t i = 0; i < q->ntargets && w + ETACAL_NUM_BUFSZ + 2 < sizeof list; i++) {
+        for (size_t i = 0; i < etacal_quotes_ntargets(q) && w + ETACAL_NUM_BUFSZ + 2 < sizeof list; i++) {
             char num[ETACAL_NUM_BUFSZ];
-            etacal_num_format(q->targets[i], num);
+            etacal_num_format(etacal_quotes_target(q, i), num);
             w += (size_t)snprintf(list + w, sizeof list - w, "%s%s", i ? ", " : "", num);
         }
         return usage_error("check", "--upper level %g is not a target of the table %s (its targets: %s)",
                            a->co.upper_level, a->table_path, list);
     }
-    if (q->nkeys > MAX_KEYS)
+    size_t nk = etacal_quotes_nkeys(q);
+    if (nk > MAX_KEYS)
         return usage_error("check", "the table has more than %d key columns", MAX_KEYS);
-    for (size_t j = 0; j < q->nkeys; j++)
+    for (size_t j = 0; j < nk; j++)
         for (size_t i = 0; i < a->cs.n; i++)
-            if (strcmp(a->cs.spec[i].name, q->key_names[j]) == 0)
+            if (strcmp(a->cs.spec[i].name, etacal_quotes_key_name(q, j)) == 0)
                 return usage_error("check", "the table's key column '%s' is also a numeric column here",
-                                   q->key_names[j]);
-    for (size_t j = 0; j < q->nkeys; j++)
-        a->tkey_cols[j] = add_col(&a->cs, q->key_names[j], ETACAL_COL_KEY, 0, NULL);
+                                   etacal_quotes_key_name(q, j));
+    for (size_t j = 0; j < nk; j++)
+        a->tkey_cols[j] = add_col(&a->cs, etacal_quotes_key_name(q, j), ETACAL_COL_KEY, 0, NULL);
     a->co.table = q;
     a->co.table_key_cols = a->tkey_cols;
     a->co.table_source = a->table_path;

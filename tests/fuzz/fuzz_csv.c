@@ -10,6 +10,7 @@
 #define _GNU_SOURCE
 #endif
 #include "etacal/etacal.h"
+#include "internal.h" /* the quote table's fields, to check them */
 
 #include "fuzz_common.h"
 

@@ -25,6 +25,7 @@
 #include <unistd.h>
 
 #include "etacal/etacal.h"
+#include "internal.h"
 
 typedef struct mc {
     double mean, se;

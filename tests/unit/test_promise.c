@@ -19,6 +19,7 @@
 #include <string.h>
 
 #include "etacal/etacal.h"
+#include "internal.h"
 #include "testutil.h"
 
 #define near(got, want) assert_close(got, want, 1e-12)
@@ -52,13 +53,13 @@ static void test_inside_range(void **state)
     /* -564.875 + 0.9375 x 1500 + 95.125 x 3.2 + 1.0625 x 600
      * = -564.875 + 1406.25 + 304.4 + 637.5 = 1783.275 */
     double x[2] = {3.2, 600};
-    near(etacal_quote_promise(&q, &r, 1500, x, &c, &f), 1783.275);
+    near(quote_row_promise(&q, &r, 1500, x, &c, &f), 1783.275);
     assert_int_equal(c, 0);
     assert_int_equal(f, 0);
     /* at the edges themselves: nothing moves */
     double e[2] = {9.2, 147};
     /* -564.875 + 1406.25 + 875.15 + 156.1875 = 1872.7125 */
-    near(etacal_quote_promise(&q, &r, 1500, e, &c, &f), 1872.7125);
+    near(quote_row_promise(&q, &r, 1500, e, &c, &f), 1872.7125);
     assert_int_equal(c, 0);
 }
 
@@ -72,25 +73,25 @@ static void test_clamped_above_and_below(void **state)
     /* distance 92 (ten times the maximum) is taken as 9.2, prep 600 as is:
      * -564.875 + 1406.25 + 875.15 + 637.5 = 2354.025 */
     double far[2] = {92, 600};
-    near(etacal_quote_promise(&q, &r, 1500, far, &c, &f), 2354.025);
+    near(quote_row_promise(&q, &r, 1500, far, &c, &f), 2354.025);
     assert_int_equal(c, 1);
     assert_int_equal(f, 0);
     /* prep 5 below 147: -564.875 + 1406.25 + 304.4 + 156.1875 = 1301.9625 */
     double low[2] = {3.2, 5};
     c = 0;
-    near(etacal_quote_promise(&q, &r, 1500, low, &c, &f), 1301.9625);
+    near(quote_row_promise(&q, &r, 1500, low, &c, &f), 1301.9625);
     assert_int_equal(c, 1);
     /* the prediction itself is never clamped: pred 15000 is far above any
      * data, yet counts in full: -564.875 + 14062.5 + 304.4 + 637.5 = 14439.525 */
     double mid[2] = {3.2, 600};
     c = -1;
-    near(etacal_quote_promise(&q, &r, 15000, mid, &c, NULL), 14439.525);
+    near(quote_row_promise(&q, &r, 15000, mid, &c, NULL), 14439.525);
     assert_int_equal(c, 0);
     /* without ranges (an older table) the line extrapolates:
      * -564.875 + 1406.25 + 8751.5 + 637.5 = 10230.375 */
     row_with(&q, &r, 0);
     c = -1;
-    near(etacal_quote_promise(&q, &r, 1500, far, &c, NULL), 10230.375);
+    near(quote_row_promise(&q, &r, 1500, far, &c, NULL), 10230.375);
     assert_int_equal(c, 0);
 }
 
@@ -105,7 +106,7 @@ static void test_floor_at_zero(void **state)
      * 1.0625 x 147 (20 clamped up) = -564.875 + 37.5 + 66.5875 + 156.1875
      * = -304.6 < 0: promise 0 */
     double x[2] = {0.1, 20};
-    assert_true(etacal_quote_promise(&q, &r, 40, x, &c, &f) == 0);
+    assert_true(quote_row_promise(&q, &r, 40, x, &c, &f) == 0);
     assert_int_equal(c, 1);
     assert_int_equal(f, 1);
     /* the add method too: 120 - 300.5 < 0 */
@@ -117,9 +118,9 @@ static void test_floor_at_zero(void **state)
     ra.offset_s = -300.5;
     ra.slope = 1;
     f = 0;
-    assert_true(etacal_quote_promise(&qa, &ra, 120, NULL, NULL, &f) == 0);
+    assert_true(quote_row_promise(&qa, &ra, 120, NULL, NULL, &f) == 0);
     assert_int_equal(f, 1);
-    near(etacal_quote_promise(&qa, &ra, 1200.25, NULL, NULL, &f), 899.75);
+    near(quote_row_promise(&qa, &ra, 1200.25, NULL, NULL, &f), 899.75);
     assert_int_equal(f, 0);
 }
 
@@ -146,7 +147,7 @@ static void test_read_ranges(void **state)
      * 1.0625 x 600 = -90.25 + 875 + 786.6 + 637.5 = 2208.85 */
     double x[2] = {92, 600};
     int c = 0;
-    near(etacal_quote_promise(q, h, 1000, x, &c, NULL), 2208.85);
+    near(quote_row_promise(q, h, 1000, x, &c, NULL), 2208.85);
     assert_int_equal(c, 1);
     /* written back: the range columns after the coefficients, as min, max */
     char *buf = NULL;

@@ -22,6 +22,7 @@
 #include <unistd.h>
 
 #include "etacal/etacal.h"
+#include "internal.h"
 #include "testutil.h"
 
 /* ---- SHA-256 ------------------------------------------------------------ */

@@ -18,6 +18,7 @@
 #include <string.h>
 
 #include "etacal/etacal.h"
+#include "internal.h"
 #include "testutil.h"
 
 static const char table_text[] = "zone,band,target,method,n,k,offset_s,slope\n"

@@ -28,6 +28,7 @@
 #include <unistd.h>
 
 #include "etacal/etacal.h"
+#include "internal.h"
 #include "testutil.h"
 
 #define NROWS 2400

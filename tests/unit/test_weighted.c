@@ -22,6 +22,7 @@
 #include <unistd.h>
 
 #include "etacal/etacal.h"
+#include "internal.h"
 
 static char path[64];
 
