@@ -5,6 +5,7 @@
  * output differs from the input only by the appended promise columns.  Only
  * one record is held at a time: memory is flat in the number of orders. */
 #include "base.h"
+#include "stream.h"
 #include "quote_internal.h"
 #include "csvio.h"
 
@@ -294,7 +295,7 @@ out:
     return stop;
 }
 
-int etacal_apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,
+int apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,
                      const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err)
 {
     int rc = ETACAL_OK;

@@ -100,8 +100,22 @@ double ceil_scaled(double x, double scale);
  * and closes it and returns rc when nonzero, else ETACAL_OK or an I/O error
  * when the sink refused bytes. */
 FILE *sink_fopen(const etacal_sink *s);
-/* etacal_outfile_open for a path taken as it is ("-" is a file name here). */
-int outfile_open_path(etacal_outfile *o, const char *path, etacal_error *err);
+/* An output file that appears whole or not at all (io.c; the public
+ * etacal_outfile is one of these with a sink): the data goes to tmp, which
+ * outfile_commit flushes, fsyncs and renames over path.  Zero-initialise;
+ * outfile_abort is safe on a zeroed, committed or aborted outfile.  The
+ * path is taken as it is. */
+typedef struct outfile {
+    FILE *fp;   /* write here */
+    char *path; /* owned copies */
+    char *tmp;
+} outfile;
+int outfile_open(outfile *o, const char *path, etacal_error *err);
+int outfile_commit(outfile *o, etacal_error *err);
+void outfile_abort(outfile *o);
+/* A sink's write function over a stdio stream (ud: the FILE); a short write
+ * stays in the stream's error flag for the commit to report. */
+int sink_stdio(void *ud, const char *buf, size_t len);
 int sink_fclose(FILE *fp, int rc, etacal_error *err);
 
 /* Writes a raw record without its line terminator and returns the

@@ -10,5 +10,6 @@
 #include "csvio.h"
 #include "quote_internal.h"
 #include "segment.h"
+#include "stream.h"
 
 #endif

@@ -11,18 +11,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
-int etacal_outfile_open(etacal_outfile *o, const char *path, etacal_error *err)
-{
-    memset(o, 0, sizeof *o);
-    if (strcmp(path, "-") == 0) {
-        o->fp = stdout;
-        o->is_stdout = 1;
-        return ETACAL_OK;
-    }
-    return outfile_open_path(o, path, err);
-}
-
-int outfile_open_path(etacal_outfile *o, const char *path, etacal_error *err)
+int outfile_open(outfile *o, const char *path, etacal_error *err)
 {
     memset(o, 0, sizeof *o);
     if (!path || !path[0])
@@ -31,7 +20,7 @@ int outfile_open_path(etacal_outfile *o, const char *path, etacal_error *err)
     o->path = malloc(len + 1);
     o->tmp = malloc(len + 16);
     if (!o->path || !o->tmp) {
-        etacal_outfile_abort(o);
+        outfile_abort(o);
         return etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
     }
     memcpy(o->path, path, len + 1);
@@ -41,7 +30,7 @@ int outfile_open_path(etacal_outfile *o, const char *path, etacal_error *err)
         int e = errno;
         free(o->tmp);
         o->tmp = NULL;
-        etacal_outfile_abort(o);
+        outfile_abort(o);
         return etacal_error_set(err, ETACAL_EIO, path, "cannot create output file: %s", strerror(e));
     }
     mode_t um = umask(0);
@@ -51,7 +40,7 @@ int outfile_open_path(etacal_outfile *o, const char *path, etacal_error *err)
     if (!o->fp) {
         int e = errno;
         close(fd);
-        etacal_outfile_abort(o);
+        outfile_abort(o);
         return etacal_error_set(err, ETACAL_EIO, path, "cannot open output file: %s", strerror(e));
     }
     return ETACAL_OK;
@@ -74,13 +63,8 @@ static void fsync_dir_of(const char *path)
     }
 }
 
-int etacal_outfile_commit(etacal_outfile *o, etacal_error *err)
+int outfile_commit(outfile *o, etacal_error *err)
 {
-    if (o->is_stdout) {
-        if (fflush(stdout) != 0 || ferror(stdout))
-            return etacal_error_set(err, ETACAL_EIO, "stdout", "write failed: %s", strerror(errno));
-        return ETACAL_OK;
-    }
     if (!o->fp)
         return etacal_error_set(err, ETACAL_EIO, o->path, "output file is not open");
     int bad = fflush(o->fp) != 0 || ferror(o->fp);
@@ -101,7 +85,7 @@ int etacal_outfile_commit(etacal_outfile *o, etacal_error *err)
     if (bad) {
         char where[128];
         snprintf(where, sizeof where, "%s", o->path);
-        etacal_outfile_abort(o);
+        outfile_abort(o);
         return etacal_error_set(err, ETACAL_EIO, where, "write failed: %s", strerror(e));
     }
     fsync_dir_of(o->path);
@@ -112,11 +96,11 @@ int etacal_outfile_commit(etacal_outfile *o, etacal_error *err)
     return ETACAL_OK;
 }
 
-void etacal_outfile_abort(etacal_outfile *o)
+void outfile_abort(outfile *o)
 {
     if (!o)
         return;
-    if (o->fp && !o->is_stdout)
+    if (o->fp)
         fclose(o->fp);
     o->fp = NULL;
     if (o->tmp)
@@ -183,7 +167,50 @@ int sink_fclose(FILE *fp, int rc, etacal_error *err)
     return ETACAL_OK;
 }
 
-int etacal_sink_file(void *fp, const char *buf, size_t len)
+/* ---- the public output file: an outfile and its sink ------------------- */
+struct etacal_outfile {
+    outfile f;
+    etacal_sink sink;
+};
+
+int sink_stdio(void *ud, const char *buf, size_t len)
 {
-    return fwrite(buf, 1, len, fp) == len ? 0 : -1;
+    (void)fwrite(buf, 1, len, (FILE *)ud);
+    return 0;
+}
+
+int etacal_outfile_open(const char *path, etacal_outfile **out, etacal_error *err)
+{
+    if (!out)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "no place for the output file");
+    *out = NULL;
+    etacal_outfile *o = calloc(1, sizeof *o);
+    if (!o)
+        return etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory");
+    int rc = outfile_open(&o->f, path, err);
+    if (rc) {
+        free(o);
+        return rc;
+    }
+    o->sink.write = sink_stdio;
+    o->sink.ud = o->f.fp;
+    *out = o;
+    return ETACAL_OK;
+}
+
+const etacal_sink *etacal_outfile_sink(const etacal_outfile *o) { return &o->sink; }
+
+int etacal_outfile_commit(etacal_outfile *o, etacal_error *err)
+{
+    if (!o)
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "no output file");
+    return outfile_commit(&o->f, err);
+}
+
+void etacal_outfile_destroy(etacal_outfile *o)
+{
+    if (!o)
+        return;
+    outfile_abort(&o->f);
+    free(o);
 }

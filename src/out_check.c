@@ -4,6 +4,7 @@
  * check.h.  They compute nothing: every figure, test and verdict comes
  * from etacal_check_run. */
 #include "base.h"
+#include "stream.h"
 #include "textout.h"
 
 #include <math.h>
@@ -279,7 +280,7 @@ static void csv_num(FILE *fp, double v)
         fprintf(fp, "%.10g", v);
 }
 
-static void csv_str(FILE *fp, const char *s) { etacal_csv_put_field(fp, s, strlen(s), ','); }
+static void csv_str(FILE *fp, const char *s) { csv_put_field(fp, s, strlen(s), ','); }
 
 /* Separated by commas, each NaN an empty field. */
 static void csv_nums(FILE *fp, const double *v, size_t n)

@@ -3,6 +3,7 @@
  * aligned text with one table per segment, CSV with one line per segment
  * and target, and JSON (the shape is in the man page, docs/etacal.1). */
 #include "base.h"
+#include "stream.h"
 #include "quote_internal.h"
 #include "textout.h"
 
@@ -86,7 +87,7 @@ static int write_csv(FILE *fp, const curve_view *v)
 {
     const etacal_quotes *q = v->q;
     for (size_t j = 0; j < q->nkeys; j++) {
-        etacal_csv_put_field(fp, q->key_names[j], strlen(q->key_names[j]), ',');
+        csv_put_field(fp, q->key_names[j], strlen(q->key_names[j]), ',');
         putc(',', fp);
     }
     fputs("target,buffer,mean_promise_s,mean_extra_s,marginal_s_per_point,held_n,held_hits,on_time,ci_low,ci_high\n",
@@ -98,7 +99,7 @@ static int write_csv(FILE *fp, const curve_view *v)
             char tb[ETACAL_NUM_BUFSZ];
             etacal_num_format(q->targets[ti], tb);
             for (size_t j = 0; j < q->nkeys; j++) {
-                etacal_csv_put_field(fp, q->segs[g].keys[j], strlen(q->segs[g].keys[j]), ',');
+                csv_put_field(fp, q->segs[g].keys[j], strlen(q->segs[g].keys[j]), ',');
                 putc(',', fp);
             }
             fprintf(fp, "%s,%.10g,%.10g,%.10g,", tb, pt->buffer, pt->mean_promise_s, pt->mean_extra_s);

@@ -5,6 +5,7 @@
  * error and its p-value two-sided with n - p degrees of freedom
  * (etacal_t_pvalue, qr_se.c), as quantreg's summary.rq reports them. */
 #include "base.h"
+#include "stream.h"
 #include "textout.h"
 
 #include <math.h>
@@ -93,7 +94,7 @@ static void write_csv(FILE *fp, const etacal_qr_fits *f, const etacal_qr_write_o
             etacal_num_format(f->taus[ti], tau);
             fprintf(fp, "%s,", tau);
             const char *term = term_name(o, j);
-            etacal_csv_put_field(fp, term, strlen(term), ',');
+            csv_put_field(fp, term, strlen(term), ',');
             fprintf(fp, ",%.12g,", r->coef[j]);
             double se = f->se[ti][j];
             if (!isnan(se)) {

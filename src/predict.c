@@ -8,6 +8,7 @@
  * duration is never below 0: raising a quantile to a lower bound of the
  * response's support never increases its pinball loss). */
 #include "base.h"
+#include "stream.h"
 #include "csvio.h"
 
 #include <math.h>
@@ -167,7 +168,7 @@ out:
     return stop;
 }
 
-int etacal_qr_predict_csv(const double *coef, const double *taus, size_t ntau, size_t k,
+int qr_predict_csv(const double *coef, const double *taus, size_t ntau, size_t k,
                           const char *const *xnames, const char *in_path, FILE *out,
                           const etacal_qr_predict_opts *opts, etacal_qr_predict_stats *stats, etacal_error *err)
 {

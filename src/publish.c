@@ -402,16 +402,16 @@ size_t etacal_remove_stale_temps(const char *path)
 
 int etacal_write_file(const char *path, const void *data, size_t n, etacal_error *err)
 {
-    etacal_outfile o = {0};
-    int rc = etacal_outfile_open(&o, path, err);
+    outfile o = {0};
+    int rc = outfile_open(&o, path, err);
     if (rc)
         return rc;
     if (n && fwrite(data, 1, n, o.fp) != n) {
         int e = errno;
-        etacal_outfile_abort(&o);
+        outfile_abort(&o);
         return etacal_error_set(err, ETACAL_EIO, path, "write failed: %s", strerror(e));
     }
-    return etacal_outfile_commit(&o, err);
+    return outfile_commit(&o, err);
 }
 
 int etacal_keep_copy(const char *path, const char *keep, int *kept, etacal_error *err)
@@ -440,8 +440,8 @@ int etacal_keep_copy(const char *path, const char *keep, int *kept, etacal_error
     FILE *in = fopen(path, "rb");
     if (!in)
         return etacal_error_set(err, ETACAL_EIO, path, "cannot open: %s", strerror(errno));
-    etacal_outfile o = {0};
-    int rc = etacal_outfile_open(&o, keep, err);
+    outfile o = {0};
+    int rc = outfile_open(&o, keep, err);
     if (rc) {
         fclose(in);
         return rc;
@@ -454,10 +454,10 @@ int etacal_keep_copy(const char *path, const char *keep, int *kept, etacal_error
     int bad = ferror(in);
     fclose(in);
     if (bad) {
-        etacal_outfile_abort(&o);
+        outfile_abort(&o);
         return etacal_error_set(err, ETACAL_EIO, path, "read failed");
     }
-    rc = etacal_outfile_commit(&o, err);
+    rc = outfile_commit(&o, err);
     if (rc == 0)
         *kept = 1;
     return rc;

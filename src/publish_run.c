@@ -11,6 +11,7 @@
  * practice, no source).  The clock is the caller's (spec->now). */
 #define _GNU_SOURCE
 #include "base.h"
+#include "stream.h"
 #include "quote_internal.h"
 #include "textout.h"
 
@@ -57,7 +58,7 @@ typedef struct work {
     const etacal_quotes *q;  /* the new table (the fit's) */
     char *buf;               /* the new table's bytes */
     size_t buflen;
-    etacal_outfile of;
+    outfile of;
     etacal_quotes *back;     /* the new table read back */
 } work;
 
@@ -513,7 +514,7 @@ static int write_new(work *w, etacal_error *err)
     FILE *ms = open_memstream(&w->buf, &w->buflen);
     if (!ms)
         return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
-    int rc = etacal_quotes_write_csv(w->q, ms, err);
+    int rc = quotes_write_csv(w->q, ms, err);
     /* glibc's fclose of a memory stream hides a failed last realloc, but
      * leaves the buffer as the last fflush set it: so that is checked */
     int ms_bad = fflush(ms) != 0 || ferror(ms);
@@ -525,7 +526,7 @@ static int write_new(work *w, etacal_error *err)
     etacal_sha256_init(&sh);
     etacal_sha256_update(&sh, w->buf, w->buflen);
     etacal_sha256_hex(&sh, w->r->tab_sha);
-    rc = etacal_outfile_open(&w->of, w->s->table, err);
+    rc = outfile_open(&w->of, w->s->table, err);
     if (rc)
         return rc;
     if (fwrite(w->buf, 1, w->buflen, w->of.fp) != w->buflen || fflush(w->of.fp) != 0)
@@ -720,11 +721,11 @@ static int replace(work *w, etacal_error *err)
     etacal_publish_result *r = w->r;
     int rc = ETACAL_OK;
     if (r->outcome != ETACAL_PUBLISHED) {
-        etacal_outfile_abort(&w->of);
+        outfile_abort(&w->of);
     } else {
         rc = etacal_keep_copy(s->table, r->prev, &r->kept, err);
         if (rc == 0)
-            rc = etacal_outfile_commit(&w->of, err);
+            rc = outfile_commit(&w->of, err);
         if (rc)
             return rc;
         r->replaced = 1;
@@ -771,7 +772,7 @@ int etacal_publish_run(const etacal_publishspec *s, etacal_publish_result **out,
         snprintf(r->meta, sizeof r->meta, "%s.meta.json", s->table);
         rc = replace(&w, err);
     }
-    etacal_outfile_abort(&w.of);
+    outfile_abort(&w.of);
     etacal_quotes_destroy(w.back);
     free(w.buf);
     etacal_lock_release(lock);

@@ -4,8 +4,9 @@
  * errors (etacal_qr_se), the covariates' range and the response's sign in
  * the data, and the predictions of all the levels over a stream of new
  * rows, clamped into that range and floored at 0 for a response that is
- * never negative (etacal_qr_predict_csv). */
+ * never negative (qr_predict_csv). */
 #include "base.h"
+#include "stream.h"
 
 #include <math.h>
 #include <string.h>
@@ -61,7 +62,7 @@ int etacal_qr_fit_levels(const double *y, const double *const *x, size_t k, size
     return ETACAL_OK;
 }
 
-int etacal_qr_fits_predict_csv(const etacal_qr_fits *f, const char *const *xnames, const char *in_path, FILE *out,
+int qr_fits_predict_csv(const etacal_qr_fits *f, const char *const *xnames, const char *in_path, FILE *out,
                                char delim, int bad_rows, etacal_qr_predict_stats *stats, etacal_error *err)
 {
     if (!f || f->ntau == 0 || f->ntau > ETACAL_QR_MAX_LEVELS || f->k > ETACAL_QR_MAX_COVARIATES)
@@ -70,5 +71,5 @@ int etacal_qr_fits_predict_csv(const etacal_qr_fits *f, const char *const *xname
     for (size_t ti = 0; ti < f->ntau; ti++)
         memcpy(coef + ti * (f->k + 1), f->res[ti].coef, (f->k + 1) * sizeof *coef);
     etacal_qr_predict_opts po = {delim, bad_rows, f->x_min, f->x_max, f->y_nonneg ? 0 : -INFINITY};
-    return etacal_qr_predict_csv(coef, f->taus, f->ntau, f->k, xnames, in_path, out, &po, stats, err);
+    return qr_predict_csv(coef, f->taus, f->ntau, f->k, xnames, in_path, out, &po, stats, err);
 }

@@ -9,6 +9,7 @@
  * segment with one counting sort, so each bound is a selection inside one
  * contiguous slice: O(n) per segment and target, no full sort. */
 #include "base.h"
+#include "stream.h"
 #include "segment.h"
 #include "quote_internal.h"
 
@@ -1085,7 +1086,7 @@ done:
 
 /* Writes s as one CSV field, quoted only when it must be. */
 
-void etacal_csv_put_field(FILE *fp, const char *s, size_t len, char delim)
+void csv_put_field(FILE *fp, const char *s, size_t len, char delim)
 {
     int need = len > 0 && (s[0] == ' ' || s[len - 1] == ' ');
     for (size_t i = 0; i < len && !need; i++)
@@ -1103,11 +1104,11 @@ void etacal_csv_put_field(FILE *fp, const char *s, size_t len, char delim)
     putc('"', fp);
 }
 
-int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
+int quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
 {
     char num[ETACAL_NUM_BUFSZ];
     for (size_t j = 0; j < q->nkeys; j++) {
-        etacal_csv_put_field(fp, q->key_names[j], strlen(q->key_names[j]), ',');
+        csv_put_field(fp, q->key_names[j], strlen(q->key_names[j]), ',');
         putc(',', fp);
     }
     fputs("target,method,n,k,offset_s,slope", fp);
@@ -1115,14 +1116,14 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
         putc(',', fp);
         char name[256];
         snprintf(name, sizeof name, "coef_%s", q->coef_names[j]);
-        etacal_csv_put_field(fp, name, strlen(name), ',');
+        csv_put_field(fp, name, strlen(name), ',');
     }
     for (size_t j = 0; j < q->ncoef && q->ranges; j++)
         for (int m = 0; m < 2; m++) {
             putc(',', fp);
             char name[256];
             snprintf(name, sizeof name, "%s_%s", m ? "max" : "min", q->coef_names[j]);
-            etacal_csv_put_field(fp, name, strlen(name), ',');
+            csv_put_field(fp, name, strlen(name), ',');
         }
     if (q->confidence > 0)
         fputs(",confidence,coverage_mean,coverage_low", fp);
@@ -1137,7 +1138,7 @@ int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err)
         const etacal_quote *row = &q->rows[r];
         const etacal_segment *g = &q->segs[row->seg];
         for (size_t j = 0; j < q->nkeys; j++) {
-            etacal_csv_put_field(fp, g->keys[j], strlen(g->keys[j]), ',');
+            csv_put_field(fp, g->keys[j], strlen(g->keys[j]), ',');
             putc(',', fp);
         }
         etacal_num_format(q->targets[row->target], num);

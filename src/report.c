@@ -6,6 +6,7 @@
  * (etacal_binom_range), the rolling-origin backtest (backtest.c).  The only
  * counting done here is the residual histogram, a summary for the eye. */
 #include "base.h"
+#include "svg.h"
 #include "quote_internal.h"
 
 #include <math.h>
@@ -980,7 +981,7 @@ static void quote_table(FILE *fp, const etacal_report *r)
     fputs("</tbody></table>\n</section>\n", fp);
 }
 
-int etacal_report_write_html(FILE *fp, const etacal_report *r, etacal_error *err)
+static int write_html(FILE *fp, const etacal_report *r, etacal_error *err)
 {
     const etacal_quotes *q = r->q;
     if (!q || !r->ho || !r->curve || !r->stats || r->target >= q->ntargets)
@@ -1015,4 +1016,13 @@ int etacal_report_write_html(FILE *fp, const etacal_report *r, etacal_error *err
           "same page.</p>\n</section>\n</main>\n</body>\n</html>\n",
           fp);
     return ferror(fp) ? etacal_error_set(err, ETACAL_EIO, NULL, "cannot write the report") : ETACAL_OK;
+}
+
+int etacal_report_write(const etacal_report *r, const etacal_sink *out, etacal_error *err)
+{
+    FILE *fp = sink_fopen(out);
+    if (!fp)
+        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
+                                out && out->write ? "out of memory" : "no sink to write to");
+    return sink_fclose(fp, write_html(fp, r, err), err);
 }

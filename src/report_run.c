@@ -99,7 +99,7 @@ static size_t count_held(const etacal_fitspec *s, const etacal_table *t)
     return held;
 }
 
-static int run_table(const etacal_report_spec *s, const etacal_table *t, const char *out, etacal_report_notes *notes,
+static int run_table(const etacal_report_spec *s, const etacal_table *t, const etacal_sink *out, etacal_report_notes *notes,
                      etacal_error *err)
 {
     const etacal_fitspec *fs = &s->fit;
@@ -115,7 +115,6 @@ static int run_table(const etacal_report_spec *s, const etacal_table *t, const c
     etacal_curve cv = {0};
     etacal_report_hist hist = {0};
     etacal_backtest_result bt = {0};
-    etacal_outfile of = {0};
     unsigned char *kept = NULL;
     char note[400] = "", bt_note[300] = "";
     int have_bt = 0;
@@ -223,13 +222,8 @@ static int run_table(const etacal_report_spec *s, const etacal_table *t, const c
     rep.bt_every_s = s->every_s;
     rep.thin = s->thin;
     rep.curve_from = s->curve_from;
-    if ((rc = etacal_outfile_open(&of, out, err)) != 0)
-        goto done;
-    if ((rc = etacal_report_write_html(of.fp, &rep, err)) != 0)
-        goto done;
-    rc = etacal_outfile_commit(&of, err);
+    rc = etacal_report_write(&rep, out, err);
 done:
-    etacal_outfile_abort(&of); /* nothing left to abort after a commit */
     etacal_backtest_free(&bt);
     etacal_report_hist_free(&hist);
     etacal_curve_free(&cv);
@@ -238,7 +232,7 @@ done:
     return rc;
 }
 
-int etacal_report_table(const etacal_report_spec *s, const etacal_table *t, const char *out,
+int etacal_report_table(const etacal_report_spec *s, const etacal_table *t, const etacal_sink *out,
                         etacal_report_notes *notes, etacal_error *err)
 {
     if (notes)
@@ -251,7 +245,7 @@ int etacal_report_table(const etacal_report_spec *s, const etacal_table *t, cons
     return run_table(s, t, out, notes, err);
 }
 
-int etacal_report_csv(const etacal_report_spec *s, const char *in, const etacal_read_opts *ro, const char *out,
+int etacal_report_csv(const etacal_report_spec *s, const char *in, const etacal_read_opts *ro, const etacal_sink *out,
                       etacal_report_notes *notes, etacal_error *err)
 {
     if (notes)

@@ -5,6 +5,7 @@
  * practice, no source); the palette is Okabe & Ito's (2008, "Color
  * universal design"), each colour with its own dash pattern and marker. */
 #include "base.h"
+#include "svg.h"
 
 #include <math.h>
 #include <stdint.h>

@@ -5,6 +5,7 @@
  * as it is ("-" names a file called "-"; standard output is the caller's
  * business). */
 #include "base.h"
+#include "stream.h"
 
 #include <string.h>
 
@@ -14,20 +15,20 @@ int etacal_quotes_write(const etacal_quotes *q, const etacal_sink *out, etacal_e
     if (!fp)
         return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
                                 out && out->write ? "out of memory" : "no sink to write to");
-    return sink_fclose(fp, etacal_quotes_write_csv(q, fp, err), err);
+    return sink_fclose(fp, quotes_write_csv(q, fp, err), err);
 }
 
 int etacal_quotes_write_path(const etacal_quotes *q, const char *path, etacal_error *err)
 {
-    etacal_outfile of;
-    int rc = outfile_open_path(&of, path, err);
+    outfile of;
+    int rc = outfile_open(&of, path, err);
     if (rc)
         return rc;
-    if ((rc = etacal_quotes_write_csv(q, of.fp, err)) != 0) {
-        etacal_outfile_abort(&of);
+    if ((rc = quotes_write_csv(q, of.fp, err)) != 0) {
+        outfile_abort(&of);
         return rc;
     }
-    return etacal_outfile_commit(&of, err);
+    return outfile_commit(&of, err);
 }
 
 int etacal_apply(const etacal_quotes *q, const char *in_path, const etacal_sink *out,
@@ -37,19 +38,48 @@ int etacal_apply(const etacal_quotes *q, const char *in_path, const etacal_sink 
     if (!fp)
         return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
                                 out && out->write ? "out of memory" : "no sink to write to");
-    return sink_fclose(fp, etacal_apply_csv(q, in_path, fp, opts, stats, err), err);
+    return sink_fclose(fp, apply_csv(q, in_path, fp, opts, stats, err), err);
 }
 
 int etacal_apply_path(const etacal_quotes *q, const char *in_path, const char *out_path,
                       const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err)
 {
-    etacal_outfile of;
-    int rc = outfile_open_path(&of, out_path, err);
+    outfile of;
+    int rc = outfile_open(&of, out_path, err);
     if (rc)
         return rc;
-    if ((rc = etacal_apply_csv(q, in_path, of.fp, opts, stats, err)) != 0) {
-        etacal_outfile_abort(&of);
+    if ((rc = apply_csv(q, in_path, of.fp, opts, stats, err)) != 0) {
+        outfile_abort(&of);
         return rc;
     }
-    return etacal_outfile_commit(&of, err);
+    return outfile_commit(&of, err);
+}
+
+static FILE *open_sink(const etacal_sink *out, etacal_error *err)
+{
+    FILE *fp = sink_fopen(out);
+    if (!fp)
+        etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
+                         out && out->write ? "out of memory" : "no sink to write to");
+    return fp;
+}
+
+int etacal_qr_predict(const double *coef, const double *taus, size_t ntau, size_t k, const char *const *xnames,
+                      const char *in_path, const etacal_sink *out, const etacal_qr_predict_opts *opts,
+                      etacal_qr_predict_stats *stats, etacal_error *err)
+{
+    FILE *fp = open_sink(out, err);
+    if (!fp)
+        return err ? err->code : ETACAL_EINVAL;
+    return sink_fclose(fp, qr_predict_csv(coef, taus, ntau, k, xnames, in_path, fp, opts, stats, err), err);
+}
+
+int etacal_qr_fits_predict(const etacal_qr_fits *f, const char *const *xnames, const char *in_path,
+                           const etacal_sink *out, char delim, int bad_rows, etacal_qr_predict_stats *stats,
+                           etacal_error *err)
+{
+    FILE *fp = open_sink(out, err);
+    if (!fp)
+        return err ? err->code : ETACAL_EINVAL;
+    return sink_fclose(fp, qr_fits_predict_csv(f, xnames, in_path, fp, delim, bad_rows, stats, err), err);
 }

@@ -54,21 +54,18 @@ typedef struct etacal_apply_stats {
     double pred_sum;
 } etacal_apply_stats;
 
-/* Streams the orders in in_path ("-" for stdin) to out: every record is
- * copied byte for byte (quoting kept) with the promise columns appended:
+/* Streams the orders in in_path to out (a sink): every record is copied
+ * byte for byte (quoting kept) with the promise columns appended:
  * "promise_s" for one target, "promise_s_<pct>" (promise_s_90,
  * promise_s_97.5) for several.  The key columns of q are looked up in the
  * orders' header by name.  An order takes the most specific row of the table
  * that matches it: its own segment, then its segment with the last keys
- * replaced by "*", down to the global row.  The promise is
- * etacal_quote_promise's (covariates clamped into the row's range, never
- * below 0), in seconds, rounded up (never down).  Memory does not grow with the number of orders.  On error
- * the output is incomplete: write to an etacal_outfile to keep it from
- * appearing. */
-int etacal_apply_csv(const etacal_quotes *q, const char *in_path, FILE *out,
-                     const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err);
-/* The same stream to a sink (incomplete after an error, as a stream is), or
- * to a file at out_path that appears only when every order is written. */
+ * replaced by "*", down to the global row (the quote index).  The promise
+ * is etacal_quotes_promise's (covariates clamped into the row's range,
+ * never below 0), in seconds, rounded up (never down).  Memory does not
+ * grow with the number of orders.  After an error the sink has had part of
+ * the stream; etacal_apply_path writes a file that appears only when every
+ * order is written. */
 int etacal_apply(const etacal_quotes *q, const char *in_path, const etacal_sink *out,
                  const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err);
 int etacal_apply_path(const etacal_quotes *q, const char *in_path, const char *out_path,

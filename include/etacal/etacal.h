@@ -27,7 +27,6 @@
 #include "etacal/quantreg.h"
 #include "etacal/backtest.h"
 #include "etacal/curve.h"
-#include "etacal/svg.h"
 #include "etacal/report.h"
 
 #endif

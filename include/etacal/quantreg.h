@@ -11,7 +11,6 @@
 #define ETACAL_QUANTREG_H
 
 #include <stddef.h>
-#include <stdio.h> /* FILE, for etacal_qr_predict_csv */
 
 #include "etacal/error.h"
 #include "etacal/io.h"
@@ -125,20 +124,6 @@ typedef struct etacal_qr_predict_stats {
     size_t floored;  /* rows with a prediction raised to opts->floor */
 } etacal_qr_predict_stats;
 
-/* Streams in_path ("-" for stdin) to out, copying each record byte for byte
- * and appending q_<pct> (q_10, q_50, q_97.5) for each of the ntau levels:
- * the fitted quantiles coef[t*p + 0] + sum_j coef[t*p + 1 + j] x_j, with p =
- * k + 1 and x_j clamped into its range, rearranged at each row so that they
- * do not cross, raised to opts->floor, to the nearest millisecond.  The k
- * covariate columns are found by name.  A row with a missing covariate gets
- * empty predictions (counted); a malformed one is an error at FILE:LINE, or
- * with bad_rows = ETACAL_BAD_ROWS_SKIP is written with empty predictions and
- * counted.  stats may be NULL.  Memory does not grow with the number of
- * rows. */
-int etacal_qr_predict_csv(const double *coef, const double *taus, size_t ntau, size_t k,
-                          const char *const *xnames, const char *in_path, FILE *out,
-                          const etacal_qr_predict_opts *opts, etacal_qr_predict_stats *stats, etacal_error *err);
-
 /* Fits at several levels as one run, as etacal qr does. */
 typedef struct etacal_qr_fits {
     size_t ntau;                          /* levels, ascending */
@@ -169,13 +154,28 @@ int etacal_qr_fit_levels(const double *y, const double *const *x, size_t k, size
                          size_t ntau, const char *const *names, int se_method, size_t reps,
                          const etacal_qr_opts *opts, etacal_qr_fits *out, etacal_error *err);
 
-/* etacal_qr_predict_csv with every level of f: each covariate clamped into
- * its range in the data of the fit, and predictions floored at 0 when the
- * response was never negative there (f->y_nonneg).  xnames name the k
- * covariate columns of in_path.  Errors: as etacal_qr_predict_csv;
- * ETACAL_EINVAL for an empty f. */
-int etacal_qr_fits_predict_csv(const etacal_qr_fits *f, const char *const *xnames, const char *in_path, FILE *out,
-                               char delim, int bad_rows, etacal_qr_predict_stats *stats, etacal_error *err);
+/* Streams the rows of in_path (a CSV file with the k covariate columns,
+ * found by name) to out, each record copied byte for byte with
+ * q_<pct> columns appended (q_10, q_50, q_97.5): the fitted quantiles
+ * coef[t*p + 0] + sum_j coef[t*p + 1 + j] x_j (p = k + 1, x_j clamped into
+ * [opts->x_min[j], opts->x_max[j]] when given), rearranged at each row so
+ * that they do not cross (etacal_rearrange), raised to opts->floor, to the
+ * nearest millisecond.  A row with a missing covariate gets empty
+ * predictions (counted); a malformed one is an error at FILE:LINE, or with
+ * bad_rows ETACAL_BAD_ROWS_SKIP written with empty predictions and counted.
+ * stats may be NULL.  Memory does not grow with the number of rows; after
+ * an error the sink has had part of the stream. */
+int etacal_qr_predict(const double *coef, const double *taus, size_t ntau, size_t k, const char *const *xnames,
+                      const char *in_path, const etacal_sink *out, const etacal_qr_predict_opts *opts,
+                      etacal_qr_predict_stats *stats, etacal_error *err);
+
+/* etacal_qr_predict with every level of f: each covariate clamped into its
+ * range in the data of the fit, and predictions floored at 0 when the
+ * response was never negative there (f->y_nonneg).  ETACAL_EINVAL for an
+ * empty f. */
+int etacal_qr_fits_predict(const etacal_qr_fits *f, const char *const *xnames, const char *in_path,
+                           const etacal_sink *out, char delim, int bad_rows, etacal_qr_predict_stats *stats,
+                           etacal_error *err);
 
 /* What etacal_qr_write needs beside the fits. */
 typedef struct etacal_qr_write_opts {

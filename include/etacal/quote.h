@@ -156,14 +156,13 @@ int etacal_quotes_fit(const etacal_table *t, size_t actual_col, size_t pred_col,
  * and the coverage reached with that confidence); with key columns, a last
  * column cell (own, rest, all: etacal_cell_name) when every row's cell is
  * known; one row per segment with a row of its own and
- * target, global rows first.  Numbers in shortest round-trip form. */
-int etacal_quotes_write_csv(const etacal_quotes *q, FILE *fp, etacal_error *err);
-/* The same CSV to a sink, or to a file at path that appears whole or not at
- * all (an existing file there is replaced only when the table is complete). */
+ * target, global rows first.  Numbers in shortest round-trip form.
+ * To a sink, or to a file at path that appears whole or not at all (an
+ * existing file there is replaced only when the table is complete). */
 int etacal_quotes_write(const etacal_quotes *q, const etacal_sink *out, etacal_error *err);
 int etacal_quotes_write_path(const etacal_quotes *q, const char *path, etacal_error *err);
 
-/* Reads a table written by etacal_quotes_write_csv (or by hand, or by SQL):
+/* Reads a table written by etacal_quotes_write (or by hand, or by SQL):
  * the columns before 'target' are the key columns; 'target', 'method', 'n',
  * 'offset_s' and 'slope' are required, 'coef_<name>' columns are the
  * coefficients of covariates, 'min_<name>' and 'max_<name>' their ranges

@@ -9,11 +9,11 @@
 #define ETACAL_REPORT_H
 
 #include <stddef.h>
-#include <stdio.h>
 
 #include "etacal/backtest.h"
 #include "etacal/curve.h"
 #include "etacal/error.h"
+#include "etacal/io.h"
 #include "etacal/fit.h"
 #include "etacal/quote.h"
 #include "etacal/table.h"
@@ -72,9 +72,9 @@ typedef struct etacal_report {
     double half_life_s;      /* > 0: the fit used recency weights with this half-life */
 } etacal_report;
 
-/* Writes the page to fp.  Errors: a target index out of range, counts that
+/* Writes the page to out.  Errors: a target index out of range, counts that
  * do not belong to q, a chart that cannot be laid out. */
-int etacal_report_write_html(FILE *fp, const etacal_report *r, etacal_error *err);
+int etacal_report_write(const etacal_report *r, const etacal_sink *out, etacal_error *err);
 
 /* ---- the whole report as one run ------------------------------------------
  * What `etacal report` does, for any front end: the fit run (fit.h) with
@@ -113,17 +113,18 @@ typedef struct etacal_report_notes {
 } etacal_report_notes;
 
 /* Reads in (a CSV file with a header, read with ro; NULL: defaults), runs
- * the report and writes the page to out through etacal_outfile: the file
- * appears whole or not at all ("-" is standard output, written as it
- * goes).  notes may be NULL.  Errors: the specification (ETACAL_EINVAL),
- * the input (with FILE:LINE), a fit that fails at the chosen target
- * (ETACAL_ENUM), the output; after an error nothing is at out. */
-int etacal_report_csv(const etacal_report_spec *s, const char *in, const etacal_read_opts *ro, const char *out,
-                      etacal_report_notes *notes, etacal_error *err);
+ * the report and writes the page to out (an etacal_outfile's sink makes a
+ * file that appears whole or not at all).  The page is written only once
+ * everything on it is computed, so after an error before that nothing has
+ * reached out.  notes may be NULL.  Errors: the specification
+ * (ETACAL_EINVAL), the input (with FILE:LINE), a fit that fails at the
+ * chosen target (ETACAL_ENUM), the sink (ETACAL_EIO). */
+int etacal_report_csv(const etacal_report_spec *s, const char *in, const etacal_read_opts *ro,
+                      const etacal_sink *out, etacal_report_notes *notes, etacal_error *err);
 
 /* The same on a table in memory (its columns found by name, as for
  * etacal_fit_table; t is borrowed).  The page names the table's source. */
-int etacal_report_table(const etacal_report_spec *s, const etacal_table *t, const char *out,
+int etacal_report_table(const etacal_report_spec *s, const etacal_table *t, const etacal_sink *out,
                         etacal_report_notes *notes, etacal_error *err);
 
 #if defined(__GNUC__)

@@ -51,6 +51,18 @@ int one_input(int argc, char **argv, const char *cmd, const char *what);
 int parse_format(const char *s, const char *cmd, const char **out);
 
 /* Option values shared by the commands. */
+/* A command's output (cliout.c): path "-" or NULL is standard output,
+ * written as it goes; another path an etacal_outfile, which appears whole
+ * or not at all.  Write through sink; commit; close always (it abandons an
+ * uncommitted file). */
+typedef struct cliout {
+    etacal_outfile *of; /* NULL: standard output */
+    etacal_sink sink;
+} cliout;
+int cliout_open(cliout *o, const char *path, etacal_error *err);
+int cliout_commit(cliout *o, etacal_error *err);
+void cliout_close(cliout *o);
+
 int parse_delim(const char *s, char *out);
 int parse_bad_rows(const char *s, int *out);
 int parse_share(const char *s, double *out);

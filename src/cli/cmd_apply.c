@@ -1,6 +1,6 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* cmd_apply.c: `etacal apply`: stream new orders through a quote table,
- * appending the promise to each (etacal_apply_csv), and the library's
+ * appending the promise to each (apply_csv), and the library's
  * summary of the run (etacal_apply_write_summary) on stderr, or on stdout
  * with -o. */
 #include "cli.h"
@@ -95,7 +95,7 @@ int cmd_apply(int argc, char **argv)
     etacal_error err;
     etacal_error_clear(&err);
     etacal_quotes *q = NULL;
-    etacal_outfile of = {0};
+    cliout of = {0};
     etacal_apply_stats st;
     outbuf sum = {0};
     size_t sel[ETACAL_APPLY_MAX_TARGETS];
@@ -116,10 +116,10 @@ int cmd_apply(int argc, char **argv)
         ao.targets = sel;
         ao.ntargets = ntargets;
     }
-    rc = etacal_outfile_open(&of, output ? output : "-", &err);
+    rc = cliout_open(&of, output, &err);
     if (rc)
         goto fail;
-    rc = etacal_apply_csv(q, orders, of.fp, &ao, &st, &err);
+    rc = etacal_apply(q, orders, &of.sink, &ao, &st, &err);
     /* the summary is made in memory first: the orders' output appears only
      * with it */
     if (rc == 0 && !quiet) {
@@ -129,11 +129,10 @@ int cmd_apply(int argc, char **argv)
             rc = etacal_error_set(&err, ETACAL_ENOMEM, NULL, "out of memory");
     }
     if (rc == 0)
-        rc = etacal_outfile_commit(&of, &err);
-    if (rc) {
-        etacal_outfile_abort(&of);
+        rc = cliout_commit(&of, &err);
+    cliout_close(&of);
+    if (rc)
         goto fail;
-    }
     if (!quiet)
         fwrite(sum.data, 1, sum.len, output ? stdout : stderr);
     free(sum.data);

@@ -181,19 +181,17 @@ static int run(bt_args *a)
     etacal_error_clear(&err);
     etacal_table *t = NULL;
     etacal_backtest_result r = {0};
-    etacal_outfile of = {0};
+    cliout of = {0};
     int rc = etacal_table_read_csv(a->path, cols, 3 + a->nkeys + a->nx, &a->ro, &t, &err);
     if (rc == 0)
         rc = etacal_backtest_run(t, 0, 1, 2, key_cols, a->nkeys, &a->bo, &r, &err);
     if (rc == 0)
-        rc = etacal_outfile_open(&of, a->output ? a->output : "-", &err);
+        rc = cliout_open(&of, a->output, &err);
     if (rc == 0) {
-        etacal_sink sink = {etacal_sink_file, of.fp};
-        rc = etacal_backtest_write(&r, &a->bo, a->path, format_code(a->format), &sink, &err);
+        rc = etacal_backtest_write(&r, &a->bo, a->path, format_code(a->format), &of.sink, &err);
         if (rc == 0)
-            rc = etacal_outfile_commit(&of, &err);
-        if (rc)
-            etacal_outfile_abort(&of);
+            rc = cliout_commit(&of, &err);
+        cliout_close(&of);
     }
     etacal_backtest_free(&r);
     etacal_table_destroy(t);

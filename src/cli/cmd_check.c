@@ -309,21 +309,19 @@ static int run(check_args *a)
     etacal_error_clear(&err);
     etacal_table *t = NULL;
     etacal_check_result *r = NULL;
-    etacal_outfile of = {0};
+    cliout of = {0};
     int rc = etacal_table_read_csv(a->path, a->cs.spec, a->cs.n, &a->ro, &t, &err);
     progress_end(&pg);
     if (rc == 0)
         rc = etacal_check_run(t, &a->co, &r, &err);
     if (rc == 0)
-        rc = etacal_outfile_open(&of, a->output ? a->output : "-", &err);
+        rc = cliout_open(&of, a->output, &err);
     if (rc == 0) {
         etacal_check_write_opts wo = {a->path, t, a->table_path, a->gate};
-        etacal_sink sink = {etacal_sink_file, of.fp};
-        rc = etacal_check_write(r, &wo, format_code(a->format), &sink, &err);
+        rc = etacal_check_write(r, &wo, format_code(a->format), &of.sink, &err);
         if (rc == 0)
-            rc = etacal_outfile_commit(&of, &err);
-        if (rc)
-            etacal_outfile_abort(&of);
+            rc = cliout_commit(&of, &err);
+        cliout_close(&of);
     }
     int status = rc ? report_error(&err) : a->gate && r->gate_failed ? EXIT_GATE : 0;
     etacal_check_destroy(r);

@@ -106,27 +106,27 @@ int cmd_curve(int argc, char **argv)
     etacal_error_clear(&err);
     etacal_fit_run *run = NULL;
     etacal_curve cv = {0};
-    etacal_outfile of = {0};
+    cliout of = {0};
     int rc = etacal_fit_csv(&spec, path, &a.ro, &run, &err);
     if (rc)
         return report_error(&err);
     if ((rc = etacal_curve_compute(etacal_fit_run_quotes(run), etacal_fit_run_holdout(run), 0.95, &cv, &err)) != 0)
         goto fail;
-    if ((rc = etacal_outfile_open(&of, output ? output : "-", &err)) != 0)
+    if ((rc = cliout_open(&of, output, &err)) != 0)
         goto fail;
-    etacal_sink sink = outsink(of.fp);
     int fmt = strcmp(format, "json") == 0 ? ETACAL_FORMAT_JSON
               : strcmp(format, "csv") == 0 ? ETACAL_FORMAT_CSV
                                            : ETACAL_FORMAT_TEXT;
-    if ((rc = etacal_curve_write(&cv, run, &spec, path, fmt, &sink, &err)) != 0)
+    if ((rc = etacal_curve_write(&cv, run, &spec, path, fmt, &of.sink, &err)) != 0)
         goto fail;
-    if ((rc = etacal_outfile_commit(&of, &err)) != 0)
+    if ((rc = cliout_commit(&of, &err)) != 0)
         goto fail;
+    cliout_close(&of);
     etacal_curve_free(&cv);
     etacal_fit_run_destroy(run);
     return 0;
 fail:
-    etacal_outfile_abort(&of);
+    cliout_close(&of);
     etacal_curve_free(&cv);
     etacal_fit_run_destroy(run);
     return report_error(&err);

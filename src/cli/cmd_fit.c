@@ -95,7 +95,7 @@ int cmd_fit(int argc, char **argv)
     etacal_fitspec spec;
     fit_spec(&a, &spec);
     etacal_fit_run *run = NULL;
-    etacal_outfile of = {0};
+    cliout of = {0};
     outbuf sum = {0};
     progress pg = {path, 0, -1};
     etacal_read_opts ro = a.ro;
@@ -115,16 +115,15 @@ int cmd_fit(int argc, char **argv)
             goto fail;
         }
     }
-    rc = etacal_outfile_open(&of, output ? output : "-", &err);
+    rc = cliout_open(&of, output, &err);
     if (rc)
         goto fail;
-    rc = etacal_quotes_write_csv(etacal_fit_run_quotes(run), of.fp, &err);
+    rc = etacal_quotes_write(etacal_fit_run_quotes(run), &of.sink, &err);
     if (rc == 0)
-        rc = etacal_outfile_commit(&of, &err);
-    if (rc) {
-        etacal_outfile_abort(&of);
+        rc = cliout_commit(&of, &err);
+    cliout_close(&of);
+    if (rc)
         goto fail;
-    }
     if (!quiet)
         fwrite(sum.data, 1, sum.len, output ? stdout : stderr);
     free(sum.data);

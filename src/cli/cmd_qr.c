@@ -3,7 +3,7 @@
  * with standard errors, t statistics and p-values; with --predict, the
  * fitted quantiles (rearranged so they never cross) appended to a stream of
  * new rows.  The library fits (etacal_qr_fit_levels), writes the fits
- * (etacal_qr_write) or predicts (etacal_qr_fits_predict_csv). */
+ * (etacal_qr_write) or predicts (qr_fits_predict_csv). */
 #include "cli.h"
 
 #include <getopt.h>
@@ -188,7 +188,7 @@ static int run(const qr_args *a, etacal_qr_fits *f)
     etacal_error err;
     etacal_error_clear(&err);
     etacal_table *t = NULL;
-    etacal_outfile of = {0};
+    cliout of = {0};
     int rc = etacal_table_read_csv(a->path, cols, 1 + a->nx, &ro, &t, &err);
     progress_end(&pg);
     if (rc)
@@ -205,21 +205,19 @@ static int run(const qr_args *a, etacal_qr_fits *f)
                                   (const char *const *)a->xs, a->predict ? ETACAL_SE_NONE : a->sem, a->reps, &qo, f,
                                   &err);
     if (rc == 0)
-        rc = etacal_outfile_open(&of, a->output ? a->output : "-", &err);
+        rc = cliout_open(&of, a->output, &err);
     etacal_qr_predict_stats ps;
     if (rc == 0 && a->predict) {
-        rc = etacal_qr_fits_predict_csv(f, (const char *const *)a->xs, a->predict, of.fp, a->ro.delim,
+        rc = etacal_qr_fits_predict(f, (const char *const *)a->xs, a->predict, &of.sink, a->ro.delim,
                                         a->ro.bad_rows, &ps, &err);
     } else if (rc == 0) {
         etacal_qr_write_opts wo = {a->path, a->yname, (const char *const *)a->xs, etacal_table_stats(t)};
-        etacal_sink sink = {etacal_sink_file, of.fp};
-        rc = etacal_qr_write(f, &wo, format_code(a->format), &sink, &err);
+        rc = etacal_qr_write(f, &wo, format_code(a->format), &of.sink, &err);
     }
     if (rc == 0)
-        rc = etacal_outfile_commit(&of, &err);
-    if (rc)
-        etacal_outfile_abort(&of);
-    else if (a->predict)
+        rc = cliout_commit(&of, &err);
+    cliout_close(&of);
+    if (rc == 0 && a->predict)
         predict_summary(a, f, n, &ps);
     etacal_table_destroy(t);
     return rc ? report_error(&err) : 0;

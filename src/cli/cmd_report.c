@@ -146,7 +146,15 @@ static int run(int argc, char **argv, const char *cmdline)
     etacal_report_notes notes;
     etacal_error err;
     etacal_error_clear(&err);
-    int rc = etacal_report_csv(&rs, path, &ro, output ? output : "-", &notes, &err);
+    cliout of;
+    int rc = cliout_open(&of, output, &err);
+    if (rc == 0)
+        rc = etacal_report_csv(&rs, path, &ro, &of.sink, &notes, &err);
+    else
+        notes.n = 0;
+    if (rc == 0)
+        rc = cliout_commit(&of, &err);
+    cliout_close(&of);
     progress_end(&pg);
     for (size_t i = 0; i < notes.n; i++)
         fprintf(stderr, "etacal: report: %s\n", notes.text[i]);

@@ -10,7 +10,8 @@
 #define _GNU_SOURCE
 #endif
 #include "etacal/etacal.h"
-#include "internal.h" /* the quote table's fields, to check them */
+#include "internal.h"
+#include "stream.h" /* the quote table's fields, to check them */
 
 #include "fuzz_common.h"
 
@@ -72,7 +73,7 @@ static int fuzz_csv_one(const uint8_t *data, size_t size)
         if (etacal_quotes_fit(t, 2, 1, &key, (opt & 64) ? 0 : 1, &fo, &q, &err) == ETACAL_OK) {
             FILE *qf = fopen(path, "wb");
             FUZZ_CHECK(qf != NULL);
-            FUZZ_CHECK(etacal_quotes_write_csv(q, qf, &err) == ETACAL_OK);
+            FUZZ_CHECK(quotes_write_csv(q, qf, &err) == ETACAL_OK);
             FUZZ_CHECK(fclose(qf) == 0);
             etacal_quotes *q2 = NULL;
             etacal_error e2;
@@ -95,7 +96,7 @@ static int fuzz_csv_one(const uint8_t *data, size_t size)
             ao.round_s = (opt & 128) ? 60 : 0;
             etacal_apply_stats st;
             etacal_error_clear(&e2);
-            (void)etacal_apply_csv(q2, path, out, &ao, &st, &e2);
+            (void)apply_csv(q2, path, out, &ao, &st, &e2);
             fclose(out);
             etacal_quotes_destroy(q2);
         }

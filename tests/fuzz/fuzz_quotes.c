@@ -8,7 +8,8 @@
 #define _GNU_SOURCE
 #endif
 #include "etacal/etacal.h"
-#include "internal.h" /* the quote table's fields, to check them */
+#include "internal.h"
+#include "stream.h" /* the quote table's fields, to check them */
 
 #include "fuzz_common.h"
 
@@ -41,7 +42,7 @@ static int fuzz_quotes_one(const uint8_t *data, size_t size)
     size_t len = 0;
     FILE *mf = open_memstream(&buf, &len);
     FUZZ_CHECK(mf != NULL);
-    FUZZ_CHECK(etacal_quotes_write_csv(q, mf, &err) == ETACAL_OK);
+    FUZZ_CHECK(quotes_write_csv(q, mf, &err) == ETACAL_OK);
     FUZZ_CHECK(fclose(mf) == 0);
     path = fuzz_write((const uint8_t *)buf, len);
     FUZZ_CHECK(path != NULL);
@@ -60,18 +61,18 @@ static int fuzz_quotes_one(const uint8_t *data, size_t size)
     mf = open_memstream(&buf, &len);
     FUZZ_CHECK(mf != NULL);
     for (size_t j = 0; j < q->nkeys; j++) {
-        etacal_csv_put_field(mf, q->key_names[j], strlen(q->key_names[j]), ',');
+        csv_put_field(mf, q->key_names[j], strlen(q->key_names[j]), ',');
         putc(',', mf);
     }
     for (size_t j = 0; j < q->ncoef; j++) {
-        etacal_csv_put_field(mf, q->coef_names[j], strlen(q->coef_names[j]), ',');
+        csv_put_field(mf, q->coef_names[j], strlen(q->coef_names[j]), ',');
         putc(',', mf);
     }
     fprintf(mf, "\"pred s\"\n");
     for (int row = 0; row < 3; row++) {
         for (size_t j = 0; j < q->nkeys; j++) {
             const char *kv = q->segs[row % q->nsegs].keys[j];
-            etacal_csv_put_field(mf, kv, strlen(kv), ',');
+            csv_put_field(mf, kv, strlen(kv), ',');
             putc(',', mf);
         }
         for (size_t j = 0; j < q->ncoef; j++)
@@ -88,7 +89,7 @@ static int fuzz_quotes_one(const uint8_t *data, size_t size)
     ao.pred_col = "pred s";
     etacal_apply_stats st;
     etacal_error_clear(&err);
-    rc = etacal_apply_csv(q, path, out, &ao, &st, &err);
+    rc = apply_csv(q, path, out, &ao, &st, &err);
     fclose(out);
     /* a key column may be named like a covariate, or twice: then apply may
      * refuse the header, but never a row */

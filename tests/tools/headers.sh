@@ -42,6 +42,14 @@ for h in include/etacal/*.h; do
         skip=$((skip + 1))
     fi
 done
+# No public header needs a FILE: every writer takes a sink or a path.
+if grep -n 'FILE \*\|<stdio\.h>' include/etacal/*.h >"$work/file"; then
+    echo "FAIL: the public headers use FILE or <stdio.h>:"; sed 's/^/  /' "$work/file"
+    fail=$((fail + 1))
+else
+    pass=$((pass + 1))
+fi
+
 # The library's private headers (src/*.h), split by layer: each compiles on
 # its own too, so that a module can include just the layers it uses.
 deps=$(pkg-config --cflags gsl jansson 2>/dev/null)

@@ -1,5 +1,5 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
-/* test_apply.c: etacal_apply_csv, streaming orders through a quote table.
+/* test_apply.c: apply_csv, streaming orders through a quote table.
  *
  * Records must come out byte for byte (quoting, CRLF, newlines inside
  * quotes) with the promise columns appended; each order takes the most
@@ -19,6 +19,7 @@
 #include <string.h>
 
 #include "etacal/etacal.h"
+#include "internal.h"
 #include "testutil.h"
 
 typedef struct fixture {
@@ -83,7 +84,7 @@ static int run_bytes(fixture *f, const char *orders, size_t len, const etacal_ap
     FILE *fp = open_memstream(&f->out, &f->outlen);
     assert_non_null(fp);
     etacal_error_clear(&f->err);
-    int rc = etacal_apply_csv(f->q, f->in, fp, o, &f->st, &f->err);
+    int rc = apply_csv(f->q, f->in, fp, o, &f->st, &f->err);
     assert_int_equal(fclose(fp), 0);
     return rc;
 }
@@ -349,35 +350,35 @@ static void test_apply_option_errors(void **state)
     assert_non_null(fp);
     etacal_apply_opts o = default_opts();
     o.pred_col = NULL;
-    assert_int_equal(etacal_apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
+    assert_int_equal(apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
     assert_error(&f->err, ETACAL_EINVAL, "", "no prediction column given");
     o = default_opts();
     size_t sel[] = {0, 2};
     o.targets = sel;
     o.ntargets = 2;
-    assert_int_equal(etacal_apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
+    assert_int_equal(apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
     assert_error(&f->err, ETACAL_EINVAL, "", "target index out of range");
     o.ntargets = 0;
-    assert_int_equal(etacal_apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
+    assert_int_equal(apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
     assert_error(&f->err, ETACAL_EINVAL, "", "between 1 and 32 targets");
     o = default_opts();
     o.round_s = -60;
-    assert_int_equal(etacal_apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
+    assert_int_equal(apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
     assert_error(&f->err, ETACAL_EINVAL, "", "rounding must be a finite number of seconds >= 0");
     o.round_s = NAN;
-    assert_int_equal(etacal_apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
+    assert_int_equal(apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
     o.round_s = INFINITY;
-    assert_int_equal(etacal_apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
+    assert_int_equal(apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_EINVAL);
     /* Nothing was written by the refused calls. */
     assert_int_equal(ftell(fp), 0);
     /* No such input. */
     o = default_opts();
     char missing[700];
     tu_path(missing, sizeof missing, &f->dir, "none.csv");
-    assert_int_equal(etacal_apply_csv(f->q, missing, fp, &o, &f->st, &f->err), ETACAL_EIO);
+    assert_int_equal(apply_csv(f->q, missing, fp, &o, &f->st, &f->err), ETACAL_EIO);
     assert_error(&f->err, ETACAL_EIO, missing, "cannot open: No such file or directory");
     /* Into a real file (tmpfile) the output is the same as in memory. */
-    assert_int_equal(etacal_apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_OK);
+    assert_int_equal(apply_csv(f->q, f->in, fp, &o, &f->st, &f->err), ETACAL_OK);
     rewind(fp);
     char buf[256] = {0};
     size_t got = fread(buf, 1, sizeof buf - 1, fp);
@@ -398,7 +399,7 @@ static void test_apply_write_error(void **state)
     tu_write_text(&f->dir, "orders.csv", "zone,vehicle,pred_s\nnorth,bike,3\nnorth,bike,4\n", f->in,
                   sizeof f->in);
     etacal_apply_opts o = default_opts();
-    int rc = etacal_apply_csv(f->q, f->in, fp, &o, &f->st, &f->err);
+    int rc = apply_csv(f->q, f->in, fp, &o, &f->st, &f->err);
     fclose(fp);
     char where[700];
     assert_error(&f->err, ETACAL_EIO, tu_where(where, sizeof where, f->in, 2), "write failed");

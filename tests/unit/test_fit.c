@@ -18,6 +18,7 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "stream.h"
 #include "testutil.h"
 
 #define NROWS 2000
@@ -29,7 +30,7 @@ static char *table_text(const etacal_quotes *q, const tu_dir *d, const char *nam
     FILE *fp = fopen(path, "wb");
     etacal_error err;
     assert_non_null(fp);
-    assert_int_equal(etacal_quotes_write_csv(q, fp, &err), ETACAL_OK);
+    assert_int_equal(quotes_write_csv(q, fp, &err), ETACAL_OK);
     assert_int_equal(fclose(fp), 0);
     size_t len;
     char *s = tu_read_file(path, &len);

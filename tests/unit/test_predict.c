@@ -1,6 +1,6 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* test_predict.c: fitted quantile regressions applied to a CSV stream
- * (src/predict.c, etacal_qr_predict_csv), against the contract in
+ * (src/predict.c, qr_predict_csv), against the contract in
  * include/etacal/quantreg.h.
  *
  * What each check is measured against:
@@ -33,6 +33,7 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "stream.h"
 #include "testutil.h"
 
 /* Runs the prediction on text; the output in *outp (free it). */
@@ -46,7 +47,7 @@ static int run(tu_dir *d, const char *text, size_t len, const double *coef, cons
     FILE *os = open_memstream(outp, &outlen);
     assert_non_null(os);
     etacal_error_clear(err);
-    int rc = etacal_qr_predict_csv(coef, taus, ntau, k, xnames, path, os, o, st, err);
+    int rc = qr_predict_csv(coef, taus, ntau, k, xnames, path, os, o, st, err);
     assert_int_equal(fclose(os), 0);
     return rc;
 }
@@ -373,7 +374,7 @@ static void test_errors(void **state)
     tu_path(missing, sizeof missing, &d, "nope.csv");
     etacal_error err;
     etacal_qr_predict_stats st;
-    assert_int_equal(etacal_qr_predict_csv(coef, taus, 3, 1, xn, missing, stdout, &o, &st, &err), ETACAL_EIO);
+    assert_int_equal(qr_predict_csv(coef, taus, 3, 1, xn, missing, stdout, &o, &st, &err), ETACAL_EIO);
     assert_error(&err, ETACAL_EIO, missing, "cannot open: No such file or directory");
     /* a header alone: no rows, nothing counted; stats may be NULL */
     char path[600], *out;

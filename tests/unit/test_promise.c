@@ -20,6 +20,7 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "stream.h"
 #include "testutil.h"
 
 #define near(got, want) assert_close(got, want, 1e-12)
@@ -154,7 +155,7 @@ static void test_read_ranges(void **state)
     size_t len = 0;
     FILE *fp = open_memstream(&buf, &len);
     assert_non_null(fp);
-    assert_int_equal(etacal_quotes_write_csv(q, fp, &err), ETACAL_OK);
+    assert_int_equal(quotes_write_csv(q, fp, &err), ETACAL_OK);
     fclose(fp);
     assert_non_null(strstr(buf, "coef_dist,coef_prep,min_dist,max_dist,min_prep,max_prep\n"));
     assert_non_null(strstr(buf, "harbour,0.9,qr,400,361,-90.25,0.875,85.5,1.0625,0.7,9.2,147,2459\n"));

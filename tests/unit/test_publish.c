@@ -23,6 +23,7 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "stream.h"
 #include "testutil.h"
 
 /* ---- SHA-256 ------------------------------------------------------------ */
@@ -132,7 +133,7 @@ static const char *old_csv = "zone,vehicle,target,method,n,k,offset_s,slope\n"
                              "south,car,0.9,add,300,271,95,1\n";
 
 /* The promise at a point is what `etacal apply` writes for an order of
- * that segment with that prediction: checked against etacal_apply_csv on
+ * that segment with that prediction: checked against apply_csv on
  * orders of every segment and of unseen ones. */
 static void test_promise_at_matches_apply(void **state)
 {
@@ -155,7 +156,7 @@ static void test_promise_at_matches_apply(void **state)
     etacal_apply_opts o = {.pred_col = "pred_s"};
     etacal_apply_stats st;
     etacal_error err;
-    assert_int_equal(etacal_apply_csv(q, in, fp, &o, &st, &err), ETACAL_OK);
+    assert_int_equal(apply_csv(q, in, fp, &o, &st, &err), ETACAL_OK);
     fclose(fp);
     const char *keys[5][2] = {{"north", "bike"}, {"north", "car"}, {"south", "car"}, {"south", "bike"},
                               {"west", "van"}};

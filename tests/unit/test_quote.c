@@ -1,6 +1,6 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* test_quote.c: fitting quote tables (etacal_quotes_fit), writing them as
- * CSV and reading them back (etacal_quotes_write_csv / _read_csv), with the
+ * CSV and reading them back (quotes_write_csv / _read_csv), with the
  * reader's validation errors.
  *
  * The main fit is small enough to check by hand: every expected bound below
@@ -20,6 +20,7 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "stream.h"
 #include "testutil.h"
 
 typedef struct fixture {
@@ -261,7 +262,7 @@ static void test_fit_ratio(void **state)
     size_t len = 0;
     FILE *fp = open_memstream(&buf, &len);
     assert_non_null(fp);
-    assert_int_equal(etacal_quotes_write_csv(q, fp, &f->err), ETACAL_OK);
+    assert_int_equal(quotes_write_csv(q, fp, &f->err), ETACAL_OK);
     fclose(fp);
     assert_string_equal(buf, "target,method,n,k,offset_s,slope\n"
                              "0.8,ratio,9,8,0,1.17\n"
@@ -587,7 +588,7 @@ static void test_fit_pooled_by_hand(void **state)
     size_t len = 0;
     FILE *fp = open_memstream(&buf, &len);
     assert_non_null(fp);
-    assert_int_equal(etacal_quotes_write_csv(f->q, fp, &f->err), ETACAL_OK);
+    assert_int_equal(quotes_write_csv(f->q, fp, &f->err), ETACAL_OK);
     fclose(fp);
     assert_string_equal(buf, "zone,vehicle,target,method,n,k,offset_s,slope,cell\n"
                              "*,*,0.5,add,1,1,7,1,rest\n"
@@ -659,7 +660,7 @@ static void test_write_and_read_back(void **state)
     size_t len = 0;
     FILE *fp = open_memstream(&buf, &len);
     assert_non_null(fp);
-    assert_int_equal(etacal_quotes_write_csv(f->q, fp, &f->err), ETACAL_OK);
+    assert_int_equal(quotes_write_csv(f->q, fp, &f->err), ETACAL_OK);
     fclose(fp);
     assert_string_equal(buf, calib_quotes_csv);
     tu_write_text(&f->dir, "quotes.csv", buf, f->path, sizeof f->path);
@@ -692,7 +693,7 @@ static void test_write_and_read_back(void **state)
     buf = NULL;
     fp = open_memstream(&buf, &len);
     assert_non_null(fp);
-    assert_int_equal(etacal_quotes_write_csv(b, fp, &f->err), ETACAL_OK);
+    assert_int_equal(quotes_write_csv(b, fp, &f->err), ETACAL_OK);
     fclose(fp);
     assert_string_equal(buf, calib_quotes_csv);
     free(buf);
@@ -721,7 +722,7 @@ static void test_write_quotes_key_fields(void **state)
     size_t len = 0;
     FILE *fp = open_memstream(&buf, &len);
     assert_non_null(fp);
-    assert_int_equal(etacal_quotes_write_csv(f->q, fp, &f->err), ETACAL_OK);
+    assert_int_equal(quotes_write_csv(f->q, fp, &f->err), ETACAL_OK);
     fclose(fp);
     /* " padded " sorts before "Old..." (space < 'O'), and "*" before the
      * vehicles.  Scores: "Old Town" 9.75 + 4 i (i = 0..9), " padded "

@@ -19,6 +19,7 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "stream.h"
 #include "testutil.h"
 
 static const char table_text[] = "zone,band,target,method,n,k,offset_s,slope\n"
@@ -129,7 +130,7 @@ static void test_agrees_with_apply(void **state)
     etacal_apply_opts o = {0};
     o.pred_col = "pred_s";
     etacal_apply_stats st;
-    assert_int_equal(etacal_apply_csv(q, path, os, &o, &st, &err), ETACAL_OK);
+    assert_int_equal(apply_csv(q, path, os, &o, &st, &err), ETACAL_OK);
     assert_int_equal(fclose(os), 0);
     char *line = strchr(out, '\n') + 1;
     for (size_t i = 0; i < N; i++) {

@@ -9,7 +9,7 @@
  *   columns, min_/max_ ranges, a confidence, empty k) whose numbers are
  *   random finite doubles drawn bit by bit (subnormals, -0, the largest
  *   double, values with 17 significant digits), written with
- *   etacal_quotes_write_csv and read back: every field must be equal bit
+ *   quotes_write_csv and read back: every field must be equal bit
  *   for bit (quote.h: "Numbers in shortest round-trip form"), and writing
  *   the read table must give the same bytes;
  * - the header rules of quote.h: the columns before 'target' are the keys,
@@ -40,6 +40,7 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "stream.h"
 #include "testutil.h"
 
 typedef struct fixture {
@@ -102,7 +103,7 @@ static char *write_mem(const etacal_quotes *q)
     FILE *fp = open_memstream(&buf, &len);
     assert_non_null(fp);
     etacal_error err;
-    assert_int_equal(etacal_quotes_write_csv(q, fp, &err), ETACAL_OK);
+    assert_int_equal(quotes_write_csv(q, fp, &err), ETACAL_OK);
     assert_int_equal(fclose(fp), 0);
     return buf;
 }

@@ -29,7 +29,24 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "svg.h"
 #include "testutil.h"
+
+/* The report to a file that appears whole or not at all, as a program
+ * writing one would: the library's output file, committed on success. */
+static int report_to(const etacal_report_spec *s, const char *in, const etacal_table *t, const char *path,
+                     etacal_report_notes *notes, etacal_error *err)
+{
+    etacal_outfile *of = NULL;
+    int rc = etacal_outfile_open(path, &of, err);
+    if (rc == 0)
+        rc = in ? etacal_report_csv(s, in, NULL, etacal_outfile_sink(of), notes, err)
+                : etacal_report_table(s, t, etacal_outfile_sink(of), notes, err);
+    if (rc == 0)
+        rc = etacal_outfile_commit(of, err);
+    etacal_outfile_destroy(of);
+    return rc;
+}
 
 #define NROWS 2400
 #define PYTHON "/usr/bin/python3"
@@ -218,9 +235,9 @@ static void test_page_from_csv(void **state)
     tu_path(out2, sizeof out2, &dir, "r2.html");
     etacal_report_notes notes;
     etacal_error err;
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out1, &notes, &err), ETACAL_OK);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out1, &notes, &err), ETACAL_OK);
     assert_int_equal(notes.n, 0);
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out2, &notes, &err), ETACAL_OK);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out2, &notes, &err), ETACAL_OK);
     size_t l1, l2;
     char *p1 = page_of("r1.html", &l1), *p2 = page_of("r2.html", &l2);
     assert_int_equal(l1, l2);
@@ -312,8 +329,8 @@ static void test_page_from_memory(void **state)
     char fout[600], mout[600];
     tu_path(fout, sizeof fout, &dir, "file.html");
     tu_path(mout, sizeof mout, &dir, "mem.html");
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, fout, NULL, &err), ETACAL_OK);
-    assert_int_equal(etacal_report_table(&s, t, mout, NULL, &err), ETACAL_OK);
+    assert_int_equal(report_to(&s, rows_csv, NULL, fout, NULL, &err), ETACAL_OK);
+    assert_int_equal(report_to(&s, NULL, t, mout, NULL, &err), ETACAL_OK);
     size_t lf, lm;
     char *pf = page_of("file.html", &lf), *pm = page_of("mem.html", &lm);
     assert_int_equal(lf, lm);
@@ -336,7 +353,7 @@ static void test_notes(void **state)
     etacal_error err;
     /* a window longer than the 16.7 days of rows: no backtest */
     s.window_s = 30 * 86400.0;
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, &notes, &err), ETACAL_OK);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, &notes, &err), ETACAL_OK);
     assert_int_equal(notes.n, 1);
     assert_string_equal(notes.text[0], "no backtest: the data span less than one window: nothing to backtest");
     size_t len;
@@ -349,7 +366,7 @@ static void test_notes(void **state)
      * not for the curve's 0.99 (99): the chosen target alone, and a note */
     s.window_s = 4 * 86400.0;
     s.fit.half_life = 5 * 3600.0;
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, &notes, &err), ETACAL_OK);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, &notes, &err), ETACAL_OK);
     assert_int_equal(notes.n, 1);
     const char *lead = "the levels of the cost curve and the calibration chart could not be fitted (the recency "
                        "weights of the 1800 rows add up to ";
@@ -362,7 +379,7 @@ static void test_notes(void **state)
     assert_non_null(strstr(p, "<p class=\"warn\">Note: the levels of the cost curve"));
     free(p);
     /* the same without a place for notes or errors */
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, NULL, NULL), ETACAL_OK);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, NULL, NULL), ETACAL_OK);
 }
 
 /* Errors: nothing at the output path, an existing file untouched. */
@@ -379,13 +396,13 @@ static void test_errors(void **state)
     const double high = 0.9995;
     etacal_report_spec s;
     spec_of(&s, &high);
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, &notes, &err), ETACAL_ENUM);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, &notes, &err), ETACAL_ENUM);
     assert_error(&err, ETACAL_ENUM, rows_csv,
                  "only 1800 rows: a promise for target 0.9995 needs at least 1999 calibration rows (rank "
                  "ceil((n+1)*tau) must not exceed n)");
     assert_false(exists("err.html"));
     assert_int_equal(notes.n, 0);
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, NULL, NULL), ETACAL_ENUM);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, NULL, NULL), ETACAL_ENUM);
     assert_false(exists("err.html"));
 
     /* a key column the file lacks */
@@ -393,7 +410,7 @@ static void test_errors(void **state)
     static const char *const nokey[] = {"district"};
     spec_of(&s, &target);
     s.fit.keys = nokey;
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
     assert_error(&err, ETACAL_EINVAL, tu_where(where, sizeof where, rows_csv, 1),
                  "no column 'district' in the header");
     assert_false(exists("err.html"));
@@ -404,7 +421,7 @@ static void test_errors(void **state)
     etacal_table *t = NULL;
     assert_int_equal(etacal_table_from_arrays(cols, data, 2, NROWS, "frame", 0, &t, &err), ETACAL_OK);
     spec_of(&s, &target);
-    assert_int_equal(etacal_report_table(&s, t, out, &notes, &err), ETACAL_EINVAL);
+    assert_int_equal(report_to(&s, NULL, t, out, &notes, &err), ETACAL_EINVAL);
     assert_error(&err, ETACAL_EINVAL, "frame", "no column 'zone' in the table");
     assert_false(exists("err.html"));
     etacal_table_destroy(t);
@@ -412,7 +429,7 @@ static void test_errors(void **state)
     /* an existing page stays as it was after a failed run */
     tu_write_text(&dir, "err.html", "old page\n", where, sizeof where);
     spec_of(&s, &high);
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, &notes, &err), ETACAL_ENUM);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, &notes, &err), ETACAL_ENUM);
     size_t len;
     char *p = page_of("err.html", &len);
     assert_string_equal(p, "old page\n");
@@ -423,25 +440,25 @@ static void test_errors(void **state)
     const double two[] = {0.8, 0.9};
     spec_of(&s, two);
     s.fit.ntargets = 2;
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
     assert_error(&err, ETACAL_EINVAL, "", "--target takes one on-time rate in (0,1), such as 0.9");
     spec_of(&s, &target);
     s.fit.half_life = 0;
     s.fit.confidence = 0.95;
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
     assert_error(&err, ETACAL_EINVAL, "", "--confidence is not offered by report (use etacal fit or curve)");
     spec_of(&s, &target);
     s.fit.holdout = 0;
     s.fit.time = NULL;
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
     assert_error(&err, ETACAL_EINVAL, "", "a report needs --holdout, a share in (0,1)");
     spec_of(&s, &target);
     s.every_s = 0;
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
     assert_error(&err, ETACAL_EINVAL, "", "--window and --every take positive durations");
     spec_of(&s, &target);
     s.fit.actual = "pred_s";
-    assert_int_equal(etacal_report_csv(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
+    assert_int_equal(report_to(&s, rows_csv, NULL, out, &notes, &err), ETACAL_EINVAL);
     assert_error(&err, ETACAL_EINVAL, "", "--actual and --pred name the same column");
     p = page_of("err.html", &len);
     assert_string_equal(p, "old page\n");

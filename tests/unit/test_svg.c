@@ -19,6 +19,8 @@
 #include <string.h>
 
 #include "etacal/etacal.h"
+#include "svg.h"
+#include "internal.h"
 
 /* What f writes to a memory stream, as a new string (free it). */
 typedef struct mem {

@@ -18,6 +18,7 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "stream.h"
 #include "testutil.h"
 
 static const etacal_colspec cols3[] = {
@@ -89,7 +90,7 @@ static char *quotes_text(const etacal_table *t, const tu_dir *d, const char *nam
     tu_path(path, sizeof path, d, name);
     FILE *fp = fopen(path, "wb");
     assert_non_null(fp);
-    assert_int_equal(etacal_quotes_write_csv(q, fp, &err), ETACAL_OK);
+    assert_int_equal(quotes_write_csv(q, fp, &err), ETACAL_OK);
     assert_int_equal(fclose(fp), 0);
     etacal_quotes_destroy(q);
     size_t len;

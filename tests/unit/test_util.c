@@ -1,6 +1,6 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* test_util.c: the small internal helpers (strdict, grow_array, rowbuf,
- * ceil_scaled, etacal_csv_put_field, ksum), etacal_percent_label and the error
+ * ceil_scaled, csv_put_field, ksum), etacal_percent_label and the error
  * record. */
 #define _GNU_SOURCE
 #include <stdarg.h>
@@ -16,6 +16,7 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "stream.h"
 #include "testutil.h"
 
 static void test_strdict_dense_ids(void **state)
@@ -213,7 +214,7 @@ static char *put_field(const char *s, size_t len, char delim)
     size_t n = 0;
     FILE *fp = open_memstream(&buf, &n);
     assert_non_null(fp);
-    etacal_csv_put_field(fp, s, len, delim);
+    csv_put_field(fp, s, len, delim);
     fclose(fp);
     return buf;
 }

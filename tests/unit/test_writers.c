@@ -16,6 +16,7 @@
 #include <string.h>
 
 #include "etacal/etacal.h"
+#include "internal.h"
 #include "testutil.h"
 
 static const char table_text[] = "zone,target,method,n,k,offset_s,slope\n"
@@ -75,13 +76,13 @@ typedef struct ctx {
 static int quotes_to_stream(FILE *fp, void *arg)
 {
     ctx *c = arg;
-    return etacal_quotes_write_csv(c->q, fp, &c->err);
+    return quotes_write_csv(c->q, fp, &c->err);
 }
 
 static int apply_to_stream(FILE *fp, void *arg)
 {
     ctx *c = arg;
-    return etacal_apply_csv(c->q, c->orders, fp, &c->o, &c->st, &c->err);
+    return apply_csv(c->q, c->orders, fp, &c->o, &c->st, &c->err);
 }
 
 static void test_sinks_and_paths(void **state)

@@ -24,9 +24,6 @@ extern "C" {
 #endif
 /* Declarations here are the library's API: exported from libetacal.so,
  * whose objects are built with -fvisibility=hidden (see the Makefile). */
-#if defined(__GNUC__)
-#pragma GCC visibility push(default)
-#endif
 
 /* Styles of a series: colour, dash pattern and marker. */
 enum {
@@ -146,9 +143,6 @@ void etacal_svg_heat(FILE *fp, const char *label, const char *const *rows, size_
  * (buf of 8 bytes). */
 void etacal_svg_ramp(double t, char *buf);
 
-#if defined(__GNUC__)
-#pragma GCC visibility pop
-#endif
 #ifdef __cplusplus
 }
 #endif

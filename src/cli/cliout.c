@@ -1,0 +1,45 @@
+/* SPDX-License-Identifier: GPL-3.0-or-later */
+/* cliout.c: where a command's output goes.  "-" (or no -o) is standard
+ * output, written as it goes: a convention of the command line, which the
+ * library does not know; any other name is a library output file, which
+ * appears whole or not at all. */
+#include "cli.h"
+
+#include <errno.h>
+#include <string.h>
+
+static int to_stdout(void *ud, const char *buf, size_t len)
+{
+    (void)ud;
+    /* a short write stays in stdout's error flag, reported at the commit */
+    (void)fwrite(buf, 1, len, stdout);
+    return 0;
+}
+
+int cliout_open(cliout *o, const char *path, etacal_error *err)
+{
+    memset(o, 0, sizeof *o);
+    if (!path || strcmp(path, "-") == 0) {
+        o->sink.write = to_stdout;
+        return ETACAL_OK;
+    }
+    int rc = etacal_outfile_open(path, &o->of, err);
+    if (rc == ETACAL_OK)
+        o->sink = *etacal_outfile_sink(o->of);
+    return rc;
+}
+
+int cliout_commit(cliout *o, etacal_error *err)
+{
+    if (o->of)
+        return etacal_outfile_commit(o->of, err);
+    if (fflush(stdout) != 0 || ferror(stdout))
+        return etacal_error_set(err, ETACAL_EIO, "stdout", "write failed: %s", strerror(errno));
+    return ETACAL_OK;
+}
+
+void cliout_close(cliout *o)
+{
+    etacal_outfile_destroy(o->of);
+    o->of = NULL;
+}
