@@ -4,7 +4,6 @@
 #define ETACAL_APPLY_H
 
 #include <stddef.h>
-#include <stdio.h>
 
 #include "etacal/error.h"
 #include "etacal/io.h"

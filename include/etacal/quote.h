@@ -11,7 +11,6 @@
 #define ETACAL_QUOTE_H
 
 #include <stddef.h>
-#include <stdio.h>
 
 #include "etacal/error.h"
 #include "etacal/io.h"
