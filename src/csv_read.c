@@ -563,7 +563,7 @@ int etacal_table_read_csv(const char *path, const etacal_colspec *cols, size_t n
     uint64_t header_end = 0, split = 0;
     size_t header_lines = 0;
     struct stat st;
-    int parallel = (opts->threads == ETACAL_THREADS_AUTO || opts->threads >= 2) && strcmp(path, "-") != 0 && stat(path, &st) == 0 &&
+    int parallel = (opts->threads == ETACAL_THREADS_AUTO || opts->threads >= 2) && stat(path, &st) == 0 &&
                    S_ISREG(st.st_mode) && (uint64_t)st.st_size >= PARALLEL_MIN &&
                    sysconf(_SC_NPROCESSORS_ONLN) > 1 &&
                    csv_find_split(path, (uint64_t)st.st_size, &header_end, &header_lines, &split) == 0 &&

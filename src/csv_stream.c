@@ -149,18 +149,14 @@ int csvstream_run_range(const char *path, char delim, int raw, const csvstream_c
     int parser_ok = 0;
     uint64_t total = 0, done = 0;
     ctx c = {.cb = cb, .line = range ? range->first_line : 1, .count_nl = 1};
-    int is_stdin = strcmp(path, "-") == 0;
     uint64_t left = range ? range->end - range->start : UINT64_MAX;
 
-    if (is_stdin) {
-        fp = stdin;
-    } else {
-        fp = fopen(path, "rb");
-        if (!fp) {
-            rc = errno == ENOMEM ? etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory")
-                                 : etacal_error_set(err, ETACAL_EIO, path, "cannot open: %s", strerror(errno));
-            goto done;
-        }
+    /* the path as it is: standard input is the caller's "/dev/stdin" */
+    fp = fopen(path, "rb");
+    if (!fp) {
+        rc = errno == ENOMEM ? etacal_error_set(err, ETACAL_ENOMEM, path, "out of memory")
+                             : etacal_error_set(err, ETACAL_EIO, path, "cannot open: %s", strerror(errno));
+        goto done;
     }
     struct stat st;
     if (fstat(fileno(fp), &st) == 0) {
@@ -172,7 +168,7 @@ int csvstream_run_range(const char *path, char delim, int raw, const csvstream_c
             total = (uint64_t)st.st_size;
     }
     if (range) {
-        if (is_stdin || fseeko(fp, (off_t)range->start, SEEK_SET) != 0) {
+        if (fseeko(fp, (off_t)range->start, SEEK_SET) != 0) {
             rc = etacal_error_set(err, ETACAL_EIO, path, "cannot seek: %s", strerror(errno));
             goto done;
         }
@@ -351,7 +347,7 @@ done:
         csv_free(&p);
     free(rec);
     free(buf);
-    if (fp && !is_stdin)
+    if (fp)
         fclose(fp);
     return rc;
 }

@@ -62,6 +62,9 @@ typedef struct cliout {
 int cliout_open(cliout *o, const char *path, etacal_error *err);
 int cliout_commit(cliout *o, etacal_error *err);
 void cliout_close(cliout *o);
+/* The path the library reads for an input named on the command line: "-"
+ * (standard input) becomes "/dev/stdin". */
+const char *cli_input(const char *path);
 
 int parse_delim(const char *s, char *out);
 int parse_bad_rows(const char *s, int *out);

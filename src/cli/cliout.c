@@ -43,3 +43,10 @@ void cliout_close(cliout *o)
     etacal_outfile_destroy(o->of);
     o->of = NULL;
 }
+
+const char *cli_input(const char *path)
+{
+    /* "-" is the command line's name for standard input; the library reads
+     * paths as they are */
+    return path && strcmp(path, "-") == 0 ? "/dev/stdin" : path;
+}

@@ -99,7 +99,7 @@ int cmd_apply(int argc, char **argv)
     etacal_apply_stats st;
     outbuf sum = {0};
     size_t sel[ETACAL_APPLY_MAX_TARGETS];
-    int rc = etacal_quotes_read_csv(table, tdelim, &q, &err);
+    int rc = etacal_quotes_read_csv(cli_input(table), tdelim, &q, &err);
     if (rc)
         return report_error(&err);
     for (size_t i = 0; i < ntargets; i++) {
@@ -119,7 +119,7 @@ int cmd_apply(int argc, char **argv)
     rc = cliout_open(&of, output, &err);
     if (rc)
         goto fail;
-    rc = etacal_apply(q, orders, &of.sink, &ao, &st, &err);
+    rc = etacal_apply(q, cli_input(orders), &of.sink, &ao, &st, &err);
     /* the summary is made in memory first: the orders' output appears only
      * with it */
     if (rc == 0 && !quiet) {

@@ -182,7 +182,7 @@ static int run(bt_args *a)
     etacal_table *t = NULL;
     etacal_backtest_result r = {0};
     cliout of = {0};
-    int rc = etacal_table_read_csv(a->path, cols, 3 + a->nkeys + a->nx, &a->ro, &t, &err);
+    int rc = etacal_table_read_csv(cli_input(a->path), cols, 3 + a->nkeys + a->nx, &a->ro, &t, &err);
     if (rc == 0)
         rc = etacal_backtest_run(t, 0, 1, 2, key_cols, a->nkeys, &a->bo, &r, &err);
     if (rc == 0)

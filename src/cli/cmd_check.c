@@ -245,7 +245,7 @@ static int quote_table(check_args *a, etacal_quotes **qt)
 {
     etacal_error err;
     etacal_error_clear(&err);
-    if (etacal_quotes_read_csv(a->table_path, ',', qt, &err) != 0)
+    if (etacal_quotes_read_csv(cli_input(a->table_path), ',', qt, &err) != 0)
         return report_error(&err);
     const etacal_quotes *q = *qt;
     if (etacal_quotes_find_target(q, a->co.upper_level) < 0) {
@@ -310,7 +310,7 @@ static int run(check_args *a)
     etacal_table *t = NULL;
     etacal_check_result *r = NULL;
     cliout of = {0};
-    int rc = etacal_table_read_csv(a->path, a->cs.spec, a->cs.n, &a->ro, &t, &err);
+    int rc = etacal_table_read_csv(cli_input(a->path), a->cs.spec, a->cs.n, &a->ro, &t, &err);
     progress_end(&pg);
     if (rc == 0)
         rc = etacal_check_run(t, &a->co, &r, &err);

@@ -107,7 +107,7 @@ int cmd_curve(int argc, char **argv)
     etacal_fit_run *run = NULL;
     etacal_curve cv = {0};
     cliout of = {0};
-    int rc = etacal_fit_csv(&spec, path, &a.ro, &run, &err);
+    int rc = etacal_fit_csv(&spec, cli_input(path), &a.ro, &run, &err);
     if (rc)
         return report_error(&err);
     if ((rc = etacal_curve_compute(etacal_fit_run_quotes(run), etacal_fit_run_holdout(run), 0.95, &cv, &err)) != 0)

@@ -101,7 +101,7 @@ int cmd_fit(int argc, char **argv)
     etacal_read_opts ro = a.ro;
     ro.progress = progress_cb;
     ro.progress_ud = &pg;
-    int rc = etacal_fit_csv(&spec, path, &ro, &run, &err);
+    int rc = etacal_fit_csv(&spec, cli_input(path), &ro, &run, &err);
     progress_end(&pg);
     if (rc)
         goto fail;

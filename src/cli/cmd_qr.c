@@ -189,7 +189,7 @@ static int run(const qr_args *a, etacal_qr_fits *f)
     etacal_error_clear(&err);
     etacal_table *t = NULL;
     cliout of = {0};
-    int rc = etacal_table_read_csv(a->path, cols, 1 + a->nx, &ro, &t, &err);
+    int rc = etacal_table_read_csv(cli_input(a->path), cols, 1 + a->nx, &ro, &t, &err);
     progress_end(&pg);
     if (rc)
         return report_error(&err);
@@ -208,7 +208,7 @@ static int run(const qr_args *a, etacal_qr_fits *f)
         rc = cliout_open(&of, a->output, &err);
     etacal_qr_predict_stats ps;
     if (rc == 0 && a->predict) {
-        rc = etacal_qr_fits_predict(f, (const char *const *)a->xs, a->predict, &of.sink, a->ro.delim,
+        rc = etacal_qr_fits_predict(f, (const char *const *)a->xs, cli_input(a->predict), &of.sink, a->ro.delim,
                                         a->ro.bad_rows, &ps, &err);
     } else if (rc == 0) {
         etacal_qr_write_opts wo = {a->path, a->yname, (const char *const *)a->xs, etacal_table_stats(t)};

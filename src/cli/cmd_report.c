@@ -149,7 +149,7 @@ static int run(int argc, char **argv, const char *cmdline)
     cliout of;
     int rc = cliout_open(&of, output, &err);
     if (rc == 0)
-        rc = etacal_report_csv(&rs, path, &ro, &of.sink, &notes, &err);
+        rc = etacal_report_csv(&rs, cli_input(path), &ro, &of.sink, &notes, &err);
     else
         notes.n = 0;
     if (rc == 0)
