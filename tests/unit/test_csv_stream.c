@@ -729,13 +729,17 @@ static void test_range_open_end(void **state)
         assert_int_equal(f->log.n, 2);
         assert_int_equal(r.end_line, 6);
     }
-    /* A range of standard input cannot seek. */
+    /* "-" is a file name to the library, not standard input (that is the
+     * command line's convention): absent here, it cannot be opened. */
     csvstream_cb cb = {log_field, log_row, &f->log, NULL, NULL};
     csvstream_range r = {6, 13, 2, 0, 0, 0};
+    char cwd[600];
+    assert_non_null(getcwd(cwd, sizeof cwd));
+    assert_int_equal(chdir(f->dir.path), 0);
     assert_int_equal(csvstream_run_range("-", ',', 0, &cb, &r, NULL, &f->err), ETACAL_EIO);
-    assert_int_equal(f->err.code, ETACAL_EIO);
     assert_string_equal(f->err.where, "-");
-    assert_memory_equal(f->err.msg, "cannot seek: ", 13);
+    assert_string_equal(f->err.msg, "cannot open: No such file or directory");
+    assert_int_equal(chdir(cwd), 0);
 }
 
 static void test_find_split(void **state)
