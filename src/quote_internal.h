@@ -78,6 +78,17 @@ struct etacal_quotes {
     etacal_accuracy accuracy; /* fit only */
 };
 
+/* Shared by the fit (quote.c) and its method qr (quote_qr.c): the
+ * weighted upper bound of Barber et al. (smallest s with the mass at or
+ * below it >= tau (1 + sum w); NaN out of memory), the rank rule with or
+ * without an assurance, its minimum n; and the qr fit itself. */
+double quote_weighted_upper(const double *s, const double *w, size_t n, double tau, size_t *k);
+size_t quote_rank_rule(size_t n, double tau, double conf);
+size_t quote_rule_min_n(double tau, double conf);
+struct seghier;
+int quotes_fit_qr(etacal_quotes *q, const etacal_table *t, const struct seghier *hs, size_t actual_col,
+                  size_t pred_col, const etacal_fit_opts *o, size_t min_rows, etacal_error *err);
+
 /* The promise formula of one row (promise.c; etacal_quotes_promise by
  * index). */
 double quote_row_promise(const etacal_quotes *q, const etacal_quote *row, double pred, const double *x, int *clamped,
