@@ -201,16 +201,17 @@ static size_t target_cells(const fsum *f, size_t s, size_t ti, const char **cell
         c++;
     }
     if (conf) {
-        /* the coverage law of the bound (Beta(k, n + 1 - k), conformal.h):
-         * its mean, and what it reaches with the chosen confidence; method
-         * qr: n of the row's calibration part */
-        size_t kk = g->k[ti], nn = g->n;
-        if (q->method == ETACAL_METHOD_QR) {
-            long r = serving_row(f, s, ti);
-            if (r >= 0 && q->rows[r].seg == s)
-                nn = q->rows[r].n;
-        }
-        int fin = kk >= 1 && kk <= nn && isfinite(v);
+        /* the coverage law of the segment's own row (Beta(k, n + 1 - k),
+         * conformal.h): its mean, and what it reaches with the chosen
+         * confidence, with the row's n and k: the rows of its calibration
+         * cell (a pooled cell's, or method qr's calibration part).  A
+         * segment served by a coarser row shows none: that row's line has
+         * the figures of the bound it uses. */
+        long r = serving_row(f, s, ti);
+        int own = r >= 0 && q->rows[r].seg == s;
+        size_t kk = own ? q->rows[r].k : 0, nn = own ? q->rows[r].n : 0;
+        (void)g;
+        int fin = own && kk >= 1 && kk <= nn && isfinite(v);
         snprintf(buf[c], sizeof buf[c], fin ? "%.4f" : "-", fin ? etacal_coverage_mean(nn, kk) : 0.0);
         cells[c] = buf[c];
         c++;

@@ -147,6 +147,24 @@ static void test_summary(void **state)
     const char *tail = "pooled in global (n < 100)";
     assert_true((size_t)(end - line) > strlen(tail));
     assert_memory_equal(end - strlen(tail), tail, strlen(tail));
+    /* it shows no coverage figures: the global row's line has those of the
+     * bound it gets */
+    nw = words(line, w, 16);
+    assert_string_equal(w[6], "-"); /* E cover at the first target */
+    /* the global row's figures are those of its calibration cell: the row's
+     * n (the pooled or left-over rows), not the segment's */
+    for (size_t r = 0; r < etacal_quotes_nrows(q); r++) {
+        etacal_quote_row row;
+        assert_int_equal(etacal_quotes_row(q, r, &row), ETACAL_OK);
+        if (row.seg != 0 || row.target != 0)
+            continue;
+        line = ot_line(b.data, "* ");
+        assert_non_null(line);
+        nw = words(line, w, 16);
+        snprintf(want, sizeof want, "%.4f", (double)row.k / (double)(row.n + 1));
+        assert_string_equal(w[5], want);
+        assert_true(strtod(w[5], NULL) >= 0.8 - 1e-4); /* the first target (0.8): its mean coverage, not k over all rows */
+    }
 
     /* the held-out rows: counts and Wilson 95% intervals overall */
     const etacal_holdout *h = etacal_fit_run_holdout(f->run);
