@@ -52,6 +52,12 @@ int etacal_curve_compute(const etacal_quotes *q, const etacal_holdout *h, double
     }
     out->nsegs = ns;
     out->ntargets = nt;
+    etacal_quote_index *ix = NULL;
+    int rc = etacal_quote_index_create(q, &ix, err);
+    if (rc) {
+        etacal_curve_free(out);
+        return rc;
+    }
     size_t s = 0;
     for (size_t g = 0; g < q->nsegs; g++) {
         if (g && (q->segs[g].level != q->nkeys || h->n[g] == 0))
@@ -61,10 +67,9 @@ int etacal_curve_compute(const etacal_quotes *q, const etacal_holdout *h, double
         double prev = NAN, prev_t = NAN;
         for (size_t ti = 0; ti < nt; ti++) {
             etacal_curve_point *p = &out->pts[s * nt + ti];
-            /* the promise actually given: own row or a coarser level */
-            size_t up = g;
-            while (up != 0 && q->segs[up].status[ti] != ETACAL_OWN_ROW)
-                up = q->segs[up].parent;
+            /* the promise actually given: the row the quote index serves */
+            long row = etacal_quote_index_lookup(ix, (const char *const *)q->segs[g].keys, NULL, ti, NULL);
+            size_t up = row >= 0 ? q->rows[row].seg : 0;
             p->target = q->targets[ti];
             p->buffer = q->segs[up].score_q[ti];
             p->mean_promise_s = hn ? h->promise_sum[g * nt + ti] / (double)hn : NAN;
@@ -81,5 +86,6 @@ int etacal_curve_compute(const etacal_quotes *q, const etacal_holdout *h, double
         }
         s++;
     }
+    etacal_quote_index_destroy(ix);
     return ETACAL_OK;
 }

@@ -149,12 +149,12 @@ static void seg_label(const etacal_quotes *q, size_t g, char *buf, size_t cap)
         snprintf(buf, cap, "all");
 }
 
-/* The segment whose row an order of segment g gets at target ti. */
-static size_t applied(const etacal_quotes *q, size_t g, size_t ti)
+/* The segment whose row an order of segment g gets at target ti: the
+ * quote index's row, as apply finds it. */
+static size_t applied(const etacal_quote_index *ix, const etacal_quotes *q, size_t g, size_t ti)
 {
-    while (g != 0 && q->segs[g].status[ti] != ETACAL_OWN_ROW)
-        g = q->segs[g].parent;
-    return g;
+    long r = etacal_quote_index_lookup(ix, (const char *const *)q->segs[g].keys, NULL, ti, NULL);
+    return r >= 0 ? q->rows[r].seg : 0;
 }
 
 static const char *method_phrase(int m)
@@ -639,10 +639,12 @@ static int buffer_grid(FILE *fp, const etacal_report *r, etacal_error *err)
     size_t cells = nr * nc;
     double *v = malloc((cells > 0 ? cells : 1) * sizeof *v);
     unsigned char *mark = calloc(cells > 0 ? cells : 1, 1);
-    if (!v || !mark) {
+    etacal_quote_index *ix = NULL;
+    int irc = v && mark ? etacal_quote_index_create(q, &ix, err) : ETACAL_ENOMEM;
+    if (irc) {
         free(v);
         free(mark);
-        return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
+        return irc == ETACAL_ENOMEM ? etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory") : irc;
     }
     for (size_t i = 0; i < nr * nc; i++)
         v[i] = NAN;
@@ -659,7 +661,7 @@ static int buffer_grid(FILE *fp, const etacal_report *r, etacal_error *err)
                 j = b;
         if (i == SIZE_MAX || j == SIZE_MAX)
             continue;
-        size_t up = applied(q, g, ti);
+        size_t up = applied(ix, q, g, ti);
         double s = q->segs[up].score_q[ti];
         v[i * nc + j] = ratio ? s : s / 60;
         if (up != g) {
@@ -686,6 +688,7 @@ static int buffer_grid(FILE *fp, const etacal_report *r, etacal_error *err)
                 MAX_GRID_COLS);
     fputs("</p>\n", fp);
     etacal_svg_heat(fp, "Buffers by segment", rows, nr, cols, nc, v, mark, ratio ? 3 : 1);
+    etacal_quote_index_destroy(ix);
     free(v);
     free(mark);
     fputs("</section>\n", fp);
