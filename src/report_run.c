@@ -2,7 +2,7 @@
 /* report_run.c: the report as one run (report.h): the fit run of fit.h at
  * the chosen target and the levels of the charts, the residuals, the
  * held-out counts, the cost curve and the backtest, handed to
- * etacal_report_write_html and written to a file that appears whole.  The
+ * etacal_report_write and written to the caller's sink.  The
  * page itself is report.c's; this file only gathers what it draws. */
 #include "base.h"
 

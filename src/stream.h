@@ -14,7 +14,7 @@
  * orders' header by name.  An order takes the most specific row of the table
  * that matches it: its own segment, then its segment with the last keys
  * replaced by "*", down to the global row.  The promise is
- * etacal_quote_promise's (covariates clamped into the row's range, never
+ * etacal_quotes_promise's (covariates clamped into the row's range, never
  * below 0), in seconds, rounded up (never down).  Memory does not grow with the number of orders.  On error
  * the output is incomplete: write to an etacal_outfile to keep it from
  * appearing. */

@@ -77,7 +77,7 @@ int etacal_apply_path(const etacal_quotes *q, const char *in_path, const char *o
  * promise and extra time per applied target and, with opts->actual_col,
  * the on-time rate of each target's promise and of the bare prediction on
  * the orders with an actual duration.  opts and stats are those of the run
- * (etacal_apply_csv).  ETACAL_OK; ETACAL_EINVAL (a target index out of
+ * (etacal_apply).  ETACAL_OK; ETACAL_EINVAL (a target index out of
  * range); ETACAL_ENOMEM; ETACAL_EIO when the sink refuses bytes. */
 int etacal_apply_write_summary(const etacal_quotes *q, const char *orders, const etacal_apply_opts *opts,
                                const etacal_apply_stats *stats, const etacal_sink *out, etacal_error *err);

@@ -90,7 +90,7 @@ void etacal_quotes_diff_free(etacal_quotes_diff *d);
 
 /* The promise the table gives keys (nkeys values, "*" for any) at target
  * index ti, at pred and covariates x (in q's coef order), with apply's
- * fallback to the nearest level above and its formula (etacal_quote_promise:
+ * fallback to the nearest level above and its formula (etacal_quotes_promise:
  * covariates clamped, never below 0); NaN when no row matches. */
 double etacal_quotes_promise_at(const etacal_quotes *q, const char *const *keys, size_t ti, double pred,
                                 const double *x);

@@ -103,7 +103,7 @@ double etacal_t_pvalue(double t, double df);
 #define ETACAL_QR_MAX_LEVELS 32
 int etacal_rearrange(const double *tau, double *q, size_t m, etacal_error *err);
 
-/* Options of etacal_qr_predict_csv. */
+/* Options of etacal_qr_predict. */
 typedef struct etacal_qr_predict_opts {
     char delim;            /* 0 means ',' */
     int bad_rows;          /* ETACAL_BAD_ROWS_ERROR or _SKIP */

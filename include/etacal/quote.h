@@ -118,7 +118,7 @@ typedef struct etacal_holdout {
     double *pred_sum;    /* [g]: sum of the predictions (s) */
 } etacal_holdout;
 
-/* Applies q to the rows of t with mask[i] != 0 (as etacal_apply_csv would,
+/* Applies q to the rows of t with mask[i] != 0 (as etacal_apply would,
  * without rounding) and counts who arrives by the promise.  key_cols,
  * x_cols as for the fit (the table's key and covariate columns, in q's
  * order).  Fills *out (free with etacal_holdout_free). */

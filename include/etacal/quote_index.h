@@ -50,7 +50,7 @@ long etacal_quote_index_segment(const etacal_quote_index *ix, const char *const 
 
 /* The promise of row r for an order with prediction pred and covariates
  * x[0..ncoef) in the table's coefficient order (NULL without covariates),
- * seconds, not rounded: etacal_quote_promise's formula (covariates clamped
+ * seconds, not rounded: etacal_quotes_promise's formula (covariates clamped
  * into the row's range, never below 0; *clamped and *floored, each may be
  * NULL, say whether either happened). */
 double etacal_quote_index_promise(const etacal_quote_index *ix, long r, double pred, const double *x, int *clamped,

@@ -30,10 +30,10 @@
 #define OT_FAILALLOC 1
 #endif
 
+#if OT_FAILALLOC
 static unsigned long ot_fail_at; /* 0: never */
 static unsigned long ot_calls;
 
-#if OT_FAILALLOC
 extern void *__libc_malloc(size_t size);
 extern void *__libc_calloc(size_t n, size_t size);
 extern void *__libc_realloc(void *p, size_t size);

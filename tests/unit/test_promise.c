@@ -1,5 +1,5 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
-/* test_promise.c: etacal_quote_promise, the one formula every user of a
+/* test_promise.c: quote_row_promise (etacal_quotes_promise), the one formula every user of a
  * quote table shares: offset_s + slope x pred + sum coef_j x_j with each
  * covariate clamped into the row's range [x_min, x_max], never below 0.
  * Expected values are worked by hand in the comments (decimal arithmetic);
