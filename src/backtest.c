@@ -10,12 +10,13 @@
  * stays in [-gamma, 1 + gamma] and the long-run miss rate obeys their
  * Prop. 4.1. */
 #include "base.h"
+#include "results.h"
 
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
-void etacal_backtest_free(etacal_backtest_result *r)
+void backtest_release(etacal_backtest_result *r)
 {
     if (!r)
         return;
@@ -23,7 +24,7 @@ void etacal_backtest_free(etacal_backtest_result *r)
     memset(r, 0, sizeof *r);
 }
 
-int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_col, size_t time_col,
+int backtest_fill(const etacal_table *t, size_t actual_col, size_t pred_col, size_t time_col,
                         const size_t *key_cols, size_t nkeys, const etacal_backtest_opts *o,
                         etacal_backtest_result *out, etacal_error *err)
 {
@@ -119,7 +120,7 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
                 goto done;
             } else {
                 etacal_holdout h;
-                rc = etacal_quotes_holdout(q, t, actual_col, pred_col, key_cols, o->x_cols, evm, &h, err);
+                rc = holdout_fill(q, t, actual_col, pred_col, key_cols, o->x_cols, evm, &h, err);
                 etacal_quotes_destroy(q);
                 if (rc)
                     goto done;
@@ -128,7 +129,7 @@ int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_co
                 pd->mean_buffer = (h.promise_sum[0] - h.pred_sum[0]) / (double)h.n[0];
                 bufsum += h.promise_sum[0] - h.pred_sum[0];
                 bufn += h.n[0];
-                etacal_holdout_free(&h);
+                holdout_release(&h);
             }
         }
         out->n += pd->n;
@@ -155,6 +156,6 @@ done:
     free(evm);
     free(w);
     if (rc)
-        etacal_backtest_free(out);
+        backtest_release(out);
     return rc;
 }

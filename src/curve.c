@@ -3,13 +3,14 @@
  * a grid of targets and its held-out counts (holdout.c).  The on-time rates
  * carry Wilson (1927) intervals (binom.c). */
 #include "base.h"
+#include "results.h"
 #include "quote_internal.h"
 
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
-void etacal_curve_free(etacal_curve *c)
+void curve_release(etacal_curve *c)
 {
     if (!c)
         return;
@@ -33,7 +34,7 @@ size_t etacal_curve_grid(double from, double to, double step, double *out, size_
     return n;
 }
 
-int etacal_curve_compute(const etacal_quotes *q, const etacal_holdout *h, double conf, etacal_curve *out,
+int curve_fill(const etacal_quotes *q, const etacal_holdout *h, double conf, etacal_curve *out,
                          etacal_error *err)
 {
     memset(out, 0, sizeof *out);
@@ -47,7 +48,7 @@ int etacal_curve_compute(const etacal_quotes *q, const etacal_holdout *h, double
     out->seg = malloc(ns * sizeof *out->seg);
     out->pts = calloc(ns * (nt ? nt : 1), sizeof *out->pts);
     if (!out->seg || !out->pts) {
-        etacal_curve_free(out);
+        curve_release(out);
         return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
     }
     out->nsegs = ns;
@@ -55,7 +56,7 @@ int etacal_curve_compute(const etacal_quotes *q, const etacal_holdout *h, double
     etacal_quote_index *ix = NULL;
     int rc = etacal_quote_index_create(q, &ix, err);
     if (rc) {
-        etacal_curve_free(out);
+        curve_release(out);
         return rc;
     }
     size_t s = 0;

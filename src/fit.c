@@ -2,6 +2,7 @@
 /* fit.c: the fit specification, its checks, and one fit run (read, hold
  * out, weigh, fit, score) shared by every command and binding (fit.h). */
 #include "base.h"
+#include "results.h"
 #include "quote_internal.h"
 
 #include <stdlib.h>
@@ -178,7 +179,7 @@ void etacal_fit_run_destroy(etacal_fit_run *r)
 {
     if (!r)
         return;
-    etacal_holdout_free(&r->ho);
+    holdout_release(&r->ho);
     free(r->mask);
     etacal_quotes_destroy(r->q);
     etacal_table_destroy(r->own);
@@ -263,7 +264,7 @@ int etacal_fit_table(const etacal_fitspec *s, const etacal_table *t, etacal_fit_
         /* the mask fitted on the kept rows; flipped, it marks the held-out ones */
         for (size_t i = 0; i < n; i++)
             r->mask[i] = !r->mask[i];
-        rc = etacal_quotes_holdout(r->q, t, r->actual_col, r->pred_col, r->key_cols, r->x_cols, r->mask, &r->ho,
+        rc = holdout_fill(r->q, t, r->actual_col, r->pred_col, r->key_cols, r->x_cols, r->mask, &r->ho,
                                    err);
     }
 done:

@@ -4,6 +4,7 @@
  * specific matching row), and the rows on time are counted overall and per
  * segment. */
 #include "base.h"
+#include "results.h"
 #include "quote_internal.h"
 
 #include <gsl/gsl_rng.h>
@@ -11,7 +12,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-void etacal_holdout_free(etacal_holdout *h)
+void holdout_release(etacal_holdout *h)
 {
     if (!h)
         return;
@@ -23,7 +24,7 @@ void etacal_holdout_free(etacal_holdout *h)
     memset(h, 0, sizeof *h);
 }
 
-int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t actual_col, size_t pred_col,
+int holdout_fill(const etacal_quotes *q, const etacal_table *t, size_t actual_col, size_t pred_col,
                           const size_t *key_cols, const size_t *x_cols, const unsigned char *mask,
                           etacal_holdout *out, etacal_error *err)
 {
@@ -88,7 +89,7 @@ int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t 
 done:
     etacal_quote_index_destroy(ix);
     if (rc)
-        etacal_holdout_free(out);
+        holdout_release(out);
     return rc;
 }
 

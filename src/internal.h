@@ -11,5 +11,6 @@
 #include "quote_internal.h"
 #include "segment.h"
 #include "stream.h"
+#include "results.h"
 
 #endif

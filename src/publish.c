@@ -3,6 +3,7 @@
  * tables, the publisher's lock and the copy of the previous table. */
 #define _GNU_SOURCE
 #include "base.h"
+#include "results.h"
 #include "quote_internal.h"
 
 #include "etacal/conformal.h"
@@ -199,7 +200,7 @@ double etacal_quotes_promise_at(const etacal_quotes *q, const char *const *keys,
     return v;
 }
 
-void etacal_quotes_diff_free(etacal_quotes_diff *d)
+void quotes_diff_release(etacal_quotes_diff *d)
 {
     if (!d)
         return;
@@ -241,7 +242,7 @@ static long target_index(const etacal_quotes *q, double tau)
     return -1;
 }
 
-int etacal_quotes_compare(const etacal_quotes *old_q, const etacal_quotes *new_q, double pred,
+int quotes_compare_fill(const etacal_quotes *old_q, const etacal_quotes *new_q, double pred,
                           const char *const *x_names, const double *x, size_t nx, etacal_quotes_diff *out,
                           etacal_error *err)
 {
@@ -273,7 +274,7 @@ int etacal_quotes_compare(const etacal_quotes *old_q, const etacal_quotes *new_q
     if ((rc = etacal_quote_index_create(new_q, &ixn, err)) != 0 ||
         (rc = etacal_quote_index_create(old_q, &ixo, err)) != 0) {
         etacal_quote_index_destroy(ixn);
-        etacal_quotes_diff_free(out);
+        quotes_diff_release(out);
         return rc;
     }
     for (int pass = 0; pass < 2; pass++) {

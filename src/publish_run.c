@@ -11,6 +11,7 @@
  * practice, no source).  The clock is the caller's (spec->now). */
 #define _GNU_SOURCE
 #include "base.h"
+#include "results.h"
 #include "stream.h"
 #include "quote_internal.h"
 #include "textout.h"
@@ -87,7 +88,7 @@ void etacal_publish_result_destroy(etacal_publish_result *r)
     if (!r)
         return;
     free(r->record);
-    etacal_quotes_diff_free(&r->diff);
+    quotes_diff_release(&r->diff);
     etacal_quotes_destroy(r->cur);
     etacal_fit_run_destroy(r->fit);
     free(r);
@@ -495,14 +496,14 @@ static int compare_current(const etacal_publishspec *s, etacal_publish_result *r
         r->ref_pred = s->ref_pred;
     if (!r->have_cur)
         return ETACAL_OK;
-    rc = etacal_quotes_compare(r->cur, q, r->ref_pred, s->fit.xs, r->ref_x, s->fit.nx, &r->diff, err);
+    rc = quotes_compare_fill(r->cur, q, r->ref_pred, s->fit.xs, r->ref_x, s->fit.nx, &r->diff, err);
     if (rc && rc != ETACAL_ENOMEM) {
         /* the current table has a covariate the new fit does not read */
         snprintf(r->cur_problem, sizeof r->cur_problem, "cannot compare: %s", err->msg);
         etacal_error_clear(err);
         r->have_cur = 0;
         rc = ETACAL_OK;
-        etacal_quotes_diff_free(&r->diff);
+        quotes_diff_release(&r->diff);
     }
     return rc;
 }

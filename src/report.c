@@ -6,6 +6,7 @@
  * (etacal_binom_range), the rolling-origin backtest (backtest.c).  The only
  * counting done here is the residual histogram, a summary for the eye. */
 #include "base.h"
+#include "results.h"
 #include "svg.h"
 #include "quote_internal.h"
 
@@ -21,7 +22,7 @@
 
 /* ---- the residual histogram ---------------------------------------------- */
 
-void etacal_report_hist_free(etacal_report_hist *h)
+void report_hist_release(etacal_report_hist *h)
 {
     if (!h)
         return;
@@ -30,7 +31,7 @@ void etacal_report_hist_free(etacal_report_hist *h)
     memset(h, 0, sizeof *h);
 }
 
-int etacal_report_hist_residuals(const etacal_table *t, size_t actual_col, size_t pred_col,
+int report_hist_fill(const etacal_table *t, size_t actual_col, size_t pred_col,
                                  const unsigned char *mask, etacal_report_hist *out, etacal_error *err)
 {
     memset(out, 0, sizeof *out);
@@ -59,7 +60,7 @@ int etacal_report_hist_residuals(const etacal_table *t, size_t actual_col, size_
     out->edges = malloc((nb + 1) * sizeof *out->edges);
     out->counts = calloc(nb, sizeof *out->counts);
     if (!out->edges || !out->counts) {
-        etacal_report_hist_free(out);
+        report_hist_release(out);
         return etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
     }
     double k0 = floor(tk.first / tk.step + 0.5);

@@ -5,6 +5,7 @@
  * etacal_report_write and written to the caller's sink.  The
  * page itself is report.c's; this file only gathers what it draws. */
 #include "base.h"
+#include "results.h"
 
 #include <math.h>
 #include <stdarg.h>
@@ -157,9 +158,9 @@ static int run_table(const etacal_report_spec *s, const etacal_table *t, const e
     }
     for (size_t i = 0; i < n; i++)
         kept[i] = !held_mask[i];
-    if ((rc = etacal_report_hist_residuals(t, actual_col, pred_col, kept, &hist, err)) != 0)
+    if ((rc = report_hist_fill(t, actual_col, pred_col, kept, &hist, err)) != 0)
         goto done;
-    if ((rc = etacal_curve_compute(q, etacal_fit_run_holdout(run), 0.95, &cv, err)) != 0)
+    if ((rc = curve_fill(q, etacal_fit_run_holdout(run), 0.95, &cv, err)) != 0)
         goto done;
 
     double tmin = NAN, tmax = NAN;
@@ -175,7 +176,7 @@ static int run_table(const etacal_report_spec *s, const etacal_table *t, const e
                                    .seed = fs->seed};
         etacal_error be;
         etacal_error_clear(&be);
-        rc = etacal_backtest_run(t, actual_col, pred_col, (size_t)time_col, etacal_fit_run_key_cols(run), fs->nkeys,
+        rc = backtest_fill(t, actual_col, pred_col, (size_t)time_col, etacal_fit_run_key_cols(run), fs->nkeys,
                                  &bo, &bt, &be);
         if (rc == ETACAL_ENUM) {
             /* the data are too short for this window: the page says so */
@@ -224,9 +225,9 @@ static int run_table(const etacal_report_spec *s, const etacal_table *t, const e
     rep.curve_from = s->curve_from;
     rc = etacal_report_write(&rep, out, err);
 done:
-    etacal_backtest_free(&bt);
-    etacal_report_hist_free(&hist);
-    etacal_curve_free(&cv);
+    backtest_release(&bt);
+    report_hist_release(&hist);
+    curve_release(&cv);
     free(kept);
     etacal_fit_run_destroy(run);
     return rc;

@@ -86,10 +86,12 @@ typedef struct etacal_backtest_result {
  * key_cols as for the fit.  Every period with orders is scored: see
  * ETACAL_BT_* for the unbounded and empty promises.  A fit failure other
  * than too few rows (say a bad option) fails the whole run. */
+/* *out is a new object (free with etacal_backtest_destroy; NULL after an
+ * error). */
 int etacal_backtest_run(const etacal_table *t, size_t actual_col, size_t pred_col, size_t time_col,
                         const size_t *key_cols, size_t nkeys, const etacal_backtest_opts *opts,
-                        etacal_backtest_result *out, etacal_error *err);
-void etacal_backtest_free(etacal_backtest_result *r);
+                        etacal_backtest_result **out, etacal_error *err);
+void etacal_backtest_destroy(etacal_backtest_result *x);
 
 /* Writes a backtest's result to out in format ETACAL_FORMAT_TEXT, _CSV or
  * _JSON (io.h), as etacal backtest prints it.  opts are the options of the

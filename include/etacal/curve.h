@@ -50,10 +50,11 @@ typedef struct etacal_curve {
 
 /* The curve of q (fitted at its targets, ascending) measured by h (from
  * etacal_quotes_holdout with the same table), with Wilson intervals at
- * confidence conf in (0,1).  Fills *out (free with etacal_curve_free). */
-int etacal_curve_compute(const etacal_quotes *q, const etacal_holdout *h, double conf, etacal_curve *out,
+ * confidence conf in (0,1).  *out is a new object (free with etacal_curve_destroy;
+ * NULL after an error). */
+int etacal_curve_compute(const etacal_quotes *q, const etacal_holdout *h, double conf, etacal_curve **out,
                          etacal_error *err);
-void etacal_curve_free(etacal_curve *c);
+void etacal_curve_destroy(etacal_curve *x);
 
 /* The grid from, from + step, ..., up to to (and below 1) as exact
  * decimals (rounded to 1e-9, so 0.57 is 0.57 and not

@@ -82,11 +82,12 @@ typedef struct etacal_quotes_diff {
 
 /* Compares new_q with old_q at the reference point: pred and, per
  * covariate name of either table, x_names[j] = x[j] (a table's covariate
- * missing from x_names is an error). */
+ * missing from x_names is an error).  *out is a new object (free with
+ * etacal_quotes_diff_destroy; NULL after an error). */
 int etacal_quotes_compare(const etacal_quotes *old_q, const etacal_quotes *new_q, double pred,
-                          const char *const *x_names, const double *x, size_t nx, etacal_quotes_diff *out,
+                          const char *const *x_names, const double *x, size_t nx, etacal_quotes_diff **out,
                           etacal_error *err);
-void etacal_quotes_diff_free(etacal_quotes_diff *d);
+void etacal_quotes_diff_destroy(etacal_quotes_diff *x);
 
 /* The promise the table gives keys (nkeys values, "*" for any) at target
  * index ti, at pred and covariates x (in q's coef order), with apply's

@@ -121,11 +121,12 @@ typedef struct etacal_holdout {
 /* Applies q to the rows of t with mask[i] != 0 (as etacal_apply would,
  * without rounding) and counts who arrives by the promise.  key_cols,
  * x_cols as for the fit (the table's key and covariate columns, in q's
- * order).  Fills *out (free with etacal_holdout_free). */
+ * order).  *out is a new object (free with etacal_holdout_destroy; NULL
+ * after an error). */
 int etacal_quotes_holdout(const etacal_quotes *q, const etacal_table *t, size_t actual_col, size_t pred_col,
                           const size_t *key_cols, const size_t *x_cols, const unsigned char *mask,
-                          etacal_holdout *out, etacal_error *err);
-void etacal_holdout_free(etacal_holdout *h);
+                          etacal_holdout **out, etacal_error *err);
+void etacal_holdout_destroy(etacal_holdout *x);
 
 /* Which rows to hold out: with time_col >= 0 (a numeric column, such as
  * one read with ETACAL_NUM_TIME) the latest share of rows by time (rows at

@@ -38,11 +38,11 @@ typedef struct etacal_report_hist {
 } etacal_report_hist;
 
 /* The histogram of actual - pred over the rows of t with mask[i] != 0 (NULL:
- * every row).  Fills *out (free with etacal_report_hist_free).  Errors: no
+ * every row).  *out is a new object (free with etacal_report_hist_destroy; NULL after an error).  Errors: no
  * row, out of memory. */
 int etacal_report_hist_residuals(const etacal_table *t, size_t actual_col, size_t pred_col,
-                                 const unsigned char *mask, etacal_report_hist *out, etacal_error *err);
-void etacal_report_hist_free(etacal_report_hist *h);
+                                 const unsigned char *mask, etacal_report_hist **out, etacal_error *err);
+void etacal_report_hist_destroy(etacal_report_hist *x);
 
 /* What the page shows, all borrowed. */
 typedef struct etacal_report {

@@ -180,7 +180,7 @@ static int run(bt_args *a)
     etacal_error err;
     etacal_error_clear(&err);
     etacal_table *t = NULL;
-    etacal_backtest_result r = {0};
+    etacal_backtest_result *r = NULL;
     cliout of = {0};
     int rc = etacal_table_read_csv(cli_input(a->path), cols, 3 + a->nkeys + a->nx, &a->ro, &t, &err);
     if (rc == 0)
@@ -188,12 +188,12 @@ static int run(bt_args *a)
     if (rc == 0)
         rc = cliout_open(&of, a->output, &err);
     if (rc == 0) {
-        rc = etacal_backtest_write(&r, &a->bo, a->path, format_code(a->format), &of.sink, &err);
+        rc = etacal_backtest_write(r, &a->bo, a->path, format_code(a->format), &of.sink, &err);
         if (rc == 0)
             rc = cliout_commit(&of, &err);
         cliout_close(&of);
     }
-    etacal_backtest_free(&r);
+    etacal_backtest_destroy(r);
     etacal_table_destroy(t);
     return rc ? report_error(&err) : 0;
 }

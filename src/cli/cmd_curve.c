@@ -105,7 +105,7 @@ int cmd_curve(int argc, char **argv)
     etacal_error err;
     etacal_error_clear(&err);
     etacal_fit_run *run = NULL;
-    etacal_curve cv = {0};
+    etacal_curve *cv = NULL;
     cliout of = {0};
     int rc = etacal_fit_csv(&spec, cli_input(path), &a.ro, &run, &err);
     if (rc)
@@ -117,17 +117,17 @@ int cmd_curve(int argc, char **argv)
     int fmt = strcmp(format, "json") == 0 ? ETACAL_FORMAT_JSON
               : strcmp(format, "csv") == 0 ? ETACAL_FORMAT_CSV
                                            : ETACAL_FORMAT_TEXT;
-    if ((rc = etacal_curve_write(&cv, run, &spec, path, fmt, &of.sink, &err)) != 0)
+    if ((rc = etacal_curve_write(cv, run, &spec, path, fmt, &of.sink, &err)) != 0)
         goto fail;
     if ((rc = cliout_commit(&of, &err)) != 0)
         goto fail;
     cliout_close(&of);
-    etacal_curve_free(&cv);
+    etacal_curve_destroy(cv);
     etacal_fit_run_destroy(run);
     return 0;
 fail:
     cliout_close(&of);
-    etacal_curve_free(&cv);
+    etacal_curve_destroy(cv);
     etacal_fit_run_destroy(run);
     return report_error(&err);
 }

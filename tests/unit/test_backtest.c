@@ -22,6 +22,7 @@
 #include <unistd.h>
 
 #include "etacal/etacal.h"
+#include "internal.h"
 
 static etacal_table *tbl;
 
@@ -67,7 +68,7 @@ static etacal_backtest_result run(double half_life_d, double gamma)
     etacal_backtest_opts o = {ETACAL_METHOD_ADD, 0.9, 14 * 86400.0, 86400.0, 100, half_life_d * 86400, gamma, 0, NULL, 0, 0, 0};
     etacal_backtest_result r;
     etacal_error err;
-    assert_int_equal(etacal_backtest_run(tbl, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_OK);
+    assert_int_equal(backtest_fill(tbl, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_OK);
     return r;
 }
 
@@ -111,7 +112,7 @@ static void test_periods(void **state)
     char buf[32];
     etacal_time_format(r.periods[0].start, buf);
     assert_string_equal(buf, "2026-03-15T00:01:48Z"); /* first row 00:01:48, plus 14 days */
-    etacal_backtest_free(&r);
+    backtest_release(&r);
 }
 
 static void test_drift_and_adaptation(void **state)
@@ -133,9 +134,9 @@ static void test_drift_and_adaptation(void **state)
     assert_true(fabs(err - 0.1) <= bound);
     /* the working level moved up to follow the drift */
     assert_true(adapt.periods[adapt.nperiods - 1].level > 0.9);
-    etacal_backtest_free(&plain);
-    etacal_backtest_free(&weighted);
-    etacal_backtest_free(&adapt);
+    backtest_release(&plain);
+    backtest_release(&weighted);
+    backtest_release(&adapt);
 }
 
 /* A table of columns actual, pred, t from arrays, through a CSV file. */
@@ -195,7 +196,7 @@ static void test_no_lookahead(void **state)
     etacal_backtest_opts o = {ETACAL_METHOD_ADD, 0.9, 7 * day, day, 100, 0, 0, 0, NULL, 0, 0, 0};
     etacal_backtest_result r;
     etacal_error err;
-    assert_int_equal(etacal_backtest_run(tb, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_OK);
+    assert_int_equal(backtest_fill(tb, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_OK);
     assert_int_equal(r.nperiods, DAYS - 7);
     double sc[DAYS * PER];
     for (size_t k = 0; k < r.nperiods; k++) {
@@ -218,7 +219,7 @@ static void test_no_lookahead(void **state)
         assert_int_equal(p->promise, ETACAL_BT_FINITE);
         assert_true(fabs(p->mean_buffer - sc[kk - 1]) <= 1e-9 * fabs(sc[kk - 1]));
     }
-    etacal_backtest_free(&r);
+    backtest_release(&r);
     etacal_table_destroy(tb);
 }
 
@@ -312,7 +313,7 @@ static void test_aci_disruption(void **state)
     etacal_backtest_opts o = {ETACAL_METHOD_ADD, 0.9, 7 * day, day, 100, 0, 0.0375, 0, NULL, 0, 0, 0};
     etacal_backtest_result r;
     etacal_error err;
-    assert_int_equal(etacal_backtest_run(tb, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_OK);
+    assert_int_equal(backtest_fill(tb, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_OK);
     assert_int_equal(r.nperiods, 38);
     check_aci(&r, 0.9, 0.0375);
     /* every period has orders and is scored: 38 x 20 */
@@ -334,18 +335,18 @@ static void test_aci_disruption(void **state)
     assert_true(crossed >= 1);
     assert_true(last + 1 < r.nperiods);
     assert_true(r.periods[r.nperiods - 1].level < r.periods[last].level - 0.01);
-    etacal_backtest_free(&r);
+    backtest_release(&r);
 
     /* gamma 0.05 takes the level to 1 and past it (alpha_t <= 0) */
     o.gamma = 0.05;
-    assert_int_equal(etacal_backtest_run(tb, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_OK);
+    assert_int_equal(backtest_fill(tb, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_OK);
     check_aci(&r, 0.9, 0.05);
     size_t above = 0;
     for (size_t k = 0; k < r.nperiods; k++)
         above += r.periods[k].level >= 1;
     assert_true(above >= 1);
     assert_true(r.periods[r.nperiods - 1].level < 1);
-    etacal_backtest_free(&r);
+    backtest_release(&r);
     etacal_table_destroy(tb);
 
     /* the other edge: with a target of 0.05 the promise is about the
@@ -355,12 +356,12 @@ static void test_aci_disruption(void **state)
     tb = disruption_table(1);
     o.target = 0.05;
     o.gamma = 0.5;
-    assert_int_equal(etacal_backtest_run(tb, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_OK);
+    assert_int_equal(backtest_fill(tb, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_OK);
     check_aci(&r, 0.05, 0.5);
     assert_true(r.none_periods >= 1);
     assert_true(r.periods[r.nperiods - 1].level > 0);
     assert_int_equal(r.periods[r.nperiods - 1].promise, ETACAL_BT_FINITE);
-    etacal_backtest_free(&r);
+    backtest_release(&r);
     etacal_table_destroy(tb);
 }
 
@@ -370,12 +371,12 @@ static void test_errors(void **state)
     etacal_backtest_opts o = {ETACAL_METHOD_ADD, 0.9, 100 * 86400.0, 86400.0, 100, 0, 0, 0, NULL, 0, 0, 0};
     etacal_backtest_result r;
     etacal_error err;
-    assert_int_equal(etacal_backtest_run(tbl, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_ENUM);
+    assert_int_equal(backtest_fill(tbl, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_ENUM);
     o.window_s = 0;
-    assert_int_equal(etacal_backtest_run(tbl, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_EINVAL);
+    assert_int_equal(backtest_fill(tbl, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_EINVAL);
     o.window_s = 86400;
     o.target = 1;
-    assert_int_equal(etacal_backtest_run(tbl, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_EINVAL);
+    assert_int_equal(backtest_fill(tbl, 0, 1, 2, NULL, 0, &o, &r, &err), ETACAL_EINVAL);
 }
 
 int main(void)

@@ -17,6 +17,7 @@
 #include "testutil.h"
 
 #include "etacal/etacal.h"
+#include "internal.h"
 
 static void test_hand_example(void **state)
 {
@@ -47,9 +48,9 @@ static void test_hand_example(void **state)
     etacal_quotes *q = NULL;
     assert_int_equal(etacal_quotes_fit(t, 0, 1, NULL, 0, &fo, &q, &err), ETACAL_OK);
     etacal_holdout ho;
-    assert_int_equal(etacal_quotes_holdout(q, t, 0, 1, NULL, NULL, heldmask, &ho, &err), ETACAL_OK);
+    assert_int_equal(holdout_fill(q, t, 0, 1, NULL, NULL, heldmask, &ho, &err), ETACAL_OK);
     etacal_curve cv;
-    assert_int_equal(etacal_curve_compute(q, &ho, 0.95, &cv, &err), ETACAL_OK);
+    assert_int_equal(curve_fill(q, &ho, 0.95, &cv, &err), ETACAL_OK);
     assert_int_equal(cv.nsegs, 1);
     assert_int_equal(cv.ntargets, 2);
     const etacal_curve_point *a = &cv.pts[0], *b = &cv.pts[1];
@@ -61,15 +62,15 @@ static void test_hand_example(void **state)
     assert_true(a->n == 4 && a->hits == 2 && b->hits == 3);
     assert_true(fabs(a->ci_lo - 0.1500) < 1e-4 && fabs(a->ci_hi - 0.8500) < 1e-4);
     assert_true(fabs(b->ci_lo - 0.3006) < 1e-4 && fabs(b->ci_hi - 0.9544) < 1e-4);
-    etacal_curve_free(&cv);
+    curve_release(&cv);
     /* errors: counts of another table, a bad confidence */
-    assert_int_equal(etacal_curve_compute(q, &ho, 1.5, &cv, &err), ETACAL_EINVAL);
+    assert_int_equal(curve_fill(q, &ho, 1.5, &cv, &err), ETACAL_EINVAL);
     etacal_holdout other = ho;
     other.ntargets = 1;
-    assert_int_equal(etacal_curve_compute(q, &other, 0.95, &cv, &err), ETACAL_EINVAL);
-    etacal_curve_free(&cv);
-    etacal_curve_free(&cv); /* a freed curve frees again safely */
-    etacal_holdout_free(&ho);
+    assert_int_equal(curve_fill(q, &other, 0.95, &cv, &err), ETACAL_EINVAL);
+    curve_release(&cv);
+    curve_release(&cv); /* a freed curve frees again safely */
+    holdout_release(&ho);
     etacal_quotes_destroy(q);
     etacal_table_destroy(t);
     tu_dir_remove(&d);

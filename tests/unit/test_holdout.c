@@ -42,6 +42,7 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "results.h"
 #include "testutil.h"
 
 /* ---- the mask ---------------------------------------------------------- */
@@ -394,7 +395,7 @@ static void check_holdout(const trow *rows, size_t nrows, int qr, uint64_t seed,
         xc[j] = strcmp(q->coef_names[j], "items") == 0 ? C_ITEMS : C_DIST;
     etacal_holdout h;
     memset(&h, 0xa5, sizeof h);
-    assert_int_equal(etacal_quotes_holdout(q, t, C_ACT, C_PRED, keys, xc, use_mask ? mask : NULL, &h, &err), ETACAL_OK);
+    assert_int_equal(holdout_fill(q, t, C_ACT, C_PRED, keys, xc, use_mask ? mask : NULL, &h, &err), ETACAL_OK);
     assert_int_equal(h.nsegs, q->nsegs);
     assert_int_equal(h.ntargets, 2);
     const double tg[2] = {0.8, 0.9};
@@ -465,10 +466,10 @@ static void check_holdout(const trow *rows, size_t nrows, int qr, uint64_t seed,
     free(hits);
     free(psum);
     free(dsum);
-    etacal_holdout_free(&h);
+    holdout_release(&h);
     assert_null(h.n);
-    etacal_holdout_free(&h); /* twice, and NULL: no-ops */
-    etacal_holdout_free(NULL);
+    holdout_release(&h); /* twice, and NULL: no-ops */
+    holdout_release(NULL);
     etacal_table_destroy(t);
     etacal_quotes_destroy(q);
     tu_dir_remove(&dir);
@@ -502,7 +503,7 @@ static void test_holdout_no_keys(void **state)
     static data d;
     etacal_table *t = make_data(&d, 0x0dd, add_rows, sizeof add_rows / sizeof *add_rows, 0);
     etacal_holdout h;
-    assert_int_equal(etacal_quotes_holdout(q, t, C_ACT, C_PRED, NULL, NULL, NULL, &h, &err), ETACAL_OK);
+    assert_int_equal(holdout_fill(q, t, C_ACT, C_PRED, NULL, NULL, NULL, &h, &err), ETACAL_OK);
     assert_int_equal(h.nsegs, 1);
     size_t hits = 0, bare = 0;
     double psum = 0;
@@ -516,7 +517,7 @@ static void test_holdout_no_keys(void **state)
     assert_int_equal(h.hits[0], hits);
     assert_int_equal(h.bare[0], bare);
     assert_close(h.promise_sum[0], psum, 1e-12);
-    etacal_holdout_free(&h);
+    holdout_release(&h);
     etacal_table_destroy(t);
     etacal_quotes_destroy(q);
     tu_dir_remove(&dir);
@@ -550,7 +551,7 @@ static void test_holdout_errors(void **state)
     etacal_holdout h;
     memset(&h, 0xa5, sizeof h);
     etacal_error_clear(&err);
-    assert_int_equal(etacal_quotes_holdout(q, t, C_ACT, C_PRED, keys, NULL, NULL, &h, &err), ETACAL_EINVAL);
+    assert_int_equal(holdout_fill(q, t, C_ACT, C_PRED, keys, NULL, NULL, &h, &err), ETACAL_EINVAL);
     assert_error(&err, ETACAL_EINVAL, "", "the quote table has no global row");
     assert_null(h.n);
     assert_null(h.hits);
@@ -563,9 +564,9 @@ static void test_holdout_errors(void **state)
     size_t nn = 0;
     for (size_t i = 0; i < NDATA; i++)
         nn += north[i] = strcmp(d.zone[i], "north") == 0;
-    assert_int_equal(etacal_quotes_holdout(q, t, C_ACT, C_PRED, keys, NULL, north, &h, &err), ETACAL_OK);
+    assert_int_equal(holdout_fill(q, t, C_ACT, C_PRED, keys, NULL, north, &h, &err), ETACAL_OK);
     assert_int_equal(h.n[0], nn);
-    etacal_holdout_free(&h);
+    holdout_release(&h);
     q->rows[g9].target = 1;
 
     /* more than ETACAL_MAX_KEYS key columns */
@@ -573,7 +574,7 @@ static void test_holdout_errors(void **state)
     many.nkeys = ETACAL_MAX_KEYS + 1;
     memset(&h, 0xa5, sizeof h);
     etacal_error_clear(&err);
-    assert_int_equal(etacal_quotes_holdout(&many, t, C_ACT, C_PRED, keys, NULL, NULL, &h, &err), ETACAL_EINVAL);
+    assert_int_equal(holdout_fill(&many, t, C_ACT, C_PRED, keys, NULL, NULL, &h, &err), ETACAL_EINVAL);
     assert_error(&err, ETACAL_EINVAL, "", "a quote table has at most 16 key columns");
     assert_null(h.n);
     assert_int_equal(h.nsegs, 0);

@@ -18,6 +18,7 @@
 #include <string.h>
 
 #include "etacal/etacal.h"
+#include "internal.h"
 #include "testutil.h"
 #include "outfixture.h"
 
@@ -52,7 +53,7 @@ static int setup(void **state)
     f->s.time = "placed";
     etacal_error err;
     assert_int_equal(etacal_fit_csv(&f->s, f->path, NULL, &f->run, &err), ETACAL_OK);
-    assert_int_equal(etacal_curve_compute(etacal_fit_run_quotes(f->run), etacal_fit_run_holdout(f->run), 0.95,
+    assert_int_equal(curve_fill(etacal_fit_run_quotes(f->run), etacal_fit_run_holdout(f->run), 0.95,
                                           &f->cv, &err),
                      ETACAL_OK);
     *state = f;
@@ -62,7 +63,7 @@ static int setup(void **state)
 static int teardown(void **state)
 {
     fixture *f = *state;
-    etacal_curve_free(&f->cv);
+    curve_release(&f->cv);
     etacal_fit_run_destroy(f->run);
     tu_dir_remove(&f->d);
     free(f);

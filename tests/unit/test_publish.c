@@ -23,6 +23,7 @@
 
 #include "etacal/etacal.h"
 #include "internal.h"
+#include "results.h"
 #include "stream.h"
 #include "testutil.h"
 
@@ -199,7 +200,7 @@ static void test_compare(void **state)
                              "east,car,0.9,add,300,271,120,1\n");
     etacal_quotes_diff df;
     etacal_error err;
-    assert_int_equal(etacal_quotes_compare(o, n, 1000, NULL, NULL, 0, &df, &err), ETACAL_OK);
+    assert_int_equal(quotes_compare_fill(o, n, 1000, NULL, NULL, 0, &df, &err), ETACAL_OK);
     assert_int_equal(df.keys_differ, 0);
     assert_int_equal(df.segs_added, 1);
     assert_int_equal(df.segs_removed, 1);
@@ -215,13 +216,13 @@ static void test_compare(void **state)
     m = find_move(&df, "east", "car");
     assert_non_null(m);
     assert_true(!m->in_old && m->in_new && m->old_promise == 1300 && m->new_promise == 1120);
-    etacal_quotes_diff_free(&df);
+    quotes_diff_release(&df);
 
     /* the same table: nothing moves */
-    assert_int_equal(etacal_quotes_compare(o, o, 1000, NULL, NULL, 0, &df, &err), ETACAL_OK);
+    assert_int_equal(quotes_compare_fill(o, o, 1000, NULL, NULL, 0, &df, &err), ETACAL_OK);
     assert_int_equal(df.segs_changed + df.segs_added + df.segs_removed, 0);
     assert_int_equal(df.segs_same, 4);
-    etacal_quotes_diff_free(&df);
+    quotes_diff_release(&df);
     etacal_quotes_destroy(n);
 
     /* other key columns: only the global rows compare */
@@ -229,11 +230,11 @@ static void test_compare(void **state)
               "zone,target,method,n,k,offset_s,slope\n"
               "*,0.9,add,5000,4501,310,1\n"
               "north,0.9,add,900,811,250,1\n");
-    assert_int_equal(etacal_quotes_compare(o, n, 1000, NULL, NULL, 0, &df, &err), ETACAL_OK);
+    assert_int_equal(quotes_compare_fill(o, n, 1000, NULL, NULL, 0, &df, &err), ETACAL_OK);
     assert_int_equal(df.keys_differ, 1);
     assert_int_equal(df.nmoves, 1);
     assert_true(df.moves[0].old_promise == 1300 && df.moves[0].new_promise == 1310);
-    etacal_quotes_diff_free(&df);
+    quotes_diff_release(&df);
     etacal_quotes_destroy(n);
 
     /* a target of one table only: no promise on the other side */
@@ -241,7 +242,7 @@ static void test_compare(void **state)
               "zone,vehicle,target,method,n,k,offset_s,slope\n"
               "*,*,0.9,add,5000,4501,300,1\n"
               "*,*,0.95,add,5000,4751,420,1\n");
-    assert_int_equal(etacal_quotes_compare(o, n, 1000, NULL, NULL, 0, &df, &err), ETACAL_OK);
+    assert_int_equal(quotes_compare_fill(o, n, 1000, NULL, NULL, 0, &df, &err), ETACAL_OK);
     assert_int_equal(df.targets_added, 1);
     assert_int_equal(df.targets_removed, 0);
     int seen95 = 0;
@@ -251,7 +252,7 @@ static void test_compare(void **state)
             assert_true(isnan(df.moves[i].old_promise) && df.moves[i].new_promise == 1420);
         }
     assert_true(seen95);
-    etacal_quotes_diff_free(&df);
+    quotes_diff_release(&df);
     etacal_quotes_destroy(n);
 
     /* a covariate without a reference value is an error */
@@ -259,16 +260,16 @@ static void test_compare(void **state)
               "target,method,n,k,offset_s,slope,coef_distance_km\n"
               "0.9,qr,5000,2251,200,1.1,60\n");
     etacal_quotes *o1 = table(&d, "old1.csv", "target,method,n,k,offset_s,slope\n0.9,add,5000,4501,300,1\n");
-    assert_int_equal(etacal_quotes_compare(o1, n, 1000, NULL, NULL, 0, &df, &err), ETACAL_EINVAL);
+    assert_int_equal(quotes_compare_fill(o1, n, 1000, NULL, NULL, 0, &df, &err), ETACAL_EINVAL);
     assert_non_null(strstr(err.msg, "distance_km"));
     const char *names[1] = {"distance_km"};
     double x[1] = {2.5};
-    assert_int_equal(etacal_quotes_compare(o1, n, 1000, names, x, 1, &df, &err), ETACAL_OK);
+    assert_int_equal(quotes_compare_fill(o1, n, 1000, names, x, 1, &df, &err), ETACAL_OK);
     assert_int_equal(df.nmoves, 1);
     assert_true(df.moves[0].old_promise == 1300);
     assert_true(tu_close(df.moves[0].new_promise, 200 + 1.1 * 1000 + 60 * 2.5, 1e-15));
     assert_int_equal(df.method_differs, 1);
-    etacal_quotes_diff_free(&df);
+    quotes_diff_release(&df);
     etacal_quotes_destroy(n);
     etacal_quotes_destroy(o1);
     etacal_quotes_destroy(o);
