@@ -65,6 +65,10 @@ void cliout_close(cliout *o);
 /* The path the library reads for an input named on the command line: "-"
  * (standard input) becomes "/dev/stdin". */
 const char *cli_input(const char *path);
+/* A usage error (EXIT_USAGE) when the output path out names the same file
+ * as one of the n inputs (the same path, or another path or link to the
+ * same file), else 0: a command never writes over its own input. */
+int cli_check_output(const char *cmd, const char *out, const char *const *inputs, size_t n);
 
 int parse_delim(const char *s, char *out);
 int parse_bad_rows(const char *s, int *out);

@@ -6,6 +6,7 @@
 #include "cli.h"
 
 #include <errno.h>
+#include <sys/stat.h>
 #include <string.h>
 
 static int to_stdout(void *ud, const char *buf, size_t len)
@@ -49,4 +50,27 @@ const char *cli_input(const char *path)
     /* "-" is the command line's name for standard input; the library reads
      * paths as they are */
     return path && strcmp(path, "-") == 0 ? "/dev/stdin" : path;
+}
+
+/* 1 when path names the same file as out: the same text, or the same
+ * device and inode (another path to it, a hard or symbolic link). */
+static int same_file(const char *out, const char *in)
+{
+    if (!in || strcmp(in, "-") == 0)
+        return 0;
+    if (strcmp(out, in) == 0)
+        return 1;
+    struct stat so, si;
+    return stat(out, &so) == 0 && stat(in, &si) == 0 && so.st_dev == si.st_dev && so.st_ino == si.st_ino;
+}
+
+int cli_check_output(const char *cmd, const char *out, const char *const *inputs, size_t n)
+{
+    if (!out || strcmp(out, "-") == 0)
+        return 0;
+    for (size_t i = 0; i < n; i++)
+        if (same_file(out, inputs[i]))
+            return usage_error(cmd, "the output '%s' is an input of this command too ('%s'): nothing written", out,
+                               inputs[i]);
+    return 0;
 }

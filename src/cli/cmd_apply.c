@@ -91,6 +91,12 @@ int cmd_apply(int argc, char **argv)
     if (!ao.pred_col)
         return usage_error("apply", "--pred is required");
     const char *table = argv[optind], *orders = argv[optind + 1];
+    if (strcmp(table, "-") == 0 && strcmp(orders, "-") == 0)
+        return usage_error("apply", "the quote table and the orders cannot both be standard input ('-')");
+    const char *inputs[2] = {table, orders};
+    int u = cli_check_output("apply", output, inputs, 2);
+    if (u)
+        return u;
 
     etacal_error err;
     etacal_error_clear(&err);

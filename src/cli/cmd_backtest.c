@@ -140,6 +140,8 @@ static int parse_options(int argc, char **argv, bt_args *a)
     if ((r = one_input(argc, argv, "backtest", "data file")) != 0)
         return r;
     a->path = argv[optind];
+    if ((r = cli_check_output("backtest", a->output, &a->path, 1)) != 0)
+        return r;
     if (!a->actual || !a->pred || !a->timecol)
         return usage_error("backtest", "--actual, --pred and --time are required");
     if (a->nx && a->bo.method != ETACAL_METHOD_QR)

@@ -186,6 +186,9 @@ static int parse_options(int argc, char **argv, check_args *a)
     if ((r = one_input(argc, argv, "check", "data file")) != 0)
         return r;
     a->path = argv[optind];
+    const char *inputs[2] = {a->path, a->table_path};
+    if ((r = cli_check_output("check", a->output, inputs, 2)) != 0)
+        return r;
     if (!a->actual)
         return usage_error("check", "--actual is required");
     if (!a->upper && a->nq == 0)
@@ -236,6 +239,14 @@ static int forecast_columns(check_args *a)
     co->q_cols = a->qcols;
     co->q_taus = a->qtaus;
     co->nq = a->nq;
+    /* a gate tests figures against their nominal level: a bound without one
+     * gives the gate nothing to test */
+    if (a->gate && a->upper && isnan(co->upper_level))
+        return usage_error("check", "--gate has no level to test '%s' against: give it, such as --upper %s=0.9",
+                           a->upper, a->upper);
+    if (a->gate && a->lower && isnan(co->lower_level))
+        return usage_error("check", "--gate has no level to test '%s' against: give it, such as --lower %s=0.1",
+                           a->lower, a->lower);
     return -1;
 }
 

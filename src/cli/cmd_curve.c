@@ -89,6 +89,8 @@ int cmd_curve(int argc, char **argv)
     int u = fit_args_check(&a, "curve");
     if (u)
         return u;
+    if ((u = cli_check_output("curve", output, (const char *const *)&argv[optind], 1)) != 0)
+        return u;
     if (from > to)
         return usage_error("curve", "--from must not be above --to");
     static double targets[MAX_GRID];

@@ -89,6 +89,8 @@ int cmd_fit(int argc, char **argv)
     if (u)
         return u;
     const char *path = argv[optind];
+    if ((u = cli_check_output("fit", output, &path, 1)) != 0)
+        return u;
 
     etacal_error err;
     etacal_error_clear(&err);

@@ -152,6 +152,9 @@ static int parse_options(int argc, char **argv, qr_args *a)
     if ((r = one_input(argc, argv, "qr", "data file")) != 0)
         return r;
     a->path = argv[optind];
+    const char *inputs[2] = {a->path, a->predict};
+    if ((r = cli_check_output("qr", a->output, inputs, 2)) != 0)
+        return r;
     return check_args_qr(a);
 }
 

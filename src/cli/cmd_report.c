@@ -129,6 +129,8 @@ static int run(int argc, char **argv, const char *cmdline)
     int nin = one_input(argc, argv, "report", "calibration file");
     if (nin)
         return nin;
+    if ((nin = cli_check_output("report", output, (const char *const *)&argv[optind], 1)) != 0)
+        return nin;
     if (a.confidence > 0)
         return usage_error("report", "--confidence is not offered by report (use etacal fit or curve)");
     a.ntargets = 1;

@@ -33,6 +33,16 @@ int main(int argc, char **argv)
         return usage_error(NULL, "no command given");
     const char *cmd = argv[1];
     int rc;
+    char help_opt[] = "--help";
+    char *help_argv[4] = {argv[0], NULL, help_opt, NULL};
+    if (strcmp(cmd, "help") == 0 && argc > 2) {
+        /* etacal help CMD: that command's help */
+        cmd = help_argv[1] = argv[2];
+        argc = 3;
+        argv = help_argv;
+        if (strcmp(cmd, "help") == 0 || cmd[0] == '-')
+            return usage_error(NULL, "unknown command '%s'", cmd);
+    }
     if (strcmp(cmd, "-h") == 0 || strcmp(cmd, "--help") == 0 || strcmp(cmd, "help") == 0) {
         fputs(usage, stdout);
         rc = 0;
@@ -55,6 +65,8 @@ int main(int argc, char **argv)
         rc = cmd_publish(argc - 1, argv + 1);
     } else if (strcmp(cmd, "report") == 0) {
         rc = cmd_report(argc - 1, argv + 1);
+    } else if (cmd[0] == '-') {
+        return usage_error(NULL, "unknown option '%s'", cmd);
     } else {
         return usage_error(NULL, "unknown command '%s'", cmd);
     }
