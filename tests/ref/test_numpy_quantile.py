@@ -36,7 +36,7 @@ for trial in range(60):
         cases += 1
 
 # exact rank rule vs fractions: decimal taus, including the traps of
-# METHODS.md (n=9 tau=.3 -> 3; n=24 tau=.56 -> 14; n=19 tau=.05 -> 1)
+# worked with exact fractions (n=9 tau=.3 -> 3; n=24 tau=.56 -> 14; n=19 tau=.05 -> 1)
 traps = 0
 for n in list(range(1, 120)) + [999, 1000, 12345]:
     for tau_s in ("0.05", "0.1", "0.3", "0.5", "0.56", "0.8", "0.9", "0.95", "0.975", "0.99"):

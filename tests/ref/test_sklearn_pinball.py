@@ -70,7 +70,7 @@ for r in rows(["--upper", "q90=0.9", "--lower", "q10=0.1"]):
     checked += 1
 # unequal tails: [q10, q90] declared as lower level 0.1, upper level 0.95
 # (nominal 0.85): the score (u - l) + (l - y)+/a + (y - u)+/(1 - b)
-# (METHODS.md sec. 9) is pinball(l, a)/a + pinball(u, b)/(1 - b), each
+# (Gneiting & Raftery 2007, sec. 6.2, with unequal tails) is pinball(l, a)/a + pinball(u, b)/(1 - b), each
 # mean pinball loss from scikit-learn
 for r in rows(["--upper", "q90=0.95", "--lower", "q10=0.1"]):
     if r["measure"] != "interval":

