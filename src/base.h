@@ -95,11 +95,11 @@ double beta_quantile(double p, double a, double b);
  * decimal noise of 1e-9 units. */
 double ceil_scaled(double x, double scale);
 
-/* A stream over a caller's sink (io.c), for the library's stdio writers;
- * NULL when out of memory or without a write function.  sink_fclose flushes
- * and closes it and returns rc when nonzero, else ETACAL_OK or an I/O error
- * when the sink refused bytes. */
-FILE *sink_fopen(const etacal_sink *s);
+/* A stream over a caller's sink (io.c), for the library's stdio writers:
+ * ETACAL_OK and *fp, or ETACAL_EINVAL without a write function, or
+ * ETACAL_ENOMEM.  sink_fclose flushes and closes it and returns rc when
+ * nonzero, else ETACAL_OK or an I/O error when the sink refused bytes. */
+int sink_fopen(const etacal_sink *s, FILE **fp, etacal_error *err);
 /* An output file that appears whole or not at all (io.c; the public
  * etacal_outfile is one of these with a sink): the data goes to tmp, which
  * outfile_commit flushes, fsyncs and renames over path.  Zero-initialise;

@@ -139,20 +139,20 @@ static int sink_close(void *c)
     return failed ? -1 : 0;
 }
 
-FILE *sink_fopen(const etacal_sink *s)
+int sink_fopen(const etacal_sink *s, FILE **fp, etacal_error *err)
 {
+    *fp = NULL;
     if (!s || !s->write)
-        return NULL;
+        return etacal_error_set(err, ETACAL_EINVAL, NULL, "no sink to write to");
     sink_cookie *k = malloc(sizeof *k);
-    if (!k)
-        return NULL;
-    k->sink = *s;
-    k->failed = 0;
-    cookie_io_functions_t io = {NULL, sink_write, NULL, sink_close};
-    FILE *fp = fopencookie(k, "w", io);
-    if (!fp)
-        free(k);
-    return fp;
+    if (k) {
+        k->sink = *s;
+        k->failed = 0;
+        cookie_io_functions_t io = {NULL, sink_write, NULL, sink_close};
+        if (!(*fp = fopencookie(k, "w", io)))
+            free(k);
+    }
+    return *fp ? ETACAL_OK : etacal_error_set(err, ETACAL_ENOMEM, NULL, "out of memory");
 }
 
 int sink_fclose(FILE *fp, int rc, etacal_error *err)

@@ -68,10 +68,10 @@ int etacal_apply_write_summary(const etacal_quotes *q, const char *orders, const
     for (size_t t = 0; opts->targets && t < nsel; t++)
         if (opts->targets[t] >= q->ntargets)
             return etacal_error_set(err, ETACAL_EINVAL, NULL, "target index %zu out of range", opts->targets[t]);
-    FILE *fp = sink_fopen(out);
-    if (!fp)
-        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
-                                out && out->write ? "out of memory" : "no sink to write to");
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     write_summary(fp, q, orders, opts, stats);
     return sink_fclose(fp, ETACAL_OK, err);
 }

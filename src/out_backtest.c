@@ -210,10 +210,10 @@ int etacal_backtest_write(const etacal_backtest_result *r, const etacal_backtest
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "no backtest result or options to write");
     if (format != ETACAL_FORMAT_TEXT && format != ETACAL_FORMAT_CSV && format != ETACAL_FORMAT_JSON)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "unknown output format %d", format);
-    FILE *fp = sink_fopen(out);
-    if (!fp)
-        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
-                                out && out->write ? "out of memory" : "no sink to write to");
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     const char *src = source ? source : "";
     int rc = ETACAL_OK;
     if (format == ETACAL_FORMAT_JSON)

@@ -496,10 +496,10 @@ int etacal_check_write(const etacal_check_result *r, const etacal_check_write_op
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "unknown output format %d", format);
     if (r->nkeys > NKEYS_MAX)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "more than %d key columns", NKEYS_MAX);
-    FILE *fp = sink_fopen(out);
-    if (!fp)
-        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
-                                out && out->write ? "out of memory" : "no sink to write to");
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     int rc = ETACAL_OK;
     if (format == ETACAL_FORMAT_JSON)
         rc = write_json(fp, r, opts, err);

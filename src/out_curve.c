@@ -198,10 +198,10 @@ int etacal_curve_write(const etacal_curve *cv, const etacal_fit_run *run, const 
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "the curve is not of this run (it needs a holdout)");
     curve_view v = {path, s->time, s->holdout, q, ho, cv, q->ntargets,
                     etacal_table_rows(etacal_fit_run_rows(run)), etacal_fit_run_held(run)};
-    FILE *fp = sink_fopen(out);
-    if (!fp)
-        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
-                                out && out->write ? "out of memory" : "no sink to write to");
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     int rc = format == ETACAL_FORMAT_JSON  ? write_json(fp, &v, err)
              : format == ETACAL_FORMAT_CSV ? write_csv(fp, &v)
                                            : write_text(fp, &v, err);

@@ -491,9 +491,9 @@ int etacal_fit_write_summary(const etacal_fit_run *run, const etacal_fitspec *s,
 {
     if (!run || !s || !path)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "no fit run to summarise");
-    FILE *fp = sink_fopen(out);
-    if (!fp)
-        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
-                                out && out->write ? "out of memory" : "no sink to write to");
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     return sink_fclose(fp, write_summary(run, s, path, fp, err), err);
 }

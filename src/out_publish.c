@@ -325,10 +325,10 @@ int etacal_publish_write_report(const etacal_publish_result *r, const etacal_pub
     v.used = etacal_table_rows(t);
     v.g = etacal_publish_result_guards(r, &v.ng);
     v.ref_pred = etacal_publish_result_reference(r, &v.ref_x);
-    FILE *fp = sink_fopen(out);
-    if (!fp)
-        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
-                                out && out->write ? "out of memory" : "no sink to write to");
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     v.fp = fp;
     int rc = format == ETACAL_FORMAT_JSON ? write_json(&v, err) : write_text(&v, err);
     return sink_fclose(fp, rc, err);

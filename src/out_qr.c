@@ -191,10 +191,10 @@ int etacal_qr_write(const etacal_qr_fits *f, const etacal_qr_write_opts *opts, i
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "no fits or names to write");
     if (format != ETACAL_FORMAT_TEXT && format != ETACAL_FORMAT_CSV && format != ETACAL_FORMAT_JSON)
         return etacal_error_set(err, ETACAL_EINVAL, NULL, "unknown output format %d", format);
-    FILE *fp = sink_fopen(out);
-    if (!fp)
-        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
-                                out && out->write ? "out of memory" : "no sink to write to");
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     static const etacal_read_stats none;
     const etacal_read_stats *st = opts->rows ? opts->rows : &none;
     int rc = ETACAL_OK;

@@ -1024,9 +1024,9 @@ static int write_html(FILE *fp, const etacal_report *r, etacal_error *err)
 
 int etacal_report_write(const etacal_report *r, const etacal_sink *out, etacal_error *err)
 {
-    FILE *fp = sink_fopen(out);
-    if (!fp)
-        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
-                                out && out->write ? "out of memory" : "no sink to write to");
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     return sink_fclose(fp, write_html(fp, r, err), err);
 }

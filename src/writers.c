@@ -11,10 +11,10 @@
 
 int etacal_quotes_write(const etacal_quotes *q, const etacal_sink *out, etacal_error *err)
 {
-    FILE *fp = sink_fopen(out);
-    if (!fp)
-        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
-                                out && out->write ? "out of memory" : "no sink to write to");
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     return sink_fclose(fp, quotes_write_csv(q, fp, err), err);
 }
 
@@ -34,10 +34,10 @@ int etacal_quotes_write_path(const etacal_quotes *q, const char *path, etacal_er
 int etacal_apply(const etacal_quotes *q, const char *in_path, const etacal_sink *out,
                  const etacal_apply_opts *opts, etacal_apply_stats *stats, etacal_error *err)
 {
-    FILE *fp = sink_fopen(out);
-    if (!fp)
-        return etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
-                                out && out->write ? "out of memory" : "no sink to write to");
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     return sink_fclose(fp, apply_csv(q, in_path, fp, opts, stats, err), err);
 }
 
@@ -55,22 +55,14 @@ int etacal_apply_path(const etacal_quotes *q, const char *in_path, const char *o
     return outfile_commit(&of, err);
 }
 
-static FILE *open_sink(const etacal_sink *out, etacal_error *err)
-{
-    FILE *fp = sink_fopen(out);
-    if (!fp)
-        etacal_error_set(err, out && out->write ? ETACAL_ENOMEM : ETACAL_EINVAL, NULL,
-                         out && out->write ? "out of memory" : "no sink to write to");
-    return fp;
-}
-
 int etacal_qr_predict(const double *coef, const double *taus, size_t ntau, size_t k, const char *const *xnames,
                       const char *in_path, const etacal_sink *out, const etacal_qr_predict_opts *opts,
                       etacal_qr_predict_stats *stats, etacal_error *err)
 {
-    FILE *fp = open_sink(out, err);
-    if (!fp)
-        return err ? err->code : ETACAL_EINVAL;
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     return sink_fclose(fp, qr_predict_csv(coef, taus, ntau, k, xnames, in_path, fp, opts, stats, err), err);
 }
 
@@ -78,8 +70,9 @@ int etacal_qr_fits_predict(const etacal_qr_fits *f, const char *const *xnames, c
                            const etacal_sink *out, char delim, int bad_rows, etacal_qr_predict_stats *stats,
                            etacal_error *err)
 {
-    FILE *fp = open_sink(out, err);
-    if (!fp)
-        return err ? err->code : ETACAL_EINVAL;
+    FILE *fp;
+    int orc = sink_fopen(out, &fp, err);
+    if (orc)
+        return orc;
     return sink_fclose(fp, qr_fits_predict_csv(f, xnames, in_path, fp, delim, bad_rows, stats, err), err);
 }

@@ -4,24 +4,17 @@
  * library does not know; any other name is a library output file, which
  * appears whole or not at all. */
 #include "cli.h"
+#include "outsink.h"
 
 #include <errno.h>
 #include <sys/stat.h>
 #include <string.h>
 
-static int to_stdout(void *ud, const char *buf, size_t len)
-{
-    (void)ud;
-    /* a short write stays in stdout's error flag, reported at the commit */
-    (void)fwrite(buf, 1, len, stdout);
-    return 0;
-}
-
 int cliout_open(cliout *o, const char *path, etacal_error *err)
 {
     memset(o, 0, sizeof *o);
     if (!path || strcmp(path, "-") == 0) {
-        o->sink.write = to_stdout;
+        o->sink = outsink(stdout); /* write errors show at the commit */
         return ETACAL_OK;
     }
     int rc = etacal_outfile_open(path, &o->of, err);
